@@ -1,0 +1,10 @@
+"""maasscomp: Maass cusp forms on SL(2,Z) and Gamma0(N).
+
+Pipeline stages (each imports only the stages listed before it):
+``special`` -> ``groups`` -> ``hejhal`` -> ``spectrum`` -> ``store`` -> ``supnorm``
+-> ``pipeline`` -> ``cli``.
+"""
+
+__version__ = "0.1.0"
+
+__all__ = ["__version__"]

@@ -1,0 +1,73 @@
+"""The :class:`Form` record: one verified Maass cusp form, as stored."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from maasscomp.hejhal.types import SolverParams, SymmetryClass
+
+
+@dataclass(frozen=True, eq=False)
+class Form:
+    """A Maass cusp form on Gamma0(level) with its verification data.
+
+    Normalisation (formulas ref., conventions): at every cusp j of width-normalised
+    coordinate, f(sigma_j z) = sum_{n>=1} c[j, n-1] sqrt(y) K_{iR}(2 pi n y) cs(2 pi n x)
+    with cs = cos (even) or sin (odd), and c[0, 0] = c_infinity(1) = 1, so that for a
+    Hecke newform c[0, n-1] is the Hecke eigenvalue lambda_f(n).
+
+    Attributes
+    ----------
+    level : int
+    R : float
+        Spectral parameter, lambda = 1/4 + R^2.
+    symmetry : SymmetryClass
+    coeffs : ndarray, shape (n_cusps, M)
+        c_j(n) for n = 1..M at each cusp (row 0 is infinity).
+    coeff_errors : ndarray, shape (n_cusps, M)
+        Estimated absolute error of each coefficient (difference between the two
+        Y solves at the final R).
+    R_error : float
+        Estimated error of R.
+    hecke_residual : float
+        Largest Hecke-relation residual over the checked range.
+    params : SolverParams
+        Parameters of the final solve.
+    is_new : bool or None
+        True for newforms, False for oldforms, None if not classified.
+    multiplicity : int
+        Dimension of the eigenspace in this symmetry class at R (1 when simple).
+    basis_index : int
+        Index of this form inside a multiplicity > 1 eigenspace basis.
+    extra : dict
+        Further labels (Atkin-Lehner signs found, Hecke eigenvalues, origin of an oldform...).
+    """
+
+    level: int
+    R: float
+    symmetry: SymmetryClass
+    coeffs: np.ndarray
+    coeff_errors: np.ndarray
+    R_error: float
+    hecke_residual: float
+    params: SolverParams
+    is_new: bool | None = None
+    multiplicity: int = 1
+    basis_index: int = 0
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def parity(self) -> str:
+        return self.symmetry.parity
+
+    @property
+    def eigenvalue(self) -> float:
+        """lambda = 1/4 + R^2."""
+        return 0.25 + self.R * self.R
+
+    def coefficient(self, n: int, cusp: int = 0) -> float:
+        """c_cusp(n) for 1 <= n <= M."""
+        return float(self.coeffs[cusp, n - 1])
