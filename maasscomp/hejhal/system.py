@@ -1,0 +1,156 @@
+"""Hejhal's linear system at a trial R for one symmetry class.
+
+Source: D. A. Hejhal, "On eigenfunctions of the Laplacian for Hecke triangle groups",
+IMA Vol. Math. Appl. 109 (1999) 291-315, and F. Strömberg, *Computational aspects of Maass
+waveforms*, thesis, Uppsala 2005, Ch. 1; the real cos/sin form used here is formulas ref.
+§1.2 item 6, and the one-expansion reduction for squarefree levels via Atkin--Lehner
+involutions is formulas ref. §1.5.
+
+For a squarefree level N every cusp is W_Q(infinity) for an exact divisor Q of N, and
+with the scaling matrix sigma = W_Q / sqrt(Q) the expansion at that cusp is eps_Q times the
+expansion at infinity. A form in the class (parity, (eps_p)) is therefore
+
+    f(z) = sum_{n>=1} a(n) sqrt(y) Kt_R(2 pi n y) cs(2 pi n x)
+
+(Kt = e^{pi R/2} K_{iR}, cs = cos or sin) and the sample points z_m = x_m + iY,
+x_m = (m - 1/2)/(2Q), m = 1..Q, satisfy f(z_m) = eps_{Q(m)} f(w_m) with w_m the
+pulled-back point. Discrete inversion on the horocycle gives, for 1 <= n <= M0 < Q,
+
+    a(n) sqrt(Y) Kt_R(2 pi n Y) = sum_l V_{nl} a(l),
+    V_{nl} = (2/Q) sum_m eps_{Q(m)} sqrt(y*_m) Kt_R(2 pi l y*_m) cs(2 pi l x*_m) cs(2 pi n x_m).
+
+The square matrix A(R) = diag(sqrt(Y) Kt_R(2 pi n Y)) - V(R) is singular (up to the
+truncation error) exactly when R is an eigenvalue of the class.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+
+from maasscomp.errors import InputError
+from maasscomp.hejhal.types import SolverParams, SymmetryClass
+from maasscomp.special import ktilde
+
+TWO_PI = 2.0 * np.pi
+
+
+def _cs(parity: str):
+    return np.cos if parity == "even" else np.sin
+
+
+def check_symmetry(group, symmetry: SymmetryClass) -> None:
+    """Raise InputError unless ``symmetry`` fits the group (squarefree level, one sign per prime)."""
+    if not group.is_squarefree:
+        raise InputError(
+            f"level {group.level} is not squarefree; the one-expansion Atkin-Lehner system needs a "
+            "squarefree level (use the multi-cusp system for this level)"
+        )
+    primes = tuple(sorted(group.primes))
+    given = tuple(sorted(p for p, _ in symmetry.al_signs))
+    if given != primes:
+        raise InputError(
+            f"symmetry class {symmetry.label!r} gives Atkin-Lehner signs for primes {list(given)}; "
+            f"level {group.level} needs exactly one sign for each of {list(primes)}"
+        )
+
+
+@dataclass(frozen=True)
+class SamplePoints:
+    """Sample points of one system and their pullbacks (independent of R)."""
+
+    x: np.ndarray  # sample abscissae x_m, shape (Q,)
+    Y: float
+    xs: np.ndarray  # pulled-back abscissae, shape (Q,)
+    ys: np.ndarray  # pulled-back heights, shape (Q,)
+    sign: np.ndarray  # eps_{Q(m)} (+-1), shape (Q,)
+
+
+class HejhalSystem:
+    """The real Hejhal system of one symmetry class of a squarefree level.
+
+    Parameters
+    ----------
+    group : Gamma0
+        The group (from :func:`maasscomp.groups.gamma0`); its level must be squarefree.
+    symmetry : SymmetryClass
+        Parity and one Atkin--Lehner sign per prime dividing the level.
+    params : SolverParams
+        Y, M0, Q. Y must lie below the group's fundamental-domain height so that every
+        pullback raises the sample point.
+    """
+
+    def __init__(self, group, symmetry: SymmetryClass, params: SolverParams) -> None:
+        check_symmetry(group, symmetry)
+        Y0 = group.fundamental_domain_height
+        if not (0 < params.Y < Y0):
+            raise InputError(
+                f"sample height Y={params.Y!r} is not allowed for level {group.level}; "
+                f"it must lie in (0, {Y0:.6g}) so that every pullback raises the point"
+            )
+        self.group = group
+        self.symmetry = symmetry
+        self.params = params
+        self._cs = _cs(symmetry.parity)
+
+    @cached_property
+    def samples(self) -> SamplePoints:
+        p = self.params
+        m = np.arange(1, p.Q + 1)
+        x = (m - 0.5) / (2 * p.Q)
+        pb = self.group.pullback(x, np.full_like(x, p.Y))
+        cusps = self.group.cusps
+        sign = np.array(
+            [self.symmetry.al_sign(cusps[int(j)].atkin_lehner_Q) for j in np.asarray(pb.cusp)],
+            dtype=float,
+        )
+        ys = np.asarray(pb.y, dtype=float)
+        if np.any(ys <= p.Y * (1 + 1e-12)):
+            raise InputError(
+                f"sample height Y={p.Y} is too large for level {self.group.level}: some pullbacks "
+                "do not rise above Y"
+            )
+        return SamplePoints(x=x, Y=p.Y, xs=np.asarray(pb.x, dtype=float), ys=ys, sign=sign)
+
+    @cached_property
+    def _phases(self) -> tuple[np.ndarray, np.ndarray]:
+        """R-independent trigonometric factors of V (Q x M0 and M0 x Q)."""
+        s = self.samples
+        n = np.arange(1, self.params.M0 + 1)
+        out = s.sign[:, None] * self._cs(TWO_PI * np.outer(s.xs, n))
+        inv = (2.0 / self.params.Q) * self._cs(TWO_PI * np.outer(n, s.x))
+        return out, inv
+
+    def matrix(self, R: float) -> np.ndarray:
+        """The square matrix A(R) of size M0 (singular at eigenvalues of the class)."""
+        s = self.samples
+        M0 = self.params.M0
+        n = np.arange(1, M0 + 1)
+        out, inv = self._phases
+        kb = np.sqrt(s.ys)[:, None] * ktilde(R, (TWO_PI * s.ys)[:, None] * n[None, :])
+        V = inv @ (kb * out)
+        diag = np.sqrt(s.Y) * ktilde(R, TWO_PI * s.Y * n)
+        A = -V
+        A[np.diag_indices(M0)] += diag
+        return A
+
+    def log_det(self, R: float) -> tuple[float, float]:
+        """Sign and log|det A(R)| (formulas ref. §1.4: the sign changes at eigenvalues)."""
+        sign, logdet = np.linalg.slogdet(self.matrix(R))
+        return float(sign), float(logdet)
+
+    def solve(self, R: float) -> np.ndarray:
+        """Coefficients a(1..M0) with a(1) = 1 (the n = 1 equation is dropped)."""
+        A = self.matrix(R)
+        try:
+            rest = np.linalg.solve(A[1:, 1:], -A[1:, 0])
+        except np.linalg.LinAlgError:
+            rest = np.linalg.lstsq(A[1:, 1:], -A[1:, 0], rcond=None)[0]
+        return np.concatenate(([1.0], rest))
+
+    def residual(self, R: float, a: np.ndarray) -> float:
+        """Relative residual |A a| / (|A| |a|) of a coefficient vector."""
+        A = self.matrix(R)
+        return float(np.linalg.norm(A @ a) / (np.linalg.norm(A) * np.linalg.norm(a)))

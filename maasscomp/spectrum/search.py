@@ -1,0 +1,276 @@
+"""Locate, refine and confirm every eigenvalue of one symmetry class in an R window.
+
+Method (formulas ref. §1.4). With Y, M0 and Q held fixed over the window (M0 chosen for
+its top), the sign of det A(R) of the square Hejhal system is scanned on a grid whose step
+is a small fraction of the mean spacing of the class predicted by Weyl's law. det A(R) is
+continuous in R, so unlike the classical two-Y comparison (Hejhal 1999; Strömberg 2005)
+it has no poles; it changes sign at every eigenvalue and at spurious points where the
+truncated system is singular. Each sign change is refined by Brent's method, and a
+candidate is accepted only when it is confirmed independently:
+
+1. the root of det A(R) at a second height Y2 agrees (the eigenvalue is independent of Y,
+   a spurious root is not), giving the error estimate of R;
+2. the normalised coefficients a(2..) solved at Y1 and at Y2 agree;
+3. the Hecke relations hold (a(mn) = a(m) a(n), a(p^2) = a(p)^2 - 1, ...).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from typing import Callable
+
+import numpy as np
+from scipy.optimize import brentq
+
+from maasscomp.errors import InputError
+from maasscomp.hejhal.params import choose_params
+from maasscomp.hejhal.system import HejhalSystem
+from maasscomp.hejhal.types import SolverParams, SymmetryClass
+from maasscomp.spectrum.form import Form
+from maasscomp.spectrum.hecke import atkin_lehner_residual, hecke_residual
+
+
+@dataclass(frozen=True)
+class SearchSettings:
+    """Knobs of the eigenvalue search (all have sensible defaults).
+
+    Attributes
+    ----------
+    eps : float
+        Truncation target of every system.
+    Y1_frac, Y2_frac : float
+        Scan and confirmation heights as fractions of the group's Y0.
+    steps_per_spacing : float
+        Grid points per mean eigenvalue spacing of the class (Weyl's law, leading terms).
+    max_step : float
+        Upper bound of the grid step.
+    coeff_tol : float
+        Largest accepted difference of a(2..) between the Y1 and Y2 solves.
+    hecke_tol : float
+        Largest accepted Hecke residual at confirmation.
+    R_tol : float
+        Largest accepted difference between the det roots at Y1 and Y2.
+    n_coeffs : int
+        Number of coefficients stored per form (the final solve uses a height low enough
+        for these to be accurate).
+    hecke_nmax : int
+        Range of the Hecke check stored with each form.
+    """
+
+    eps: float = 1e-14
+    Y1_frac: float = 0.92
+    Y2_frac: float = 0.80
+    steps_per_spacing: float = 40.0
+    max_step: float = 0.02
+    coeff_tol: float = 1e-6
+    hecke_tol: float = 1e-6
+    R_tol: float = 1e-8
+    n_coeffs: int = 60
+    hecke_nmax: int = 30
+
+    def __post_init__(self) -> None:
+        if not (0 < self.eps < 1e-3):
+            raise InputError(f"eps={self.eps!r} is not allowed; it must lie in (0, 1e-3)")
+        if not (0 < self.Y2_frac < self.Y1_frac < 1):
+            raise InputError(
+                f"Y fractions Y1_frac={self.Y1_frac!r}, Y2_frac={self.Y2_frac!r} are not allowed; "
+                "they must satisfy 0 < Y2_frac < Y1_frac < 1"
+            )
+        if self.n_coeffs < 10:
+            raise InputError(f"n_coeffs={self.n_coeffs!r} is not allowed; it must be at least 10")
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """A sign change of det A(R) and what became of it."""
+
+    R: float
+    accepted: bool
+    reason: str
+
+
+@dataclass(frozen=True)
+class SearchResult:
+    """Outcome of a window search for one symmetry class."""
+
+    level: int
+    symmetry: SymmetryClass
+    R_min: float
+    R_max: float
+    forms: tuple[Form, ...]
+    candidates: tuple[Candidate, ...]
+    grid_step: float
+    params: SolverParams
+
+
+def mean_spacing(level: int, n_classes: int, R: float, index: int) -> float:
+    """Mean eigenvalue spacing of one symmetry class near R (leading Weyl term).
+
+    N(T) ~ index T^2 / 12 (formulas ref. §2), shared among ``n_classes`` classes.
+    """
+    return 6.0 * n_classes / (index * max(R, 1.0))
+
+
+def _det_function(system: HejhalSystem, ref: float) -> Callable[[float], float]:
+    def g(R: float) -> float:
+        s, ld = system.log_det(R)
+        return s * math.exp(max(ld - ref, -700.0)) if s != 0 else 0.0
+
+    return g
+
+
+def _refine_root(system: HejhalSystem, a: float, b: float) -> float:
+    sa, la = system.log_det(a)
+    sb, lb = system.log_det(b)
+    g = _det_function(system, max(la, lb))
+    return float(brentq(g, a, b, xtol=1e-15, rtol=4 * np.finfo(float).eps, maxiter=200))
+
+
+def _root_near(system: HejhalSystem, R: float, width: float) -> float | None:
+    """Root of det A at this system's Y within R +- width (None if no sign change)."""
+    for w in (width, 4 * width, 16 * width):
+        a, b = R - w, R + w
+        if system.log_det(a)[0] * system.log_det(b)[0] < 0:
+            return _refine_root(system, a, b)
+    return None
+
+
+def _store_height(group, R: float, n_coeffs: int, eps: float, Y1: float) -> float:
+    """A height whose truncation M0 is about 2 n_coeffs (coefficients up to ~M0/2 are
+    reliable in double precision, formulas ref. §1.3)."""
+    L = math.log(1.0 / eps)
+    x_cut = R + 3.0 * (1.5 * L / math.sqrt(2)) ** (2 / 3) * max(R, 1.0) ** (1 / 3) + L
+    return min(Y1, x_cut / (2 * math.pi * 2 * n_coeffs))
+
+
+def search_window(
+    group,
+    symmetry: SymmetryClass,
+    R_min: float,
+    R_max: float,
+    settings: SearchSettings | None = None,
+    *,
+    step: float | None = None,
+    progress: Callable[[int, int], None] | None = None,
+) -> SearchResult:
+    """Find every eigenvalue of one symmetry class with R in [R_min, R_max].
+
+    Parameters
+    ----------
+    group : Gamma0
+        From :func:`maasscomp.groups.gamma0` (squarefree level).
+    symmetry : SymmetryClass
+    R_min, R_max : float
+        The window, 0 < R_min < R_max.
+    settings : SearchSettings, optional
+    step : float, optional
+        Grid step override (default: mean spacing / steps_per_spacing, capped by max_step).
+    progress : callable(done, total), optional
+        Called after each grid point.
+
+    Returns
+    -------
+    SearchResult
+        Accepted forms sorted by R, and every candidate with the reason it was kept or
+        rejected.
+    """
+    settings = settings or SearchSettings()
+    for name, v in (("R_min", R_min), ("R_max", R_max)):
+        if not (isinstance(v, (int, float)) and math.isfinite(v) and v > 0):
+            raise InputError(f"{name}={v!r} is not allowed; it must be a positive finite number")
+    if R_min >= R_max:
+        raise InputError(f"R_min={R_min!r} must be smaller than R_max={R_max!r}")
+    n_classes = 2 * 2 ** len(group.primes)
+    if step is None:
+        step = min(settings.max_step, mean_spacing(group.level, n_classes, R_max, group.index) / settings.steps_per_spacing)
+    if not (step > 0 and math.isfinite(step)):
+        raise InputError(f"grid step={step!r} is not allowed; it must be a positive finite number")
+
+    Y0 = group.fundamental_domain_height
+    Y1, Y2 = settings.Y1_frac * Y0, settings.Y2_frac * Y0
+    # one set of parameters for the whole scan: a jump of M0 would flip the sign of det
+    p1 = choose_params(R_max + 1.0, Y1, settings.eps)
+    p2 = choose_params(R_max + 1.0, Y2, settings.eps)
+    sys1 = HejhalSystem(group, symmetry, p1)
+    sys2 = HejhalSystem(group, symmetry, p2)
+
+    n = max(2, int(math.ceil((R_max - R_min) / step)) + 1)
+    grid = np.linspace(R_min, R_max, n)
+    signs = np.empty(n)
+    for i, R in enumerate(grid):
+        signs[i] = sys1.log_det(float(R))[0]
+        if progress is not None:
+            progress(i + 1, n)
+
+    candidates: list[Candidate] = []
+    forms: list[Form] = []
+    for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
+        Rc = _refine_root(sys1, float(grid[i]), float(grid[i + 1]))
+        ok, reason, form = _confirm(group, symmetry, Rc, sys1, sys2, settings, step)
+        candidates.append(Candidate(R=Rc, accepted=ok, reason=reason))
+        if ok:
+            forms.append(form)
+    return SearchResult(
+        level=group.level,
+        symmetry=symmetry,
+        R_min=float(R_min),
+        R_max=float(R_max),
+        forms=tuple(sorted(forms, key=lambda f: f.R)),
+        candidates=tuple(candidates),
+        grid_step=float(step),
+        params=p1,
+    )
+
+
+def _confirm(group, symmetry, Rc, sys1, sys2, settings: SearchSettings, step: float):
+    """Independent confirmation of a det root; returns (ok, reason, Form | None)."""
+    R2 = _root_near(sys2, Rc, max(1e-7, 1e3 * settings.R_tol))
+    if R2 is None:
+        return False, "no det root at the second height Y2", None
+    dR = abs(R2 - Rc)
+    if dR > settings.R_tol:
+        return False, f"det roots at Y1 and Y2 differ by {dR:.2e}", None
+    a1 = sys1.solve(Rc)
+    a2 = sys2.solve(Rc)
+    k = min(8, sys1.params.M0 // 2, sys2.params.M0 // 2)
+    dcoef = float(np.max(np.abs(a1[1:k] - a2[1:k])))
+    if not np.isfinite(dcoef) or dcoef > settings.coeff_tol:
+        return False, f"coefficients at Y1 and Y2 differ by {dcoef:.2e}", None
+
+    # final solve at a height giving n_coeffs accurate coefficients, and a second height
+    # for their error estimate
+    Ys = _store_height(group, Rc, settings.n_coeffs, settings.eps, sys1.params.Y)
+    ps_a = choose_params(Rc + 0.5, Ys, settings.eps)
+    ps_b = choose_params(Rc + 0.5, 0.9 * Ys, settings.eps)
+    ca = HejhalSystem(group, symmetry, ps_a).solve(Rc)
+    cb = HejhalSystem(group, symmetry, ps_b).solve(Rc)
+    m = min(settings.n_coeffs, ca.size, cb.size)
+    coeffs = ca[:m]
+    errs = np.abs(ca[:m] - cb[:m])
+    hres = hecke_residual(coeffs, group.level, settings.hecke_nmax)
+    if hres > settings.hecke_tol:
+        return False, f"Hecke residual {hres:.2e} above {settings.hecke_tol:.0e}", None
+
+    al = dict(symmetry.al_signs)
+    extra: dict = {"al_signs": {str(p): s for p, s in al.items()}}
+    is_new: bool | None
+    if group.level == 1:
+        is_new = True
+    else:
+        al_res = atkin_lehner_residual(coeffs, group.level, al, settings.hecke_nmax)
+        extra["atkin_lehner_residual"] = al_res
+        is_new = bool(al_res < 1e-6)
+    form = Form(
+        level=group.level,
+        R=float(Rc),
+        symmetry=symmetry,
+        coeffs=coeffs[None, :],
+        coeff_errors=errs[None, :],
+        R_error=float(max(dR, 1e-15 * Rc)),
+        hecke_residual=hres,
+        params=ps_a,
+        is_new=is_new,
+        extra=extra,
+    )
+    return True, "confirmed", form
