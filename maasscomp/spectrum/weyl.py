@@ -1,0 +1,633 @@
+"""Weyl's law with explicit lower-order terms for Gamma0(N), and completeness reports.
+
+The counting function is
+
+    N_N(T) = #{Maass cusp forms on Gamma0(N) (with multiplicity, all symmetry classes)
+               with 0 < R_j <= T},
+
+and for squarefree N the smooth part of the trace-formula expansion is
+
+    W_N(T) = (mu/12) T^2 - (2 h T / pi) log((T/e) sqrt(2N/pi))
+             - mu/144 + nu2/8 + 2 nu3/9 - h/4 - 1
+             - (h/pi) arg zeta(1 + 2iT) - (h/(2 pi)) sum_{p | N} arg(1 - p^{-1-2iT}),
+
+with mu the index of Gamma0(N) in SL2(Z), h = 2^omega(N) the number of cusps and nu2, nu3
+the numbers of elliptic points of order 2 and 3.  N_N(T) = W_N(T) + S_N(T) + O(1/T) where
+S_N is a mean-zero remainder (the argument of the Selberg zeta function on the critical
+line).
+
+Sources:
+
+* general structure (area term, cusp terms, winding of the scattering determinant):
+  H. Iwaniec, *Spectral Methods of Automorphic Forms*, 2nd ed. (2002), Thm 10.2 (trace
+  formula) and Ch. 11 (Weyl's law); D. A. Hejhal, *The Selberg Trace Formula for
+  PSL(2,R)*, Vol. 2, Springer LNM 1001 (1983);
+* level 1: N(T) = T^2/12 - (2T/pi) log(T/(e sqrt(pi/2))) - 131/144 + S(T), e.g. R. Steil,
+  DESY report 94-028 (1994), and H. Then, Math. Comp. 74 (2005) 363-381 (from memory of
+  these sources); the arg zeta(1 + 2iT) term is the part of the scattering phase
+  Lambda(2s-1)/Lambda(2s) that those papers keep inside the remainder;
+* squarefree level: the scattering determinant
+  det Phi_N(s) = phi_1(s)^h prod_{p|N} ((p^{2-2s} - 1)/(p^{2s} - 1))^{h/2}
+  (structure as in M. N. Huxley, "Scattering matrices for congruence subgroups", in
+  *Modular Forms*, ed. R. A. Rankin, Ellis Horwood 1984, 141-156).  The resulting
+  T log T, T and constant terms are *derived* by the project from these two ingredients;
+  they reduce exactly to the published level-1 formula and were checked against a
+  complete list of eigenvalues for N = 2 only.  Treat other levels as derived, not
+  verified.
+
+Elliptic points of order m contribute (m^2 - 1)/(12 m) each (1/8 for m = 2, 2/9 for
+m = 3), every cusp -1/4, the identity -area/(48 pi) = -mu/144, and the removed constant
+eigenfunction -1.
+
+Non-squarefree levels are not available: their scattering matrices have cusps not related
+by Atkin-Lehner involutions, and the project has no checked formula for their determinant.
+
+Counts per symmetry class (parity, Atkin-Lehner signs) are **not** provided: the
+lower-order terms of the split are not known to the project in a checked form, so only
+the total over all classes is returned.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Sequence
+
+import mpmath
+import numpy as np
+
+from maasscomp.errors import InputError
+
+__all__ = [
+    "weyl_count",
+    "weyl_density",
+    "expected_in_window",
+    "weyl_constant",
+    "CompletenessWindow",
+    "CompletenessReport",
+    "completeness",
+]
+
+
+# --------------------------------------------------------------------------- level data
+
+
+@dataclass(frozen=True)
+class _LevelData:
+    level: int
+    primes: tuple[int, ...]
+    mu: int  # index [SL2(Z) : Gamma0(N)]
+    h: int  # number of cusps
+    nu2: int
+    nu3: int
+
+
+def _prime_factors(n: int) -> dict[int, int]:
+    out: dict[int, int] = {}
+    d = 2
+    while d * d <= n:
+        while n % d == 0:
+            out[d] = out.get(d, 0) + 1
+            n //= d
+        d += 1
+    if n > 1:
+        out[n] = out.get(n, 0) + 1
+    return out
+
+
+def _kronecker_minus4(p: int) -> int:
+    # (-4/p) for a prime p: 0 at p = 2, +1 for p = 1 mod 4, -1 for p = 3 mod 4
+    if p == 2:
+        return 0
+    return 1 if p % 4 == 1 else -1
+
+
+def _kronecker_minus3(p: int) -> int:
+    # (-3/p) for a prime p: 0 at p = 3, +1 for p = 1 mod 3, -1 otherwise (incl. p = 2)
+    if p == 3:
+        return 0
+    return 1 if p % 3 == 1 else -1
+
+
+def _level_data(level: object) -> _LevelData:
+    """Index, cusps and elliptic points of Gamma0(N), N squarefree.
+
+    Shimura, *Introduction to the Arithmetic Theory of Automorphic Functions* (1971),
+    Prop. 1.43; Diamond & Shurman, *A First Course in Modular Forms* (2005), §3.9.
+    Computed here (not taken from :mod:`maasscomp.groups`) because only the squarefree
+    case is needed and the formulas are one line each.
+    """
+    if isinstance(level, bool) or not isinstance(level, (int, np.integer)):
+        raise InputError(f"level {level!r} is not allowed; use a positive integer")
+    N = int(level)
+    if N < 1:
+        raise InputError(f"level {N} is not allowed; use a positive integer")
+    fac = _prime_factors(N)
+    if any(e > 1 for e in fac.values()):
+        raise InputError(
+            f"Weyl's law for level {N} is not available: only squarefree levels are "
+            "supported (the scattering determinant of non-squarefree levels has no checked "
+            "formula in this project)"
+        )
+    primes = tuple(sorted(fac))
+    mu = 1
+    nu2 = 1
+    nu3 = 1
+    for p in primes:
+        mu *= p + 1
+        nu2 *= 1 + _kronecker_minus4(p)
+        nu3 *= 1 + _kronecker_minus3(p)
+    return _LevelData(N, primes, mu, 2 ** len(primes), nu2, nu3)
+
+
+def weyl_constant(level: int) -> float:
+    """Constant term of Weyl's law for Gamma0(level), squarefree level.
+
+    -mu/144 (identity) + nu2/8 + 2 nu3/9 (elliptic points, (m^2-1)/(12m) each)
+    - h/4 (cusps) - 1 (the constant eigenfunction).  Equals -131/144 for level 1.
+
+    Parameters
+    ----------
+    level : int
+        Squarefree positive integer N.
+
+    Returns
+    -------
+    float
+    """
+    d = _level_data(level)
+    return -d.mu / 144.0 + d.nu2 / 8.0 + 2.0 * d.nu3 / 9.0 - d.h / 4.0 - 1.0
+
+
+# --------------------------------------------------------------------------- oscillatory terms
+
+# sigma nodes for tracking arg zeta(sigma + it) from sigma = 2 (where |zeta - 1| < 1, so the
+# principal value is the continuous branch) down to sigma = 1; each step changes the
+# argument by much less than pi (|d arg/d sigma| = |Im zeta'/zeta| is O(log t) there).
+_SIGMA_PATH = (2.0, 1.6, 1.35, 1.18, 1.08, 1.0)
+
+# B_{2k}/(2k)! for k = 1..12, the Euler-Maclaurin coefficients (DLMF 24.2.1, 25.2.9)
+_EM_COEF = np.array(
+    [float(mpmath.bernoulli(2 * k) / mpmath.factorial(2 * k)) for k in range(1, 13)]
+)
+
+
+def _zeta_em(s: np.ndarray) -> np.ndarray:
+    """zeta(s) for Re s >= 1, s != 1, by Euler-Maclaurin summation (DLMF 25.2.9).
+
+    zeta(s) = sum_{n<N} n^{-s} + N^{1-s}/(s-1) + N^{-s}/2
+              + sum_{k=1}^{12} B_{2k}/(2k)! s(s+1)...(s+2k-2) N^{-s-2k+1} + E,
+    with N > |s|/2 + 20 so that successive correction terms shrink by about
+    (|s|/(2 pi N))^2 < 1/pi^2 and |E| < 1e-12 relative.  Vectorised over s; used
+    instead of mpmath because completeness reports need thousands of values.
+    """
+    s = np.asarray(s, dtype=complex)
+    out = np.empty_like(s)
+    flat = s.ravel()
+    res = out.ravel()
+    order = np.argsort(np.abs(flat.imag))
+    chunk = 256
+    for i0 in range(0, flat.size, chunk):
+        idx = order[i0 : i0 + chunk]
+        ss = flat[idx]
+        N = int(np.max(np.abs(ss)) / 2) + 20
+        logn = np.log(np.arange(1, N, dtype=float))
+        acc = np.zeros(ss.size, dtype=complex)
+        # sum in blocks to bound memory
+        for j0 in range(0, logn.size, 4096):
+            acc += np.exp(-np.outer(ss, logn[j0 : j0 + 4096])).sum(axis=1)
+        lnN = math.log(N)
+        NmS = np.exp(-ss * lnN)
+        acc += N * NmS / (ss - 1.0) + 0.5 * NmS
+        poch = ss.copy()  # s (s+1) ... (s + 2k - 2)
+        term_pow = NmS / N  # N^{-s-1}
+        for k, c in enumerate(_EM_COEF, start=1):
+            acc += c * poch * term_pow
+            poch = poch * (ss + 2 * k - 1) * (ss + 2 * k)
+            term_pow = term_pow / (N * N)
+        res[idx] = acc
+    return out
+
+
+def _arg_zeta_1_plus_it(t: np.ndarray) -> np.ndarray:
+    """Continuous branch of arg zeta(1 + it), zero at sigma -> +infinity (vectorised).
+
+    The branch is the one continuous on Re s >= 1 (zeta has no zeros there); it is
+    obtained by following the horizontal segment from 2 + it to 1 + it and adding
+    principal-value increments.  At t = 0 (the pole) the value 0 is returned.
+    """
+    t = np.asarray(t, dtype=float)
+    prev = _zeta_em(_SIGMA_PATH[0] + 1j * t)
+    total = np.angle(prev)
+    for sig in _SIGMA_PATH[1:]:
+        safe = np.where(t == 0, 1.0, t) if sig == 1.0 else t
+        cur = _zeta_em(sig + 1j * safe)
+        total = total + np.angle(cur / prev)
+        prev = cur
+    return np.where(t == 0, 0.0, total)
+
+
+def _zeta_logderiv_1_plus_it(t: float) -> complex:
+    with mpmath.workdps(20):
+        s = mpmath.mpc(1, t)
+        return complex(mpmath.zeta(s, derivative=1) / mpmath.zeta(s))
+
+
+def _as_T(T: float | np.ndarray, name: str = "T") -> tuple[np.ndarray, bool]:
+    arr = np.asarray(T, dtype=float)
+    scalar = arr.ndim == 0
+    arr = np.atleast_1d(arr)
+    if not np.all(np.isfinite(arr)) or np.any(arr < 0):
+        bad = arr[~(np.isfinite(arr) & (arr >= 0))][0]
+        raise InputError(f"{name} = {bad!r} is not allowed; use finite values >= 0")
+    return arr, scalar
+
+
+def _oscillatory(d: _LevelData, T: np.ndarray) -> np.ndarray:
+    """-(h/pi) arg zeta(1+2iT) - (h/(2pi)) sum_{p|N} arg(1 - p^{-1-2iT})."""
+    # unique values only: completeness reports evaluate window edges repeatedly
+    uniq, inv = np.unique(T, return_inverse=True)
+    az = _arg_zeta_1_plus_it(2.0 * uniq)[inv].reshape(T.shape)
+    out = -(d.h / math.pi) * az
+    for p in d.primes:
+        # principal value: |p^{-1-2iT}| < 1, so 1 - p^{-1-2iT} stays in the right half-plane
+        w = 1.0 - p ** (-1.0) * np.exp(-2j * T * math.log(p))
+        out -= (d.h / (2 * math.pi)) * np.angle(w)
+    return out
+
+
+# --------------------------------------------------------------------------- public API
+
+
+def weyl_count(
+    level: int, T: float | np.ndarray, *, oscillatory: bool = True
+) -> float | np.ndarray:
+    """Weyl's law with lower-order terms: expected number of cusp forms with R <= T.
+
+    For squarefree N (derived for N > 1, published for N = 1; see the module docstring)
+
+        W_N(T) = (mu/12) T^2 - (2hT/pi) log((T/e) sqrt(2N/pi)) + C_N
+                 - (h/pi) arg zeta(1+2iT) - (h/(2pi)) sum_{p|N} arg(1 - p^{-1-2iT}),
+
+    C_N = -mu/144 + nu2/8 + 2 nu3/9 - h/4 - 1.  For N = 1:
+    W(T) = T^2/12 - (2T/pi) log(T/(e sqrt(pi/2))) - 131/144 - (1/pi) arg zeta(1+2iT).
+    The count is the total over **all** symmetry classes (even and odd, all
+    Atkin-Lehner sign classes, oldforms with multiplicity); a split by class is not
+    provided because it is not verified.
+
+    Parameters
+    ----------
+    level : int
+        Squarefree level N >= 1.
+    T : float or ndarray
+        Spectral parameter(s) T >= 0.  The expansion is asymptotic: it is meaningful for
+        T above a few units.
+    oscillatory : bool, optional
+        Include the arg zeta and arg(1 - p^{-1-2iT}) terms (zeta by vectorised
+        Euler-Maclaurin summation, checked against mpmath in the tests).  Default True.
+
+    Returns
+    -------
+    float or ndarray
+        Same shape as ``T``.
+
+    Raises
+    ------
+    InputError
+        For non-squarefree or non-positive levels, negative or non-finite T.
+    """
+    d = _level_data(level)
+    t, scalar = _as_T(T)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        logterm = np.where(
+            t > 0, t * np.log(np.where(t > 0, t, 1.0) / math.e * math.sqrt(2 * d.level / math.pi)), 0.0
+        )
+    w = d.mu / 12.0 * t**2 - (2 * d.h / math.pi) * logterm + weyl_constant(level)
+    if oscillatory:
+        w = w + _oscillatory(d, t)
+    return float(w[0]) if scalar else w
+
+
+def weyl_density(
+    level: int, T: float | np.ndarray, *, oscillatory: bool = False
+) -> float | np.ndarray:
+    """Derivative dW_N/dT of :func:`weyl_count` (mean number of forms per unit of R).
+
+        W'_N(T) = (mu/6) T - (2h/pi) log(T sqrt(2N/pi))
+                  [ - (2h/pi) Re zeta'/zeta(1+2iT)
+                    - (h/pi) sum_{p|N} log p Re( p^{-1-2iT} / (1 - p^{-1-2iT}) ) ]
+
+    The bracket is included only when ``oscillatory`` is True (default False: the mean
+    density is what a scan-step rule needs).
+
+    Parameters
+    ----------
+    level : int
+        Squarefree level N >= 1.
+    T : float or ndarray
+        T > 0.
+    oscillatory : bool, optional
+        Include the derivative of the oscillating terms.
+
+    Returns
+    -------
+    float or ndarray
+    """
+    d = _level_data(level)
+    t, scalar = _as_T(T)
+    if np.any(t <= 0):
+        raise InputError("weyl_density needs T > 0 (the log T term is singular at 0)")
+    w = d.mu / 6.0 * t - (2 * d.h / math.pi) * np.log(t * math.sqrt(2 * d.level / math.pi))
+    if oscillatory:
+        uniq, inv = np.unique(t, return_inverse=True)
+        zl = np.array([_zeta_logderiv_1_plus_it(2.0 * x).real for x in uniq])[inv]
+        w = w - (2 * d.h / math.pi) * zl
+        for p in d.primes:
+            q = p ** (-1.0) * np.exp(-2j * t * math.log(p))
+            # d/dT arg(1 - q) with dq/dT = -2i log p q
+            w = w - (d.h / math.pi) * math.log(p) * np.real(q / (1.0 - q))
+    return float(w[0]) if scalar else w
+
+
+def expected_in_window(
+    level: int, T1: float | np.ndarray, T2: float | np.ndarray, *, oscillatory: bool = True
+) -> float | np.ndarray:
+    """Expected number of cusp forms (all classes) with T1 < R <= T2: W_N(T2) - W_N(T1).
+
+    Parameters
+    ----------
+    level : int
+        Squarefree level.
+    T1, T2 : float or ndarray
+        Window ends, 0 <= T1 <= T2 (broadcast together).
+    oscillatory : bool, optional
+        Passed to :func:`weyl_count`.
+
+    Returns
+    -------
+    float or ndarray
+    """
+    a, sa = _as_T(T1, "T1")
+    b, sb = _as_T(T2, "T2")
+    a, b = np.broadcast_arrays(a, b)
+    if np.any(b < a):
+        raise InputError("expected_in_window needs T1 <= T2")
+    both = np.concatenate([a.ravel(), b.ravel()])
+    w = weyl_count(level, both, oscillatory=oscillatory)
+    out = (w[a.size:] - w[: a.size]).reshape(a.shape)
+    return float(out[0]) if (sa and sb) else out
+
+
+# --------------------------------------------------------------------------- completeness
+
+
+@dataclass(frozen=True)
+class CompletenessWindow:
+    """One window of a completeness report.
+
+    Attributes
+    ----------
+    T_lo, T_hi : float
+        The window is T_lo < R <= T_hi.
+    found : int
+        Number of supplied eigenvalues in the window.
+    expected : float
+        W(T_hi) - W(T_lo).
+    deficit : float
+        expected - found.
+    remainder_end : float
+        Running remainder N(T_hi) - W(T_hi) (N counted from the supplied list).
+    flagged : bool
+        True if eigenvalues are probably missing in this window (rule in
+        :func:`completeness`).
+    """
+
+    T_lo: float
+    T_hi: float
+    found: int
+    expected: float
+    deficit: float
+    remainder_end: float
+    flagged: bool
+
+
+@dataclass(frozen=True)
+class CompletenessReport:
+    """Found-vs-expected table for a list of eigenvalues (see :func:`completeness`).
+
+    Attributes
+    ----------
+    level : int
+    T_min, T_max : float
+    windows : tuple of CompletenessWindow
+    R : ndarray
+        The supplied eigenvalues in (T_min, T_max], sorted.
+    remainder : ndarray
+        N(R_j) - W(R_j) at each R_j with the midpoint convention N(R_j) = (number below)
+        + (multiplicity at R_j)/2, which makes the remainder mean-zero for a complete list.
+    mean_remainder, rms_remainder : float
+        Mean and root mean square of ``remainder``.
+    bound : float
+        The remainder bound used for flags.
+    total_found : int
+    total_expected : float
+    oscillatory : bool
+    """
+
+    level: int
+    T_min: float
+    T_max: float
+    windows: tuple[CompletenessWindow, ...]
+    R: np.ndarray
+    remainder: np.ndarray
+    mean_remainder: float
+    rms_remainder: float
+    bound: float
+    total_found: int
+    total_expected: float
+    oscillatory: bool
+
+    @property
+    def flagged(self) -> tuple[CompletenessWindow, ...]:
+        """Windows where eigenvalues are probably missing."""
+        return tuple(w for w in self.windows if w.flagged)
+
+    @property
+    def is_complete(self) -> bool:
+        """True when no window is flagged (evidence, not proof, of completeness)."""
+        return not any(w.flagged for w in self.windows)
+
+    def as_text(self) -> str:
+        """A plain-text table, one line per window."""
+        lines = [
+            f"level {self.level}: {self.total_found} found, {self.total_expected:.2f} expected "
+            f"in ({self.T_min:g}, {self.T_max:g}]; remainder mean {self.mean_remainder:+.3f}, "
+            f"rms {self.rms_remainder:.3f}, flag bound {self.bound:.2f}",
+            f"{'T_lo':>10} {'T_hi':>10} {'found':>6} {'expected':>9} {'deficit':>8} "
+            f"{'N-W(end)':>9}  flag",
+        ]
+        for w in self.windows:
+            lines.append(
+                f"{w.T_lo:10.4f} {w.T_hi:10.4f} {w.found:6d} {w.expected:9.2f} "
+                f"{w.deficit:+8.2f} {w.remainder_end:+9.2f}  {'MISSING?' if w.flagged else ''}"
+            )
+        return "\n".join(lines)
+
+
+def completeness(
+    level: int,
+    found_R: Sequence[float] | np.ndarray,
+    T_min: float,
+    T_max: float,
+    window: float | Sequence[float] | None = None,
+    *,
+    count_below: int | None = None,
+    oscillatory: bool = True,
+    bound: float | None = None,
+) -> CompletenessReport:
+    """Compare a list of eigenvalues with Weyl's law, window by window.
+
+    Pure bookkeeping: no search is done.  The running remainder
+    S(T) = N(T) - W(T) of a complete list is a mean-zero quantity of size O(1) for the
+    heights this tool reaches (numerically |S| is a few tenths r.m.s. for T <= 25 on
+    SL2(Z); formulas ref. §2.2, and H. Then, arXiv:1212.3149, for its distribution at
+    large T).  A missing eigenvalue lowers S by 1 from its position on, and a window
+    with a missing eigenvalue shows a deficit (expected - found) of about 1 on top of the
+    remainder noise.
+
+    Flag rule (a window is flagged when both hold):
+
+    1. deficit >= 1/2, i.e. at least one eigenvalue is missing after rounding;
+    2. the running remainder at the window end is below -B, with
+       B = max(1/2, 2.5 * rms) where rms is the root mean square of S over the
+       supplied eigenvalues **before** the window (the rms of the whole list would be
+       inflated by the missing eigenvalue itself) and at least 3 of them are needed;
+       otherwise B = 1/2 + 0.1 log(T) (a generous guess at the remainder size, as S
+       grows at most slowly).  ``bound`` overrides B.
+
+    Rule 2 distinguishes a persistent drop of S (something missing) from a window that
+    is merely sparse by fluctuation (S recovers).  With fewer than a handful of
+    eigenvalues per window the test is weak; read the table, not only the flags.
+
+    Parameters
+    ----------
+    level : int
+        Squarefree level (Weyl's law as in :func:`weyl_count`).
+    found_R : array_like
+        Eigenvalues found (all symmetry classes, each repeated by multiplicity).  Values
+        outside (T_min, T_max] are ignored apart from those <= T_min, which are counted
+        as ``count_below`` if that is not given.
+    T_min, T_max : float
+        Range of the report, 0 <= T_min < T_max.
+    window : float or sequence of float, optional
+        Window width, or explicit increasing edges from T_min to T_max.  Default: widths
+        chosen so that each window expects about 4 eigenvalues, and at least width 0.5.
+    count_below : int, optional
+        Number of eigenvalues with R <= T_min.  Default: the number of supplied values
+        <= T_min if T_min is below the first eigenvalue region or any are supplied;
+        if none are supplied and T_min > 0, W(T_min) is used (remainder measured
+        relative to T_min).
+    oscillatory : bool, optional
+        Use the oscillating terms of Weyl's law (default True).
+    bound : float, optional
+        Fixed remainder bound B for rule 2.
+
+    Returns
+    -------
+    CompletenessReport
+    """
+    d = _level_data(level)
+    if not (math.isfinite(T_min) and math.isfinite(T_max)) or T_min < 0 or T_max <= T_min:
+        raise InputError(f"need 0 <= T_min < T_max, got T_min={T_min!r}, T_max={T_max!r}")
+    Rall = np.sort(np.asarray(found_R, dtype=float).ravel())
+    if Rall.size and (not np.all(np.isfinite(Rall)) or Rall[0] <= 0):
+        raise InputError("found_R must contain finite positive spectral parameters R")
+    below = int(np.sum(Rall <= T_min))
+    R = Rall[(Rall > T_min) & (Rall <= T_max)]
+    W_min = float(weyl_count(level, T_min, oscillatory=oscillatory)) if T_min > 0 else 0.0
+    if count_below is not None:
+        base = float(count_below)
+    elif below > 0 or T_min == 0:
+        base = float(below)
+    else:
+        base = W_min
+
+    # window edges
+    if window is None:
+        dens = float(weyl_density(level, max(T_max, 1.0)))
+        width = max(0.5, 4.0 / max(dens, 1e-9))
+        n = max(1, int(math.ceil((T_max - T_min) / width)))
+        edges = np.linspace(T_min, T_max, n + 1)
+    elif np.ndim(window) == 0:
+        width = float(window)  # type: ignore[arg-type]
+        if not width > 0:
+            raise InputError(f"window width {window!r} is not allowed; use a positive number")
+        n = max(1, int(math.ceil((T_max - T_min) / width - 1e-12)))
+        edges = np.minimum(T_min + width * np.arange(n + 1), T_max)
+        edges[-1] = T_max
+    else:
+        edges = np.asarray(window, dtype=float)
+        if (
+            edges.ndim != 1
+            or edges.size < 2
+            or np.any(np.diff(edges) <= 0)
+            or not math.isclose(edges[0], T_min)
+            or not math.isclose(edges[-1], T_max)
+        ):
+            raise InputError("window edges must increase strictly from T_min to T_max")
+
+    W_edges = np.asarray(weyl_count(level, edges, oscillatory=oscillatory), dtype=float)
+    if T_min == 0:
+        W_edges[0] = 0.0
+
+    # midpoint remainder at each eigenvalue; equal values share the jump
+    if R.size:
+        W_R = np.asarray(weyl_count(level, R, oscillatory=oscillatory), dtype=float)
+        left = np.searchsorted(R, R, side="left")
+        right = np.searchsorted(R, R, side="right")
+        N_mid = base + 0.5 * (left + right)
+        S = N_mid - W_R
+        mean = float(np.mean(S))
+        rms = float(np.sqrt(np.mean(S**2)))
+    else:
+        W_R = np.zeros(0)
+        S = np.zeros(0)
+        mean = float("nan")
+        rms = float("nan")
+
+    windows = []
+    bounds_used = []
+    for k in range(edges.size - 1):
+        lo, hi = float(edges[k]), float(edges[k + 1])
+        found = int(np.sum((R > lo) & (R <= hi)))
+        expected = float(W_edges[k + 1] - W_edges[k])
+        deficit = expected - found
+        N_end = base + int(np.sum(R <= hi))
+        S_end = N_end - float(W_edges[k + 1])
+        if bound is not None:
+            B = float(bound)
+        else:
+            prev = S[R <= lo]
+            if prev.size >= 3:
+                B = max(0.5, 2.5 * float(np.sqrt(np.mean(prev**2))))
+            else:
+                B = 0.5 + 0.1 * math.log(max(hi, math.e))
+        bounds_used.append(B)
+        flagged = deficit >= 0.5 and S_end < -B
+        windows.append(CompletenessWindow(lo, hi, found, expected, deficit, S_end, flagged))
+
+    total_expected = float(W_edges[-1] - W_edges[0]) if T_min > 0 else float(W_edges[-1])
+    return CompletenessReport(
+        level=d.level,
+        T_min=float(T_min),
+        T_max=float(T_max),
+        windows=tuple(windows),
+        R=R,
+        remainder=S,
+        mean_remainder=mean,
+        rms_remainder=rms,
+        bound=float(max(bounds_used)) if bounds_used else float("nan"),
+        total_found=int(R.size),
+        total_expected=total_expected,
+        oscillatory=oscillatory,
+    )
