@@ -14,10 +14,18 @@ from maasscomp.hejhal.types import SolverParams, SymmetryClass
 class Form:
     """A Maass cusp form on Gamma0(level) with its verification data.
 
-    Normalisation (formulas ref., conventions): at every cusp j of width-normalised
-    coordinate, f(sigma_j z) = sum_{n>=1} c[j, n-1] sqrt(y) K_{iR}(2 pi n y) cs(2 pi n x)
-    with cs = cos (even) or sin (odd), and c[0, 0] = c_infinity(1) = 1, so that for a
-    Hecke newform c[0, n-1] is the Hecke eigenvalue lambda_f(n).
+    Normalisation (formulas ref., conventions): at every cusp j, with sigma_j the group's
+    scaling matrix (``gamma0(N).cusps[j].scaling`` divided by the square root of its
+    determinant),
+
+        f(sigma_j z) = sum_{n>=1} sqrt(y) K_{iR}(2 pi n y)
+                       [Re c[j, n-1] cs_par(2 pi n x) + Im c[j, n-1] cs_oth(2 pi n x)],
+
+    where cs_par = cos for even and sin for odd forms and cs_oth is the other one. A real
+    ``coeffs`` array means every cusp expansion is a pure cos (even) or sin (odd) series.
+    c[0, 0] = c_infinity(1) = 1, so that for a Hecke newform c[0, n-1] is the Hecke
+    eigenvalue lambda_f(n). The physical form carries the factor e^{-pi R/2} relative to
+    the sums in the scaled K-Bessel function Kt = e^{pi R/2} K_{iR} that the code uses.
 
     Attributes
     ----------
@@ -25,7 +33,7 @@ class Form:
     R : float
         Spectral parameter, lambda = 1/4 + R^2.
     symmetry : SymmetryClass
-    coeffs : ndarray, shape (n_cusps, M)
+    coeffs : ndarray, shape (n_cusps, M), real or complex
         c_j(n) for n = 1..M at each cusp (row 0 is infinity).
     coeff_errors : ndarray, shape (n_cusps, M)
         Estimated absolute error of each coefficient (difference between the two

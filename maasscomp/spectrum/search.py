@@ -136,12 +136,13 @@ def _root_near(system: HejhalSystem, R: float, width: float) -> float | None:
     return None
 
 
-def _store_height(group, R: float, n_coeffs: int, eps: float, Y1: float) -> float:
-    """A height whose truncation M0 is about 2 n_coeffs (coefficients up to ~M0/2 are
-    reliable in double precision, formulas ref. §1.3)."""
-    L = math.log(1.0 / eps)
-    x_cut = R + 3.0 * (1.5 * L / math.sqrt(2)) ** (2 / 3) * max(R, 1.0) ** (1 / 3) + L
-    return min(Y1, x_cut / (2 * math.pi * 2 * n_coeffs))
+def _store_height(R: float, n_coeffs: int, p1: SolverParams) -> float:
+    """A height whose truncation M0 is about 3 n_coeffs.
+
+    Coefficients up to about M0/3 are accurate to near the truncation target in double
+    precision (formulas ref. §1.3); M0 grows like 1/Y at fixed R.
+    """
+    return min(p1.Y, p1.Y * p1.M0 / (3.0 * n_coeffs))
 
 
 def search_window(
@@ -240,7 +241,7 @@ def _confirm(group, symmetry, Rc, sys1, sys2, settings: SearchSettings, step: fl
 
     # final solve at a height giving n_coeffs accurate coefficients, and a second height
     # for their error estimate
-    Ys = _store_height(group, Rc, settings.n_coeffs, settings.eps, sys1.params.Y)
+    Ys = _store_height(Rc, settings.n_coeffs, sys1.params)
     ps_a = choose_params(Rc + 0.5, Ys, settings.eps)
     ps_b = choose_params(Rc + 0.5, 0.9 * Ys, settings.eps)
     ca = HejhalSystem(group, symmetry, ps_a).solve(Rc)
@@ -248,7 +249,7 @@ def _confirm(group, symmetry, Rc, sys1, sys2, settings: SearchSettings, step: fl
     m = min(settings.n_coeffs, ca.size, cb.size)
     coeffs = ca[:m]
     errs = np.abs(ca[:m] - cb[:m])
-    hres = hecke_residual(coeffs, group.level, settings.hecke_nmax)
+    hres = hecke_residual(coeffs, group.level, min(settings.hecke_nmax, m))
     if hres > settings.hecke_tol:
         return False, f"Hecke residual {hres:.2e} above {settings.hecke_tol:.0e}", None
 
@@ -261,12 +262,15 @@ def _confirm(group, symmetry, Rc, sys1, sys2, settings: SearchSettings, step: fl
         al_res = atkin_lehner_residual(coeffs, group.level, al, settings.hecke_nmax)
         extra["atkin_lehner_residual"] = al_res
         is_new = bool(al_res < 1e-6)
+    # every cusp of a squarefree level is W_Q(infinity) with scaling W_Q/sqrt(Q), so its
+    # expansion is eps_Q times the one at infinity (formulas ref. §1.1)
+    cusp_sign = np.array([symmetry.al_sign(c.atkin_lehner_Q) for c in group.cusps], dtype=float)
     form = Form(
         level=group.level,
         R=float(Rc),
         symmetry=symmetry,
-        coeffs=coeffs[None, :],
-        coeff_errors=errs[None, :],
+        coeffs=cusp_sign[:, None] * coeffs[None, :],
+        coeff_errors=np.repeat(errs[None, :], len(cusp_sign), axis=0),
         R_error=float(max(dR, 1e-15 * Rc)),
         hecke_residual=hres,
         params=ps_a,
