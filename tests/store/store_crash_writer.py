@@ -1,0 +1,36 @@
+"""Writer process for the crash-safety test: appends indexed forms until it is killed.
+
+Usage: python store_crash_writer.py STORE START BATCH [COUNT]
+
+Writes forms START, START+1, ... in transactions of BATCH forms, printing ``ready`` once the
+store is open so the test kills it while it is writing, not while Python starts.
+"""
+
+from __future__ import annotations
+
+import sys
+
+
+def main() -> None:
+    from maasscomp.store import Store
+    from tests.store.store_form_factory import indexed_form
+
+    path, start, batch = sys.argv[1], int(sys.argv[2]), int(sys.argv[3])
+    count = int(sys.argv[4]) if len(sys.argv) > 4 else 10**9
+    with Store.open(path, "a") as st:
+        print("ready", flush=True)
+        i = start
+        while i < start + count:
+            chunk = [indexed_form(j) for j in range(i, i + batch)]
+            with st.transaction():
+                keys = st.add_forms(chunk)
+                st.mark_task_done(f"task{i}", keys, run_id="crash")
+            # attachments (and replacing one, which repacks the file) are killed too
+            if i % 2 == 0:
+                st.put_attachment(keys[0], "scan", {"i": i})
+                st.put_attachment(keys[0], "scan", {"i": i, "again": True})
+            i += batch
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,125 @@
+"""JSON and CSV exports parse back and agree with the store bit for bit."""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+
+import numpy as np
+import pytest
+
+from maasscomp.errors import InputError, StoreError
+from maasscomp.spectrum.form import Form
+from maasscomp.store import Store, export_csv, export_json
+from maasscomp.store.export import SUMMARY_COLUMNS
+from tests.store.store_form_factory import indexed_form, random_form
+
+
+def _from_json_float(x):
+    return float(x) if isinstance(x, str) else x  # "nan"/"inf" strings (strict JSON)
+
+
+@pytest.fixture
+def store(tmp_path):
+    rng = np.random.default_rng(99)
+    forms = [random_form(rng, M=int(rng.integers(3, 15))) for _ in range(8)]
+    f = forms[0]
+    forms[1] = Form(level=f.level, R=f.R + 1.0, symmetry=f.symmetry, coeffs=f.coeffs.copy(),
+                    coeff_errors=np.full_like(f.coeff_errors, np.nan), R_error=f.R_error,
+                    hecke_residual=math.inf, params=f.params, is_new=True, extra={})
+    p = tmp_path / "s.h5"
+    with Store.open(p, "a") as st:
+        rid = st.begin_run("demo-run", config_text="level = 6\n")
+        keys = st.add_forms(forms, config_text="level = 6\n", run_id=rid)
+        st.mark_task_done("t0", keys[:3], run_id=rid)
+        st.put_attachment(keys[2], "scan", {"peak": np.array([0.5, 1.25]), "sup": 2.0})
+    return p, keys, forms
+
+
+def test_json_export_parses_back_identical(store, tmp_path):
+    p, keys, forms = store
+    out = tmp_path / "o.json"
+    assert export_json(p, out, attachments=True) == len(forms)
+    doc = json.loads(out.read_text())  # strict JSON: no NaN tokens
+    assert doc["format"] == "maasscomp-export" and doc["store"]["schema_version"] == 1
+    assert doc["runs"]["demo-run"]["done_tasks"] == {"t0": keys[:3]}
+    assert [r["key"] for r in doc["forms"]] == keys
+    for rec, f in zip(doc["forms"], forms):
+        assert rec["level"] == f.level and rec["R"] == f.R
+        assert rec["symmetry"]["label"] == f.symmetry.label
+        assert [tuple(x) for x in rec["symmetry"]["al_signs"]] == list(f.symmetry.al_signs)
+        assert _from_json_float(rec["hecke_residual"]) == f.hecke_residual
+        assert rec["solver"] == f.params.as_dict() and rec["is_new"] is f.is_new
+        assert rec["provenance"]["config"] == "level = 6\n"
+        c = np.array(rec["coeffs"], dtype=float)
+        assert c.tobytes() == f.coeffs.tobytes()
+        e = np.array([[_from_json_float(x) for x in row] for row in rec["coeff_errors"]])
+        np.testing.assert_array_equal(e, f.coeff_errors)  # equal_nan by default
+    assert doc["forms"][1]["coeff_errors"][0][0] == "nan"
+    assert doc["forms"][2]["attachments"]["scan"] == {"peak": [0.5, 1.25], "sup": 2.0}
+    assert "attachments" not in json.loads(_export(p, tmp_path, keys[:1]))["forms"][0]
+
+
+def _export(p, tmp_path, keys):
+    out = tmp_path / "sub.json"
+    export_json(p, out, keys=keys)
+    return out.read_text()
+
+
+def test_json_export_of_selected_keys_and_missing_key(store, tmp_path):
+    p, keys, _ = store
+    doc = json.loads(_export(p, tmp_path, [keys[3], keys[0]]))
+    assert [r["key"] for r in doc["forms"]] == [keys[3], keys[0]]
+    out = tmp_path / "keep.json"
+    out.write_text("old")
+    with pytest.raises(StoreError, match="no form with key 'N0_x'"):
+        export_json(p, out, keys=["N0_x"])
+    assert out.read_text() == "old"  # a failed export leaves the old file untouched
+
+
+def test_csv_exports_parse_back(store, tmp_path):
+    p, keys, forms = store
+    out, long = tmp_path / "o.csv", tmp_path / "c.csv"
+    assert export_csv(p, out, n_coeffs=6, coeffs_path=long) == len(forms)
+    with open(out, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert list(rows[0]) == list(SUMMARY_COLUMNS) + [f"c{n}" for n in range(1, 7)]
+    for r, k, f in zip(rows, keys, forms):
+        assert r["key"] == k and int(r["level"]) == f.level and r["symmetry"] == f.symmetry.label
+        assert float(r["R"]) == f.R and float(r["R_error"]) == f.R_error
+        assert float(r["hecke_residual"]) == f.hecke_residual
+        assert r["is_new"] == {True: "true", False: "false", None: ""}[f.is_new]
+        signs = [tuple(int(x) for x in t.split(":")) for t in r["al_signs"].split(";") if t]
+        assert signs == list(f.symmetry.al_signs)
+        assert int(r["M"]) == f.coeffs.shape[1] and int(r["n_cusps"]) == f.coeffs.shape[0]
+        for n in range(1, 7):
+            cell = r[f"c{n}"]
+            if n <= f.coeffs.shape[1]:
+                assert float(cell) == f.coeffs[0, n - 1]
+            else:
+                assert cell == ""
+        json.loads(r["extra"])
+    with open(long, newline="") as fh:
+        crow = list(csv.DictReader(fh))
+    assert len(crow) == sum(f.coeffs.size for f in forms)
+    by_key = dict(zip(keys, forms))
+    for r in crow:
+        f = by_key[r["key"]]
+        j, n = int(r["cusp"]), int(r["n"])
+        assert float(r["c"]) == f.coeffs[j, n - 1]
+        err = float(r["error"])
+        assert err == f.coeff_errors[j, n - 1] or (math.isnan(err) and math.isnan(f.coeff_errors[j, n - 1]))
+
+
+def test_csv_bad_n_coeffs(store, tmp_path):
+    p, _, _ = store
+    with pytest.raises(InputError, match="n_coeffs -1"):
+        export_csv(p, tmp_path / "o.csv", n_coeffs=-1)
+
+
+def test_exports_leave_no_temporaries(store, tmp_path):
+    p, _, _ = store
+    export_json(p, tmp_path / "a.json")
+    export_csv(p, tmp_path / "a.csv")
+    assert not [x for x in tmp_path.iterdir() if ".tmp." in x.name]

@@ -1,0 +1,291 @@
+"""Round trip, listing, duplicates, transactions, attachments and runs of the HDF5 store."""
+
+from __future__ import annotations
+
+import os
+
+import h5py
+import numpy as np
+import pytest
+
+from maasscomp.errors import InputError, StoreError
+from maasscomp.hejhal.types import SolverParams, SymmetryClass
+from maasscomp.spectrum.form import Form
+from maasscomp.store import Store, schema
+from tests.store.store_form_factory import assert_forms_equal, indexed_form, random_form
+
+
+@pytest.fixture
+def path(tmp_path):
+    return tmp_path / "forms.h5"
+
+
+def _with(form: Form, **kw) -> Form:
+    d = {k: getattr(form, k) for k in ("level", "R", "symmetry", "coeffs", "coeff_errors",
+                                       "R_error", "hecke_residual", "params", "is_new",
+                                       "multiplicity", "basis_index", "extra")}
+    d.update(kw)
+    return Form(**d)
+
+
+def test_random_forms_round_trip_bit_identical(path):
+    rng = np.random.default_rng(2024)
+    forms = [random_form(rng) for _ in range(25)]
+    forms.append(random_form(rng, level=6, M=200, complex_coeffs=True))
+    forms.append(random_form(rng, level=1, M=1))
+    cfg = '[search]\nlevel = 11\nR = [1.0, 10.0]\n# caf\u00e9\n'
+    with Store.open(path, "a") as st:
+        keys = st.add_forms(forms, config_text=cfg, on_duplicate="error")
+    assert len(set(keys)) == len(forms)
+    with Store.open(path, "r") as st:
+        assert st.keys() == keys
+        assert len(st) == len(forms)
+        for k, f in zip(keys, forms):
+            assert_forms_equal(st.get(k), f)
+            prov = st.provenance(k)
+            assert prov["config"] == cfg
+            assert prov["package_version"] == __import__("maasscomp").__version__
+            assert prov["created_utc"].endswith("Z") and "T" in prov["created_utc"]
+        for got, f in zip(st, forms):  # iteration yields forms in write order
+            assert_forms_equal(got, f)
+        meta = st.metadata
+        assert meta["format"] == "maasscomp-store" and meta["schema_version"] == 1
+
+
+def test_layout_matches_schema_module(path):
+    f = random_form(np.random.default_rng(5), level=6, with_al=True)
+    with Store.open(path, "a") as st:
+        (k,) = st.add_forms([f])
+    with h5py.File(path, "r") as h:
+        assert h.attrs[schema.ROOT_FORMAT] == schema.FORMAT_NAME
+        assert int(h.attrs[schema.ROOT_SCHEMA_VERSION]) == schema.SCHEMA_VERSION
+        g = h[schema.FORMS_GROUP][k]
+        assert g[schema.D_COEFFS].shape == f.coeffs.shape
+        assert g.attrs[schema.A_SYMMETRY_LABEL] == f.symmetry.label
+        assert g[schema.D_AL_SIGNS].shape == (2, 2)
+        assert set(g.attrs) >= {schema.A_LEVEL, schema.A_R, schema.A_SOLVER_Y, schema.A_IS_NEW}
+
+
+def test_keys_are_readable_and_unique(path):
+    f = _with(indexed_form(0), level=6, symmetry=SymmetryClass("even", ((2, 1), (3, -1))),
+              R=9.533695261353)
+    with Store.open(path, "a") as st:
+        k1 = st.add_form(f)
+        # same name but a different basis index is not a duplicate -> suffix _b1
+        k2 = st.add_form(_with(f, multiplicity=2, basis_index=1))
+        # same key base, R differs below the printed digits but above the tolerance
+        k3 = st.add_form(_with(f, R=f.R + 2e-11), tol=1e-12)
+    assert k1 == "N6_even_2p_3m_R9.5336952614"
+    assert k2 == "N6_even_2p_3m_R9.5336952614_b1"
+    assert k3 == "N6_even_2p_3m_R9.5336952614_v2"
+
+
+def test_filters_and_summary_rows(path):
+    rng = np.random.default_rng(7)
+    forms = [random_form(rng, M=12) for _ in range(30)]
+    with Store.open(path, "a") as st:
+        keys = st.add_forms(forms)
+        got = st.forms(level=6, parity="odd", R_min=5.0, R_max=30.0)
+        want = [f for f in forms if f.level == 6 and f.parity == "odd" and 5.0 <= f.R <= 30.0]
+        assert [g.R for g in got] == [f.R for f in want]
+        assert len(st.forms()) == 30
+        assert st.select(symmetry=forms[0].symmetry.label)[0] == keys[0]
+        rows = st.summary_rows(n_coeffs=4)
+    assert [r["key"] for r in rows] == keys
+    for r, f in zip(rows, forms):
+        assert r["level"] == f.level and r["R"] == f.R and r["symmetry"] == f.symmetry.label
+        assert r["R_error"] == f.R_error and r["hecke_residual"] == f.hecke_residual
+        assert r["is_new"] is f.is_new and r["multiplicity"] == f.multiplicity
+        assert [r[f"c{n}"] for n in range(1, 5)] == f.coeffs[0, :4].tolist()
+    with Store.open(path) as st, pytest.raises(InputError, match="parity 'up'"):
+        st.forms(parity="up")
+
+
+def test_duplicates_skip_replace_error(path):
+    f = indexed_form(3)
+    near = _with(f, R=f.R + 1e-9, hecke_residual=1e-3)
+    with Store.open(path, "a") as st:
+        (k,) = st.add_forms([f])
+        assert st.find_duplicate(near) == k
+        assert st.find_duplicate(near, tol=1e-10) is None
+        assert st.find_duplicate(_with(f, basis_index=1, multiplicity=2)) is None
+        assert st.find_duplicate(_with(f, symmetry=SymmetryClass("odd" if f.parity == "even" else "even", f.symmetry.al_signs))) is None
+        with pytest.raises(StoreError, match=f"duplicates stored form '{k}'"):
+            st.add_forms([near])
+        assert st.add_forms([near], on_duplicate="skip") == [k]
+        assert st.get(k).hecke_residual == f.hecke_residual
+        st.put_attachment(k, "scan", {"x": np.arange(3)})
+        (k2,) = st.add_forms([near], on_duplicate="replace")
+        assert len(st) == 1 and st.get(k2).hecke_residual == 1e-3
+        assert st.attachments(k2) == []
+        # a duplicate inside one batch is seen too
+        assert len(st.add_forms([indexed_form(4), indexed_form(4)], on_duplicate="skip")) == 2
+        assert len(st) == 2
+        with pytest.raises(InputError, match="on_duplicate 'ignore'"):
+            st.add_forms([f], on_duplicate="ignore")
+
+
+def test_failed_batch_writes_nothing(path):
+    with Store.open(path, "a") as st:
+        st.add_forms([indexed_form(0)])
+        with pytest.raises(StoreError):
+            st.add_forms([indexed_form(1), indexed_form(2), indexed_form(0)])
+        assert len(st) == 1
+        with pytest.raises(RuntimeError):
+            with st.transaction():
+                st.add_forms([indexed_form(5)])
+                st.mark_task_done("t5", st.keys()[-1:], run_id="r")
+                raise RuntimeError("boom")
+        assert len(st) == 1 and st.done_tasks("r") == {}
+        # an error caught inside a transaction block still voids the block
+        with pytest.raises(StoreError, match="rolled back"):
+            with st.transaction():
+                st.add_forms([indexed_form(6)])
+                with pytest.raises(StoreError):
+                    st.add_forms([indexed_form(0)])
+                with pytest.raises(StoreError, match="rolled back"):
+                    st.add_forms([indexed_form(7)])
+        assert len(st) == 1
+    with Store.open(path) as st:
+        assert len(st) == 1
+    assert not [p for p in path.parent.iterdir() if ".tmp." in p.name]
+
+
+def test_transaction_commits_once_and_nests(path):
+    with Store.open(path, "a") as st:
+        with st.transaction():
+            keys = st.add_forms([indexed_form(i) for i in range(3)])
+            with st.transaction():
+                keys += st.add_forms([indexed_form(3)])
+            st.mark_task_done("task-A", keys, run_id="run1")
+            # not yet visible to an independent reader
+            with Store.open(path) as other:
+                assert len(other) == 0
+            assert len(st) == 4  # but visible inside the transaction
+        with Store.open(path) as other:
+            assert len(other) == 4 and other.done_tasks("run1") == {"task-A": keys}
+
+
+def test_attachments_round_trip(path):
+    with Store.open(path, "a") as st:
+        (k,) = st.add_forms([indexed_form(1)])
+        data = {"peaks_z": np.array([0.1 + 2j, -0.3 + 0.9j]), "values": np.arange(6.0).reshape(2, 3),
+                "sup": 3.25, "n": 17, "ok": True, "where": "cusp 0", "missing": None,
+                "grid": {"nx": 64, "x": np.linspace(0, 1, 5).astype(np.float32)}}
+        st.put_attachment(k, "scan", data)
+        with pytest.raises(StoreError, match="already has attachment 'scan'"):
+            st.put_attachment(k, "scan", data, overwrite=False)
+        with pytest.raises(InputError, match="attachment name 'a/b'"):
+            st.put_attachment(k, "a/b", data)
+        with pytest.raises(InputError, match="cannot be stored"):
+            st.put_attachment(k, "bad", {"obj": object()})
+    with Store.open(path) as st:
+        got = st.get_attachment(k, "scan")
+        assert st.attachments(k) == ["scan"]
+        with pytest.raises(StoreError, match="has no attachment 'norm'; it has scan"):
+            st.get_attachment(k, "norm")
+    assert got.keys() == data.keys()
+    for name in ("peaks_z", "values"):
+        assert got[name].dtype == data[name].dtype and got[name].tobytes() == data[name].tobytes()
+    assert got["grid"]["x"].dtype == np.float32 and got["grid"]["nx"] == 64
+    assert got["sup"] == 3.25 and got["n"] == 17 and got["ok"] is True
+    assert got["where"] == "cusp 0" and got["missing"] is None
+
+
+def test_replacing_attachments_does_not_grow_the_file(path):
+    with Store.open(path, "a") as st:
+        (k,) = st.add_forms([indexed_form(1)])
+        st.put_attachment(k, "scan", {"v": np.zeros(20_000)})
+        size1 = os.path.getsize(path)
+        for i in range(6):
+            st.put_attachment(k, "scan", {"v": np.full(20_000, float(i))})
+        assert os.path.getsize(path) <= size1 * 1.1
+        assert st.get_attachment(k, "scan")["v"][0] == 5.0
+
+
+def test_runs_and_task_manifest(path):
+    with Store.open(path, "a") as st:
+        rid = st.begin_run(config_text="level = 1\n")
+        assert st.begin_run(rid, config_text="changed") == rid  # resuming keeps the record
+        keys = st.add_forms([indexed_form(i) for i in range(2)], run_id=rid)
+        st.mark_task_done("level=1/even/R=[0,5]", keys, run_id=rid)
+        st.mark_task_done("level=1/odd/R=[0,5]", [], run_id=rid)
+        with pytest.raises(StoreError, match="no form with key 'nope'"):
+            st.mark_task_done("t", ["nope"], run_id=rid)
+    with Store.open(path) as st:
+        assert st.runs() == [rid]
+        info = st.run_info(rid)
+        assert info["config"] == "level = 1\n" and info["n_tasks_done"] == 2
+        assert st.done_tasks(rid) == {"level=1/even/R=[0,5]": keys, "level=1/odd/R=[0,5]": []}
+        assert st.done_tasks("other") == {}
+        assert st.provenance(keys[0])["run_id"] == rid
+        with pytest.raises(StoreError, match="no run 'zz'"):
+            st.run_info("zz")
+
+
+def test_bad_input_is_refused_with_clear_errors(path):
+    f = indexed_form(0)
+    with Store.open(path, "a") as st:
+        with pytest.raises(InputError, match=r"Form.coeffs .*2-d"):
+            st.add_forms([_with(f, coeffs=f.coeffs[0])])
+        with pytest.raises(InputError, match="does not match"):
+            st.add_forms([_with(f, coeff_errors=f.coeff_errors[:, :3])])
+        with pytest.raises(InputError, match=r"extra\['x'\]\[1\]: value of type set"):
+            st.add_forms([_with(f, extra={"x": [1, {2}]})])
+        with pytest.raises(InputError, match="keys must be str"):
+            st.add_forms([_with(f, extra={1: 2})])
+        with pytest.raises(InputError, match="dtype <U1"):
+            st.add_forms([_with(f, extra={"s": np.array(["a"])})])
+        with pytest.raises(InputError, match="Form.level 0"):
+            st.add_forms([_with(f, level=0)])
+        with pytest.raises(InputError, match="Form.R nan"):
+            st.add_forms([_with(f, R=float("nan"))])
+        assert len(st) == 0
+    with pytest.raises(InputError, match="store mode 'x'"):
+        Store.open(path, "x")
+    with Store.open(path, "r") as st, pytest.raises(StoreError, match="read-only"):
+        st.add_forms([f])
+
+
+def test_second_writer_is_locked_out_and_readers_see_snapshots(path):
+    with Store.open(path, "a") as w:
+        w.add_forms([indexed_form(0)])
+        with pytest.raises(StoreError, match="open for writing by another process"):
+            Store.open(path, "a")
+        r = Store.open(path, "r")
+        w.add_forms([indexed_form(1), indexed_form(2)])
+        assert len(r) == 1  # the reader's snapshot is unchanged ...
+        assert_forms_equal(r.get(r.keys()[0]), indexed_form(0))
+        r.close()
+        with Store.open(path, "r") as r2:  # ... a new reader sees the commit
+            assert len(r2) == 3
+    with Store.open(path, "a") as w2:  # the lock is released on close
+        assert len(w2) == 3
+
+
+def test_mode_w_starts_empty_but_never_clobbers_foreign_files(path, tmp_path):
+    with Store.open(path, "a") as st:
+        st.add_forms([indexed_form(0)])
+    with Store.open(path, "w") as st:
+        assert len(st) == 0
+    foreign = tmp_path / "foreign.h5"
+    with h5py.File(foreign, "w") as h:
+        h["data"] = np.arange(3)
+    before = foreign.read_bytes()
+    for mode in ("a", "w"):
+        with pytest.raises(StoreError, match="not a maasscomp store"):
+            Store.open(foreign, mode)
+    assert foreign.read_bytes() == before
+
+
+def test_stale_temporary_is_cleaned_on_next_write_open(path):
+    with Store.open(path, "a") as st:
+        st.add_forms([indexed_form(0)])
+    stale = path.with_name(f".{path.name}.tmp.99999.deadbeef")
+    stale.write_bytes(b"half-written")
+    with Store.open(path, "r") as st:  # readers ignore it
+        assert len(st) == 1
+    assert stale.exists()
+    with Store.open(path, "a") as st:
+        assert len(st) == 1
+    assert not stale.exists()
