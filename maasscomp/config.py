@@ -22,7 +22,7 @@ PARITIES = ("even", "odd")
 # (section, key, type name, default, meaning)
 KEYS: list[tuple[str, str, str, Any, str]] = [
     ("job", "name", "string", "job", "Name of the study, recorded in the store."),
-    ("job", "output", "path", None, "HDF5 store to write (relative paths are taken relative to the config file). Required."),
+    ("job", "output", "path", None, "HDF5 store to write (a relative path is taken relative to the working directory). Required."),
     ("search", "levels", "list of int", [1], "Levels N of Gamma0(N) to search."),
     ("search", "R_min", "float", None, "Lower end of the R window (R > 0, lambda = 1/4 + R^2). Required."),
     ("search", "R_max", "float", None, "Upper end of the R window (R_max > R_min). Required."),
@@ -168,4 +168,4 @@ def load(path: str | Path) -> Config:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{p}: not valid TOML ({exc})") from None
-    return parse(data, base_dir=p.parent, source_text=text, source_path=p)
+    return parse(data, source_text=text, source_path=p)
