@@ -28,7 +28,8 @@ from maasscomp.hejhal.params import choose_params
 from maasscomp.hejhal.system import HejhalSystem
 from maasscomp.hejhal.types import SolverParams, SymmetryClass
 from maasscomp.spectrum.form import Form
-from maasscomp.spectrum.hecke import atkin_lehner_residual, hecke_residual
+from maasscomp.spectrum.classify import classify
+from maasscomp.spectrum.hecke import hecke_residual
 
 
 @dataclass(frozen=True)
@@ -255,13 +256,21 @@ def _confirm(group, symmetry, Rc, sys1, sys2, settings: SearchSettings, step: fl
 
     al = dict(symmetry.al_signs)
     extra: dict = {"al_signs": {str(p): s for p, s in al.items()}}
-    is_new: bool | None
     if group.level == 1:
         is_new = True
     else:
-        al_res = atkin_lehner_residual(coeffs, group.level, al, settings.hecke_nmax)
-        extra["atkin_lehner_residual"] = al_res
-        is_new = bool(al_res < 1e-6)
+        cl = classify(group.level, symmetry, Rc, coeffs)
+        is_new = cl.is_new
+        extra["atkin_lehner_residual"] = cl.newform_residual
+        if not cl.is_new:
+            extra["old_from_level"] = cl.old_from_level
+            extra["old_relation_residual"] = cl.old_relation_residual
+        elif cl.newform_residual > 1e-6:
+            # confirmed eigenvalue, but neither old nor a clean newform: keep it unlabelled
+            is_new = None
+            extra["classification_note"] = (
+                f"not an eigenvalue at a divisor level, yet c(p) = -eps_p/sqrt(p) fails by "
+                f"{cl.newform_residual:.2e}")
     # every cusp of a squarefree level is W_Q(infinity) with scaling W_Q/sqrt(Q), so its
     # expansion is eps_Q times the one at infinity (formulas ref. §1.1)
     cusp_sign = np.array([symmetry.al_sign(c.atkin_lehner_Q) for c in group.cusps], dtype=float)

@@ -1,0 +1,85 @@
+"""New/old classification of forms of squarefree level.
+
+Theory (Atkin & Lehner, Math. Ann. 185 (1970); the Maass case is common practice): the cusp
+forms of Gamma0(N) at a given R are spanned by newforms of level N and by g(dz), d | N/M, for
+newforms g of proper divisor levels M. For squarefree N an oldform of the Atkin--Lehner class
+(eps_p) is g(z) + sum over d of eps_d sqrt(d)-weighted lifts, whose coefficients satisfy
+c(p) = a_g(p) + eps_p sqrt(p) for p | N/M; a newform satisfies c(p) = -eps_p / sqrt(p) for p | N.
+
+:func:`classify` decides by solving the Hejhal system of the divisor levels at the form's R:
+R is an eigenvalue at level M when the two-height solutions of the restricted class agree.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from maasscomp.hejhal.params import choose_params
+from maasscomp.hejhal.system import HejhalSystem
+from maasscomp.hejhal.types import SymmetryClass
+
+
+@dataclass(frozen=True)
+class Classification:
+    """Outcome of :func:`classify`."""
+
+    is_new: bool
+    old_from_level: int | None  # smallest level M < N at which R is an eigenvalue
+    old_relation_residual: float | None  # max_p |c(p) - a_g(p) - eps_p sqrt p| over p | N/M
+    newform_residual: float  # max_p |c(p) + eps_p / sqrt p| over p | N
+
+
+def _divisors(n: int) -> list[int]:
+    return [d for d in range(1, n + 1) if n % d == 0]
+
+
+def eigen_at_level(M: int, parity: str, al_signs: dict[int, int], R: float, *, tol: float = 1e-7,
+                   eps: float = 1e-14) -> np.ndarray | None:
+    """Coefficients a(1..) of an eigenform at level M, class (parity, al_signs|M), at R — or None.
+
+    R must be known to about 1e-10; the test is that the normalised solutions at two heights
+    agree to ``tol`` in a(2..6).
+    """
+    from maasscomp.groups import gamma0
+
+    g = gamma0(M)
+    sym = SymmetryClass(parity, tuple((p, al_signs[p]) for p in sorted(g.primes)))
+    Y0 = g.fundamental_domain_height
+    sols = []
+    for frac in (0.9, 0.75):
+        p = choose_params(R + 0.5, frac * Y0, eps)
+        sols.append(HejhalSystem(g, sym, p).solve(R))
+    k = min(7, sols[0].size, sols[1].size)
+    if np.all(np.isfinite(sols[0][:k])) and np.max(np.abs(sols[0][1:k] - sols[1][1:k])) < tol:
+        return sols[0]
+    return None
+
+
+def classify(level: int, symmetry: SymmetryClass, R: float, coeffs: np.ndarray) -> Classification:
+    """Classify a confirmed form of squarefree ``level`` as new or old.
+
+    Parameters
+    ----------
+    level : int
+    symmetry : SymmetryClass
+        With one Atkin--Lehner sign per prime dividing the level.
+    R : float
+    coeffs : ndarray
+        c(1..) at infinity, c(1) = 1.
+    """
+    signs = dict(symmetry.al_signs)
+    primes = sorted(signs)
+    new_res = max((abs(coeffs[p - 1] + signs[p] / math.sqrt(p)) for p in primes if p <= coeffs.size), default=0.0)
+    for M in _divisors(level)[:-1]:
+        ag = eigen_at_level(M, symmetry.parity, signs, R)
+        if ag is None:
+            continue
+        rel = max(
+            (abs(coeffs[p - 1] - ag[p - 1] - signs[p] * math.sqrt(p)) for p in primes if M % p and p <= min(ag.size, coeffs.size)),
+            default=0.0,
+        )
+        return Classification(False, M, float(rel), float(new_res))
+    return Classification(True, None, None, float(new_res))
