@@ -123,27 +123,40 @@ class HejhalSystem:
         inv = (2.0 / self.params.Q) * self._cs(TWO_PI * np.outer(n, s.x))
         return out, inv
 
-    def matrix(self, R: float) -> np.ndarray:
-        """The square matrix A(R) of size M0 (singular at eigenvalues of the class)."""
+    def matrix(self, R: float, *, exceptional: bool = False) -> np.ndarray:
+        """The square matrix A(R) of size M0 (singular at eigenvalues of the class).
+
+        With ``exceptional=True`` the argument is t in (0, 1/2) and the system is built for
+        lambda = 1/4 - t^2 (spectral parameter R = i t) with K_t of real order
+        (scipy.special.kv), to search for exceptional eigenvalues below 1/4.
+        """
         s = self.samples
         M0 = self.params.M0
         n = np.arange(1, M0 + 1)
         out, inv = self._phases
-        kb = np.sqrt(s.ys)[:, None] * ktilde(R, (TWO_PI * s.ys)[:, None] * n[None, :])
+        if exceptional:
+            if not (0 < R < 0.5):
+                raise InputError(f"t={R!r} is not allowed for an exceptional system; it must lie in (0, 1/2)")
+            from scipy.special import kv
+
+            kfun = lambda x: kv(R, x)  # noqa: E731
+        else:
+            kfun = lambda x: ktilde(R, x)  # noqa: E731
+        kb = np.sqrt(s.ys)[:, None] * kfun((TWO_PI * s.ys)[:, None] * n[None, :])
         V = inv @ (kb * out)
-        diag = np.sqrt(s.Y) * ktilde(R, TWO_PI * s.Y * n)
+        diag = np.sqrt(s.Y) * kfun(TWO_PI * s.Y * n)
         A = -V
         A[np.diag_indices(M0)] += diag
         return A
 
-    def log_det(self, R: float) -> tuple[float, float]:
+    def log_det(self, R: float, *, exceptional: bool = False) -> tuple[float, float]:
         """Sign and log|det A(R)| (formulas ref. §1.4: the sign changes at eigenvalues)."""
-        sign, logdet = np.linalg.slogdet(self.matrix(R))
+        sign, logdet = np.linalg.slogdet(self.matrix(R, exceptional=exceptional))
         return float(sign), float(logdet)
 
-    def solve(self, R: float) -> np.ndarray:
+    def solve(self, R: float, *, exceptional: bool = False) -> np.ndarray:
         """Coefficients a(1..M0) with a(1) = 1 (the n = 1 equation is dropped)."""
-        A = self.matrix(R)
+        A = self.matrix(R, exceptional=exceptional)
         try:
             rest = np.linalg.solve(A[1:, 1:], -A[1:, 0])
         except np.linalg.LinAlgError:

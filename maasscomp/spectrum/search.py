@@ -287,3 +287,37 @@ def _confirm(group, symmetry, Rc, sys1, sys2, settings: SearchSettings, step: fl
         extra=extra,
     )
     return True, "confirmed", form
+
+
+def search_exceptional(group, symmetry: SymmetryClass, settings: SearchSettings | None = None,
+                       *, n_grid: int = 400) -> SearchResult:
+    """Search for exceptional eigenvalues lambda = 1/4 - t^2, t in (0, 1/2), of one class.
+
+    The same determinant-sign scan and two-height confirmation as :func:`search_window`,
+    on the system built with K_t of real order. Selberg's eigenvalue conjecture predicts
+    none for congruence groups; it is proved for small levels (Huxley 1985; for squarefree
+    N < 857 by Booker and Strömbergsson 2007 -- from memory), so every confirmed root here
+    would be a failure of the solver. The returned forms carry R = t (read lambda = 1/4 - t^2).
+    """
+    settings = settings or SearchSettings()
+    Y0 = group.fundamental_domain_height
+    p1 = choose_params(1.0, settings.Y1_frac * Y0, settings.eps)
+    p2 = choose_params(1.0, settings.Y2_frac * Y0, settings.eps)
+    sys1 = HejhalSystem(group, symmetry, p1)
+    sys2 = HejhalSystem(group, symmetry, p2)
+    grid = np.linspace(0.002, 0.498, n_grid)
+    signs = np.array([sys1.log_det(float(t), exceptional=True)[0] for t in grid])
+    candidates: list[Candidate] = []
+    for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
+        def g(t: float) -> float:
+            s, ld = sys1.log_det(t, exceptional=True)
+            return s * math.exp(max(ld - 50.0, -700.0))
+
+        tc = float(brentq(g, grid[i], grid[i + 1], xtol=1e-14))
+        a1 = sys1.solve(tc, exceptional=True)
+        a2 = sys2.solve(tc, exceptional=True)
+        d = float(np.max(np.abs(a1[1:6] - a2[1:6])))
+        ok = bool(np.isfinite(d) and d < settings.coeff_tol)
+        candidates.append(Candidate(R=tc, accepted=ok, reason="confirmed" if ok else f"coefficients at Y1 and Y2 differ by {d:.2e}"))
+    return SearchResult(level=group.level, symmetry=symmetry, R_min=0.0, R_max=0.5, forms=(),
+                        candidates=tuple(candidates), grid_step=float(grid[1] - grid[0]), params=p1)
