@@ -309,9 +309,12 @@ def search_exceptional(group, symmetry: SymmetryClass, settings: SearchSettings 
     signs = np.array([sys1.log_det(float(t), exceptional=True)[0] for t in grid])
     candidates: list[Candidate] = []
     for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
-        def g(t: float) -> float:
+        ref = max(sys1.log_det(float(grid[i]), exceptional=True)[1],
+                  sys1.log_det(float(grid[i + 1]), exceptional=True)[1])
+
+        def g(t: float, ref: float = ref) -> float:
             s, ld = sys1.log_det(t, exceptional=True)
-            return s * math.exp(max(ld - 50.0, -700.0))
+            return s * math.exp(max(ld - ref, -700.0))
 
         tc = float(brentq(g, grid[i], grid[i + 1], xtol=1e-14))
         a1 = sys1.solve(tc, exceptional=True)

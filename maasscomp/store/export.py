@@ -3,7 +3,9 @@
 Floats are written with Python's ``repr``, the shortest decimal string that reads back
 to the same double, so exported numbers parse back bit-identical.  Strict JSON has no
 token for nan/inf; they are written as the strings ``"nan"``, ``"inf"``, ``"-inf"``
-(in CSV they appear as ``nan``, ``inf``, ``-inf``, which ``float()`` reads).
+(in CSV they appear as ``nan``, ``inf``, ``-inf``, which ``float()`` reads).  Complex
+coefficients are ``{"re": .., "im": ..}`` objects in JSON and Python literals such as
+``(0.5-1.25j)`` in CSV, which ``complex()`` reads.
 """
 
 from __future__ import annotations

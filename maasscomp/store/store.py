@@ -62,6 +62,11 @@ class _Entry:
     basis_index: int
     seq: int
 
+    @property
+    def bucket(self) -> tuple[int, str, int]:
+        """Forms that can duplicate each other share (level, symmetry label, basis index)."""
+        return (self.level, self.label, self.basis_index)
+
 
 def _attr_str(v: Any) -> str:
     return v.decode("utf-8") if isinstance(v, bytes) else str(v)
@@ -194,6 +199,7 @@ class Store:
         self._rh: h5py.File | None = None
         self._txn: _Txn | None = None
         self._index: dict[str, _Entry] | None = None
+        self._buckets: dict[tuple[int, str, int], set[str]] = {}
         self._broken = False
         self._closed = False
 
@@ -462,7 +468,18 @@ class Store:
                     basis_index=int(a[S.A_BASIS_INDEX]), seq=int(a[S.A_SEQ]))))
             entries.sort(key=lambda kv: kv[1].seq)
             self._index = dict(entries)
+            self._buckets = {}
+            for key, e in entries:
+                self._buckets.setdefault(e.bucket, set()).add(key)
         return self._index
+
+    def _index_add(self, key: str, e: _Entry) -> None:
+        self._idx()[key] = e
+        self._buckets.setdefault(e.bucket, set()).add(key)
+
+    def _index_remove(self, key: str) -> None:
+        e = self._idx().pop(key)
+        self._buckets[e.bucket].discard(key)
 
     # ------------------------------------------------------------------ reading
 
@@ -588,13 +605,12 @@ class Store:
         ``form`` and ``|R - R_stored| <= tol`` (the closest one), or None."""
         if not (tol >= 0):
             raise InputError(f"duplicate tolerance {tol!r} is not allowed; use a number >= 0")
-        label = form.symmetry.label
+        idx = self._idx()
         best, best_d = None, math.inf
-        for k, e in self._idx().items():
-            if e.level == form.level and e.label == label and e.basis_index == form.basis_index:
-                d = abs(e.R - float(form.R))
-                if d <= tol and d < best_d:
-                    best, best_d = k, d
+        for k in self._buckets.get((int(form.level), form.symmetry.label, int(form.basis_index)), ()):
+            d = abs(idx[k].R - float(form.R))
+            if d <= tol and (d < best_d or (d == best_d and idx[k].seq < idx[best].seq)):  # type: ignore[index]
+                best, best_d = k, d
         return best
 
     # ------------------------------------------------------------------ writing forms
@@ -642,7 +658,7 @@ class Store:
             encoded.append(_codec.encode_extra(f.extra))
         keys: list[str] = []
         with self._write() as h:
-            idx = self._idx()
+            self._idx()
             fg = h[S.FORMS_GROUP]
             seq = int(h.attrs[S.ROOT_NEXT_SEQ])
             now = utc_now_iso()
@@ -659,7 +675,7 @@ class Store:
                             f"{self._path} (|dR| <= {tol}); pass on_duplicate='skip' or 'replace'"
                         )
                     del fg[dup]
-                    del idx[dup]
+                    self._index_remove(dup)
                     self._txn.deleted = True  # type: ignore[union-attr]
                 label = f.symmetry.label
                 base = S.form_key_base(f.level, label, f.R, f.basis_index, f.multiplicity)
@@ -668,8 +684,8 @@ class Store:
                     n += 1
                     key = f"{base}_v{n}"
                 self._write_form(fg, key, f, extra_json, arrays, seq, now, config_text, run_id)
-                idx[key] = _Entry(int(f.level), label, f.symmetry.parity, float(f.R),
-                                  int(f.basis_index), seq)
+                self._index_add(key, _Entry(int(f.level), label, f.symmetry.parity, float(f.R),
+                                            int(f.basis_index), seq))
                 seq += 1
                 keys.append(key)
             h.attrs[S.ROOT_NEXT_SEQ] = np.int64(seq)
@@ -714,7 +730,7 @@ class Store:
         with self._write() as h:
             self._group(key)
             del h[S.FORMS_GROUP][key]
-            del self._idx()[key]
+            self._index_remove(key)
             self._txn.deleted = True  # type: ignore[union-attr]
 
     # ------------------------------------------------------------------ attachments

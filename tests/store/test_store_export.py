@@ -28,6 +28,7 @@ def store(tmp_path):
     forms[1] = Form(level=f.level, R=f.R + 1.0, symmetry=f.symmetry, coeffs=f.coeffs.copy(),
                     coeff_errors=np.full_like(f.coeff_errors, np.nan), R_error=f.R_error,
                     hecke_residual=math.inf, params=f.params, is_new=True, extra={})
+    forms.append(random_form(rng, level=6, M=5, complex_coeffs=True))
     p = tmp_path / "s.h5"
     with Store.open(p, "a") as st:
         rid = st.begin_run("demo-run", config_text="level = 6\n")
@@ -52,7 +53,10 @@ def test_json_export_parses_back_identical(store, tmp_path):
         assert _from_json_float(rec["hecke_residual"]) == f.hecke_residual
         assert rec["solver"] == f.params.as_dict() and rec["is_new"] is f.is_new
         assert rec["provenance"]["config"] == "level = 6\n"
-        c = np.array(rec["coeffs"], dtype=float)
+        if np.iscomplexobj(f.coeffs):  # complex numbers are {"re", "im"} objects
+            c = np.array([[complex(z["re"], z["im"]) for z in row] for row in rec["coeffs"]])
+        else:
+            c = np.array(rec["coeffs"], dtype=float)
         assert c.tobytes() == f.coeffs.tobytes()
         e = np.array([[_from_json_float(x) for x in row] for row in rec["coeff_errors"]])
         np.testing.assert_array_equal(e, f.coeff_errors)  # equal_nan by default
@@ -96,7 +100,7 @@ def test_csv_exports_parse_back(store, tmp_path):
         for n in range(1, 7):
             cell = r[f"c{n}"]
             if n <= f.coeffs.shape[1]:
-                assert float(cell) == f.coeffs[0, n - 1]
+                assert complex(cell) == f.coeffs[0, n - 1]
             else:
                 assert cell == ""
         json.loads(r["extra"])
@@ -107,7 +111,9 @@ def test_csv_exports_parse_back(store, tmp_path):
     for r in crow:
         f = by_key[r["key"]]
         j, n = int(r["cusp"]), int(r["n"])
-        assert float(r["c"]) == f.coeffs[j, n - 1]
+        want = f.coeffs[j, n - 1]
+        got = complex(r["c"]) if np.iscomplexobj(f.coeffs) else float(r["c"])
+        assert got == want and type(got) is type(want.item())
         err = float(r["error"])
         assert err == f.coeff_errors[j, n - 1] or (math.isnan(err) and math.isnan(f.coeff_errors[j, n - 1]))
 
