@@ -2,7 +2,8 @@
 
 Method (formulas ref. §1.4). With Y, M0 and Q held fixed over the window (M0 chosen for
 its top), the sign of det A(R) of the square Hejhal system is scanned on a grid whose step
-is a small fraction of the mean spacing of the class predicted by Weyl's law. det A(R) is
+is a small fraction of the mean spacing of the class predicted by Weyl's law; interior
+minima of log|det A(R)| without a sign change are examined for root pairs inside one cell. det A(R) is
 continuous in R, so unlike the classical two-Y comparison (Hejhal 1999; Strömberg 2005)
 it has no poles; it changes sign at every eigenvalue and at spurious points where the
 truncated system is singular. Each sign change is refined by Brent's method, and a
@@ -62,7 +63,7 @@ class SearchSettings:
     eps: float = 1e-14
     Y1_frac: float = 0.92
     Y2_frac: float = 0.80
-    steps_per_spacing: float = 40.0
+    steps_per_spacing: float = 12.0
     max_step: float = 0.02
     coeff_tol: float = 1e-6
     hecke_tol: float = 1e-6
@@ -137,6 +138,32 @@ def _root_near(system: HejhalSystem, R: float, width: float) -> float | None:
     return None
 
 
+def _hidden_pairs(system: HejhalSystem, grid: np.ndarray, signs: np.ndarray,
+                  logs: np.ndarray) -> list[tuple[float, float]]:
+    """Brackets of root pairs that fall inside one grid cell.
+
+    Between two roots |det A| has a maximum, so an interior local minimum of log|det A|
+    with no sign change around it marks either a near miss or two roots closer than the
+    grid step. The minimum is located by bounded minimisation; if the sign there differs
+    from its neighbours, both roots are bracketed.
+    """
+    from scipy.optimize import minimize_scalar
+
+    out = []
+    for i in range(1, len(grid) - 1):
+        if not (logs[i] < logs[i - 1] and logs[i] < logs[i + 1]):
+            continue
+        if signs[i - 1] != signs[i] or signs[i] != signs[i + 1]:
+            continue  # the sign changes are bracketed already
+        a, b = float(grid[i - 1]), float(grid[i + 1])
+        res = minimize_scalar(lambda R: system.log_det(R)[1], bounds=(a, b), method="bounded",
+                              options={"xatol": 1e-12 * max(1.0, b)})
+        m = float(res.x)
+        if system.log_det(m)[0] != signs[i]:
+            out += [(a, m), (m, b)]
+    return out
+
+
 def _store_height(R: float, n_coeffs: int, p1: SolverParams) -> float:
     """A height whose truncation M0 is about 3 n_coeffs.
 
@@ -200,15 +227,19 @@ def search_window(
     n = max(2, int(math.ceil((R_max - R_min) / step)) + 1)
     grid = np.linspace(R_min, R_max, n)
     signs = np.empty(n)
+    logs = np.empty(n)
     for i, R in enumerate(grid):
-        signs[i] = sys1.log_det(float(R))[0]
+        signs[i], logs[i] = sys1.log_det(float(R))
         if progress is not None:
             progress(i + 1, n)
 
+    brackets = [(float(grid[i]), float(grid[i + 1])) for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]]
+    brackets += _hidden_pairs(sys1, grid, signs, logs)
+
     candidates: list[Candidate] = []
     forms: list[Form] = []
-    for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
-        Rc = _refine_root(sys1, float(grid[i]), float(grid[i + 1]))
+    for a, b in sorted(brackets):
+        Rc = _refine_root(sys1, a, b)
         ok, reason, form = _confirm(group, symmetry, Rc, sys1, sys2, settings, step)
         candidates.append(Candidate(R=Rc, accepted=ok, reason=reason))
         if ok:
