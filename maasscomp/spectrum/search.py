@@ -159,8 +159,11 @@ def _hidden_pairs(system: HejhalSystem, grid: np.ndarray, signs: np.ndarray,
         res = minimize_scalar(lambda R: system.log_det(R)[1], bounds=(a, b), method="bounded",
                               options={"xatol": 1e-12 * max(1.0, b)})
         m = float(res.x)
-        if system.log_det(m)[0] != signs[i]:
-            out += [(a, m), (m, b)]
+        # the minimiser may stop right at one of the two roots: probe both sides of it
+        for p in (m, m - 1e-9 * (b - a), m + 1e-9 * (b - a)):
+            if a < p < b and system.log_det(p)[0] != signs[i]:
+                out += [(a, p), (p, b)]
+                break
     return out
 
 
