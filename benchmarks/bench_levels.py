@@ -15,8 +15,7 @@ import numpy as np
 from joblib import Parallel, delayed
 
 from maasscomp.groups import gamma0
-from maasscomp.pipeline.job import symmetry_classes
-from maasscomp.spectrum.search import search_window
+from maasscomp.spectrum.search import search_window, symmetry_classes
 
 
 def level_task(N: int, sym, R_max: float):

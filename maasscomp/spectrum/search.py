@@ -358,3 +358,21 @@ def search_exceptional(group, symmetry: SymmetryClass, settings: SearchSettings 
         candidates.append(Candidate(R=tc, accepted=ok, reason="confirmed" if ok else f"coefficients at Y1 and Y2 differ by {d:.2e}"))
     return SearchResult(level=group.level, symmetry=symmetry, R_min=0.0, R_max=0.5, forms=(),
                         candidates=tuple(candidates), grid_step=float(grid[1] - grid[0]), params=p1)
+
+
+def symmetry_classes(group, parities: tuple[str, ...] = ("even", "odd")) -> list[SymmetryClass]:
+    """All symmetry classes searched at a level: parities times Atkin--Lehner signs.
+
+    For squarefree levels each prime p | N gets a sign eps_p = +-1 (2^omega(N) sign
+    patterns per parity); other levels are split by parity only.
+    """
+    import itertools
+
+    if not group.is_squarefree:
+        return [SymmetryClass(p) for p in parities]
+    primes = sorted(group.primes)
+    return [
+        SymmetryClass(par, tuple(zip(primes, signs)))
+        for par in parities
+        for signs in itertools.product((1, -1), repeat=len(primes))
+    ]

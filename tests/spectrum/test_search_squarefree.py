@@ -19,9 +19,8 @@ import pytest
 
 from maasscomp.groups import gamma0
 from maasscomp.hejhal.types import SymmetryClass
-from maasscomp.pipeline.job import symmetry_classes
 from maasscomp.spectrum.hecke import atkin_lehner_residual, hecke_residual
-from maasscomp.spectrum.search import search_exceptional, search_window
+from maasscomp.spectrum.search import search_exceptional, search_window, symmetry_classes
 
 LEVEL1_ODD = (9.53369526135, 12.173008324679677)  # published (see module docstring)
 
