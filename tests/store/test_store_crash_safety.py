@@ -58,7 +58,10 @@ def test_sigkill_at_random_moments_keeps_a_complete_prefix(tmp_path, batch):
     kills = 0
     for _ in range(5):
         proc = _start_writer(path, n, batch)
-        time.sleep(rnd.uniform(0.0, 0.4))
+        deadline = time.monotonic() + rnd.uniform(0.0, 0.4)
+        while time.monotonic() < deadline:
+            # readers in this process while the writer commits: each sees a whole snapshot
+            n = _check_prefix(path, batch, n)
         if proc.poll() is not None:  # pragma: no cover - the writer never stops by itself
             raise AssertionError(f"writer exited early: {proc.stderr.read()!r}")
         proc.send_signal(signal.SIGKILL)

@@ -13,7 +13,7 @@ from maasscomp.errors import InputError, StoreError
 from maasscomp.spectrum.form import Form
 from maasscomp.store import Store, export_csv, export_json
 from maasscomp.store.export import SUMMARY_COLUMNS
-from tests.store.store_form_factory import indexed_form, random_form
+from tests.store.store_form_factory import random_form
 
 
 def _from_json_float(x):

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from maasscomp.errors import InputError, StoreError
-from maasscomp.hejhal.types import SolverParams, SymmetryClass
+from maasscomp.hejhal.types import SymmetryClass
 from maasscomp.spectrum.form import Form
 from maasscomp.store import Store, schema
 from tests.store.store_form_factory import assert_forms_equal, indexed_form, random_form
