@@ -1,0 +1,604 @@
+"""High-precision refinement of a Maass cusp form by Hejhal's method in ball arithmetic.
+
+Given a double-precision eigenvalue R0 and the parity of a form, the real cos/sin version
+of Hejhal's linear system (D. A. Hejhal, Mem. AMS 97 (1992) no. 469; formulas ref. §1.2
+item 6) is solved at two horocycle heights Y1 != Y2 in multiprecision (python-flint, i.e.
+arb), and R is refined by the secant method on
+
+    H(R) = a_2(R; Y1) - a_2(R; Y2),
+
+which vanishes at an eigenvalue (the coefficients of a true eigenfunction do not depend
+on Y; Hejhal 1992, and A. Booker, A. Strömbergsson, A. Venkatesh, IMRN 2006, Art. ID
+71281, §2).  The working precision is raised along a ladder (about doubling the number of
+digits per stage) so that most secant steps are cheap.
+
+Only level 1 (PSL(2,Z)) is available.  Other levels plug in by supplying a pullback
+(an exact integer matrix for every sample point, plus a sign for Atkin-Lehner classes)
+and the height Y0 of their fundamental domain in ``_LEVELS``.
+
+Every K-Bessel value is K~_R(x) = e^{pi R/2} K_{iR}(x) (the common factor e^{-pi R/2}
+cancels from the homogeneous system), evaluated by arb's ``acb.bessel_k`` with a
+rigorous error ball whose radius is checked.  The linear algebra uses ball midpoints
+(error control is by the two-Y comparison and the truncation rule, not by ball
+arithmetic), so the error figures returned are *estimates*.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from fractions import Fraction
+from typing import Callable
+
+import numpy as np
+from flint import acb, arb, arb_mat, ctx
+
+from maasscomp.errors import ConvergenceError, InputError
+
+__all__ = ["HighPrecisionForm", "refine_high_precision", "extend_coefficients"]
+
+_LN10 = math.log(10.0)
+
+
+# --------------------------------------------------------------------------- level data
+
+
+def _pullback_level1(x: float, y: float) -> tuple[tuple[int, int, int, int], int]:
+    """Integer matrix g in SL2(Z) with g(x + iy) in the standard fundamental domain.
+
+    The reduction x -> x - round(x), z -> -1/z while |z| < 1 (common practice; formulas
+    ref. §1.2) is run in double precision only to *choose* g; the image point is then
+    computed exactly in ball arithmetic from g.  Any g in SL2(Z) is correct by
+    automorphy, so rounding ties do not matter.  The sign is +1 (no character).
+    """
+    a, b, c, d = 1, 0, 0, 1
+    for _ in range(1000):
+        n = math.floor(x + 0.5)
+        x -= n
+        # T^{-n} g
+        a, b = a - n * c, b - n * d
+        if x * x + y * y < 1.0 - 1e-15:
+            r = x * x + y * y
+            x, y = -x / r, y / r
+            # S g with S = [[0, -1], [1, 0]]
+            a, b, c, d = -c, -d, a, b
+        else:
+            return (a, b, c, d), 1
+    raise ConvergenceError(f"pullback of {x} + i{y} did not terminate")  # pragma: no cover
+
+
+@dataclass(frozen=True)
+class _Level:
+    Y0: float  # lowest height of the fundamental domain used by the pullback
+    pullback: Callable[[float, float], tuple[tuple[int, int, int, int], int]]
+    Y_fracs: tuple[Fraction, Fraction]  # Y1, Y2 as fractions of Y0 (exact rationals)
+
+
+_LEVELS: dict[int, _Level] = {
+    1: _Level(math.sqrt(3) / 2, _pullback_level1, (Fraction(4, 5), Fraction(18, 25))),
+}
+
+
+# --------------------------------------------------------------------------- K-Bessel
+
+
+def _kt(R: arb, x: arb, prec: int) -> arb:
+    """K~_R(x) = e^{pi R/2} K_{iR}(x) to absolute accuracy about 2^-prec (arb, DLMF 10.25).
+
+    Absolute, not relative, accuracy is asked for: every entry of Hejhal's system is
+    compared with O(1) entries (max |K~_R| ~ 0.85 R^{1/6}, formulas ref. §3), and tiny
+    values far beyond the turning point would otherwise need twice the precision.  The
+    cancellation inside K_{iR}(x) for x < R costs about pi R/(2 ln 2) bits (formulas ref.
+    §4.3); the working precision is raised until the radius is small enough.
+    """
+    # inputs are taken as exact midpoints: their own rounding is far below 2^-prec
+    R = R.mid()
+    x = x.mid()
+    extra = int(1.6 * float(R)) + 32
+    tol = arb(2) ** (-(prec - 8))
+    for _ in range(6):
+        with ctx.workprec(prec + extra):
+            v = (acb(x).bessel_k(acb(0, R))).real * (arb.pi() * R / 2).exp()
+        if v.rad() <= tol:
+            return v.mid()
+        extra *= 2
+    raise ConvergenceError(f"K-Bessel at x={x} R={R} not accurate at {prec} bits")
+
+
+def _kt_upper_bound_log(R: float, x: float) -> float:
+    """log of a rigorous upper bound of |K~_R(x)|.
+
+    |K_{iR}(x)| <= K_0(x) < sqrt(pi/(2x)) e^{-x} (DLMF 10.32.9 with |cos(Rt)| <= 1,
+    and DLMF 10.40.10's bound of the K_0 remainder), hence
+    |K~_R(x)| < e^{pi R/2} sqrt(pi/(2x)) e^{-x}.
+    """
+    return math.pi * R / 2 + 0.5 * math.log(math.pi / (2 * x)) - x
+
+
+# --------------------------------------------------------------------------- the system
+
+
+def _truncation_M(R: arb, Y: arb, eps_log: float, prec: int) -> int:
+    """Smallest M beyond the turning point with sqrt(Y) K~_R(2 pi m Y) m^{1/2} < eps for m >= M.
+
+    The factor m^{1/2} is a safety margin for the coefficient size (|a(n)| <= d(n)
+    n^{7/64}; formulas ref. §1.3).  K~ decreases monotonically beyond the turning
+    point x = R, so the first M that passes is the truncation.
+    """
+    Rf = float(R.mid())
+    Yf = float(Y.mid())
+    m = max(1, int(math.ceil(Rf / (2 * math.pi * Yf))))
+    twopi = 2 * arb.pi()
+    while True:
+        x = twopi * m * Y
+        v = abs(float(_kt(R, x, 64))) if _kt_upper_bound_log(Rf, float(x.mid())) > eps_log - 60 else 0.0
+        val = math.sqrt(Yf) * v * math.sqrt(m)
+        if val == 0.0 or math.log(val) < eps_log:
+            return m
+        m += 1
+
+
+class _System:
+    """Hejhal's real system at one height Y for fixed (level, parity, M0, Q, precision).
+
+    Sample points z_m = x_m + iY, x_m = (m - 1/2)/(2Q), m = 1..Q (formulas ref. §1.2
+    item 6); inversion a(n) sqrt(Y) K~(2 pi n Y) = (2/Q) sum_m f(z_m) cs(2 pi n x_m) for
+    n <= M0 < Q, with f(z_m) = f(g z_m) expanded at the pulled-back point.
+    """
+
+    def __init__(
+        self, level: int, parity: str, Y: Fraction, M0: int, Q: int, prec: int, eps_log: float
+    ) -> None:
+        self.level, self.parity, self.M0, self.Q, self.prec = level, parity, M0, Q, prec
+        self.eps_log = eps_log
+        self.Yq = Y
+        lev = _LEVELS[level]
+        cs = "cos" if parity == "even" else "sin"
+        with ctx.workprec(prec):
+            self.Y = arb(Y.numerator) / Y.denominator
+            twopi = 2 * arb.pi()
+            self.pts = []  # (x*, y*, sign) in arb
+            for m in range(1, Q + 1):
+                xm = Fraction(2 * m - 1, 4 * Q)
+                (a, b, c, d), sgn = lev.pullback(float(xm), float(Y))
+                # g z = (a z + b)/(c z + d) computed exactly from rationals
+                xr = arb(xm.numerator) / xm.denominator
+                den = (c * xr + d) ** 2 + (c * self.Y) ** 2
+                ys = self.Y / den
+                xs = (a * c * (xr * xr + self.Y * self.Y) + (a * d + b * c) * xr + b * d) / den
+                if not float(ys.mid()) > float(Y):
+                    raise ConvergenceError(  # pragma: no cover - guarded by Y < Y0
+                        f"pullback of sample point {m} did not raise its height"
+                    )
+                self.pts.append((xs, ys, sgn))
+            # C[m, n] = cs(2 pi n x_m)
+            rows = []
+            for m in range(1, Q + 1):
+                ang = twopi * arb(2 * m - 1) / (4 * Q)
+                rows.append([getattr(ang * n, cs)() for n in range(1, M0 + 1)])
+            self.C = arb_mat(rows)
+        self.cs = cs
+
+    def matrix(self, R: arb) -> arb_mat:
+        """V_{nl} - delta_{nl} sqrt(Y) K~(2 pi n Y), size M0 x M0 (ball midpoints)."""
+        M0, Q, prec = self.M0, self.Q, self.prec
+        Rf = float(R.mid())
+        with ctx.workprec(prec):
+            twopi = 2 * arb.pi()
+            Brows = []
+            for xs, ys, sgn in self.pts:
+                row = []
+                yf = float(ys.mid())
+                sq = ys.sqrt()
+                for l in range(1, M0 + 1):
+                    xx = twopi * l * ys
+                    # terms below eps * 1e-10 are dropped; rigorous bound, see _kt_upper_bound_log
+                    if _kt_upper_bound_log(Rf, 2 * math.pi * l * yf) < self.eps_log - 23:
+                        row.extend([arb(0)] * (M0 - l + 1))
+                        break
+                    k = _kt(R, xx, prec)
+                    row.append(sgn * sq * k * getattr(twopi * l * xs, self.cs)())
+                Brows.append(row)
+            B = arb_mat(Brows)
+            V = (self.C.transpose() * B) * (arb(2) / Q)
+            sY = self.Y.sqrt()
+            for n in range(1, M0 + 1):
+                V[n - 1, n - 1] = V[n - 1, n - 1] - sY * _kt(R, twopi * n * self.Y, prec)
+            return V.mid()
+
+    def solve(self, R: arb) -> list[arb]:
+        """Coefficients a(1..M0) with a(1) = 1 (row n = 1 dropped)."""
+        A = self.matrix(R)
+        M0 = self.M0
+        with ctx.workprec(self.prec):
+            red = arb_mat([[A[i, j] for j in range(1, M0)] for i in range(1, M0)])
+            rhs = arb_mat([[-A[i, 0]] for i in range(1, M0)])
+            sol = red.solve(rhs, algorithm="approx")
+            return [arb(1)] + [sol[i, 0].mid() for i in range(M0 - 1)]
+
+
+# --------------------------------------------------------------------------- results
+
+
+@dataclass(frozen=True)
+class HighPrecisionForm:
+    """A form refined to high precision (decimal strings keep every digit).
+
+    Attributes
+    ----------
+    level : int
+    parity : {"even", "odd"}
+    R : str
+        Spectral parameter as a decimal string (``digits`` + 5 digits printed).
+    R_error : float
+        Estimated absolute error of R (see :func:`refine_high_precision`).
+    digits : int
+        Number of decimal places claimed: R_error < 10^{-digits}.
+    coeffs : tuple of str
+        a(1..M0) at the final R from the Y1 system (a(1) = 1); the first half or so are
+        accurate, the rest serve the evaluation of f at heights >= Y0.
+    coeff_errors : tuple of float
+        |a_n(Y1) - a_n(Y2)| + |d a_n/dR| R_error, an estimate of the absolute error.
+    Y1, Y2 : str
+        The two heights (exact rationals as "p/q").
+    M0, Q : int
+        Truncation and number of sample points of the final (Y1) system.
+    prec_bits : int
+        Working precision of the final stage.
+    iterations : int
+        Number of two-Y evaluations (all stages).
+    history : tuple of (int, str, float)
+        (stage digits, R, |step|) after each secant step.
+    """
+
+    level: int
+    parity: str
+    R: str
+    R_error: float
+    digits: int
+    coeffs: tuple[str, ...]
+    coeff_errors: tuple[float, ...]
+    Y1: str
+    Y2: str
+    M0: int
+    Q: int
+    prec_bits: int
+    iterations: int
+    history: tuple[tuple[int, str, float], ...] = field(default=())
+
+    def R_arb(self, prec: int | None = None) -> arb:
+        """R as an arb midpoint (precision in bits, default enough for ``digits``)."""
+        p = prec or int((self.digits + 10) * 3.33) + 16
+        with ctx.workprec(p):
+            return arb(self.R).mid()
+
+    def coeffs_float(self) -> np.ndarray:
+        """a(1..M0) as float64."""
+        return np.array([float(s) for s in self.coeffs])
+
+    @property
+    def R_float(self) -> float:
+        return float(self.R)
+
+
+# --------------------------------------------------------------------------- refinement
+
+
+def _check_args(level: object, R0: object, parity: object, digits: object) -> None:
+    if isinstance(level, bool) or not isinstance(level, (int, np.integer)) or level < 1:
+        raise InputError(f"level {level!r} is not allowed; use a positive integer")
+    if int(level) not in _LEVELS:
+        raise InputError(
+            f"high-precision refinement for level {level} is not available; "
+            f"available levels: {sorted(_LEVELS)}"
+        )
+    if parity not in ("even", "odd"):
+        raise InputError(f"parity {parity!r} is not allowed; use 'even' or 'odd'")
+    if not isinstance(R0, (int, float, np.floating, str)) or isinstance(R0, bool):
+        raise InputError(f"R0 {R0!r} is not allowed; use a positive number")
+    r = float(R0)
+    if not (math.isfinite(r) and 0 < r <= 300):
+        raise InputError(f"R0 = {R0!r} is not allowed; use 0 < R0 <= 300")
+    if isinstance(digits, bool) or not isinstance(digits, (int, np.integer)) or not 10 <= digits <= 400:
+        raise InputError(f"digits = {digits!r} is not allowed; use an integer in [10, 400]")
+
+
+class _Evaluator:
+    """Two-Y solves at one precision stage (systems cached across R)."""
+
+    def __init__(self, level: int, parity: str, R_guess: float, digits: int) -> None:
+        lev = _LEVELS[level]
+        self.digits = digits
+        # truncation eps = 10^-(digits + 6): H then carries about digits + 3 digits
+        self.eps_log = -(digits + 6) * _LN10
+        self.prec = int(math.ceil((digits + 15) * _LN10 / math.log(2))) + 16
+        self.systems = []
+        y0 = Fraction(lev.Y0).limit_denominator(10**6)
+        with ctx.workprec(self.prec):
+            Rarb = arb(R_guess)
+            for frac in lev.Y_fracs:
+                Yq = (y0 * frac).limit_denominator(1000)
+                Yarb = arb(Yq.numerator) / Yq.denominator
+                M0 = _truncation_M(Rarb, Yarb, self.eps_log, self.prec)
+                Q = M0 + 8
+                self.systems.append(_System(level, parity, Yq, M0, Q, self.prec, self.eps_log))
+        self.count = 0
+
+    def __call__(self, R: arb) -> tuple[list[arb], list[arb]]:
+        self.count += 1
+        with ctx.workprec(self.prec):
+            Rm = arb(R.mid())
+        return self.systems[0].solve(Rm), self.systems[1].solve(Rm)
+
+
+def _H(c1: list[arb], c2: list[arb], n: int = 2) -> arb:
+    return c1[n - 1] - c2[n - 1]
+
+
+def refine_high_precision(
+    level: int,
+    R0: float | str,
+    parity: str,
+    digits: int = 30,
+    *,
+    progress: Callable[[str], None] | None = None,
+    max_steps_per_stage: int = 12,
+) -> HighPrecisionForm:
+    """Refine an eigenvalue and its coefficients to ``digits`` decimal places.
+
+    Hejhal's method (Hejhal, Mem. AMS 97 (1992) no. 469; Booker-Strömbergsson-Venkatesh,
+    IMRN 2006, §2) in multiprecision: the real cos/sin system at heights Y1 = 0.8 Y0
+    and Y2 = 0.72 Y0 (Y0 = sqrt(3)/2 for level 1), truncated at M0 = the smallest M with
+    sqrt(Y) K~_R(2 pi M Y) sqrt(M) < 10^{-(stage digits + 6)}, Q = M0 + 8 sample points,
+    and the secant method on H(R) = a_2(R; Y1) - a_2(R; Y2).
+
+    Precision ladder: stages of about 16, 32, 64, ... digits up to ``digits`` + 2; each
+    stage re-evaluates the last two iterates at its precision and runs secant steps
+    until the step is below 10^{-stage digits}.
+
+    Error estimate: with slopes s_n of H_n(R) = a_n(R; Y1) - a_n(R; Y2) (n = 2..5)
+    measured in the first stage, R_error = max_n |H_n(R_final)| / |s_n|, taken at the
+    final R in the final stage.  This combines the distance to the root with the
+    truncation noise of H.  ``digits`` is claimed only if R_error < 10^{-digits}.
+
+    Parameters
+    ----------
+    level : int
+        Level; only 1 is available.
+    R0 : float or str
+        Start value, accurate to a small fraction of the distance to the neighbouring
+        eigenvalues of the same parity (double precision values are fine).
+    parity : {"even", "odd"}
+    digits : int, optional
+        Target number of decimal places of R, 10 <= digits <= 400 (default 30).
+    progress : callable, optional
+        Called with one line of text after each secant step.
+    max_steps_per_stage : int, optional
+        Secant steps allowed per stage before :class:`ConvergenceError`.
+
+    Returns
+    -------
+    HighPrecisionForm
+
+    Raises
+    ------
+    InputError
+        For an unsupported level, bad parity, R0 or digits.
+    ConvergenceError
+        If a stage does not converge (``best`` carries the last iterate as a string) or
+        the final error estimate misses the target.
+    """
+    _check_args(level, R0, parity, digits)
+    level = int(level)
+    say = progress or (lambda s: None)
+
+    # each secant step roughly multiplies the number of correct digits (and H is far
+    # more accurate than the truncation eps at low n), so stages may triple
+    stages = []
+    d = 16
+    while d < digits + 2:
+        stages.append(d)
+        d *= 3
+    stages.append(digits + 2)
+
+    history: list[tuple[int, str, float]] = []
+    total_evals = 0
+    slopes: list[float] | None = None
+    dadR: list[float] | None = None
+    with ctx.workprec(64):
+        R_a = arb(str(R0)) if isinstance(R0, str) else arb(float(R0))
+    # second start point: a relative offset well above double-precision noise
+    R_b = None
+    last_step = float("inf")
+    ev = None
+    for st in stages:
+        ev = _Evaluator(level, parity, float(R_a.mid()), st)
+        with ctx.workprec(ev.prec):
+            R_a = arb(R_a.mid())
+            if R_b is None or abs(float((R_b - R_a).mid())) < 10.0 ** (-0.75 * st):
+                # the previous pair is too close to give a slope at this precision
+                R_b = R_a + arb(10.0) ** (-min(8, max(4, st // 2)))
+            Ra1, Ra2 = ev(R_a)
+            Rb1, Rb2 = ev(R_b)
+            Ha, Hb = _H(Ra1, Ra2), _H(Rb1, Rb2)
+            if slopes is None:
+                dR = R_b - R_a
+                slopes = [float(((_H(Rb1, Rb2, n) - _H(Ra1, Ra2, n)) / dR).mid()) for n in range(2, 6)]
+                dadR = [float(((Rb1[n - 1] - Ra1[n - 1]) / dR).mid()) for n in range(1, ev.systems[0].M0 + 1)]
+            converged = False
+            for _ in range(max_steps_per_stage):
+                denom = Hb - Ha
+                if denom.mid() == 0:
+                    break
+                R_new = (R_b - Hb * (R_b - R_a) / denom).mid()
+                step = abs(float((R_new - R_b).mid()))
+                R_a, Ha, Ra1, Ra2 = R_b, Hb, Rb1, Rb2
+                R_b = R_new
+                Rb1, Rb2 = ev(R_b)
+                Hb = _H(Rb1, Rb2)
+                last_step = step
+                history.append((st, R_b.mid().str(st + 5, radius=False), step))
+                say(f"stage {st} digits: R = {R_b.mid().str(min(st + 3, 60), radius=False)}  |step| = {step:.3e}")
+                if step < 10.0 ** (-st):
+                    converged = True
+                    break
+            total_evals += ev.count
+            if not converged:
+                raise ConvergenceError(
+                    f"secant refinement did not converge at the {st}-digit stage "
+                    f"(last |step| = {last_step:.3e}); try a better R0 or the other parity",
+                    best=R_b.mid().str(st, radius=False),
+                )
+            # keep the latest iterate as R_a for the next stage, the previous as R_b
+            R_a, R_b = R_b, R_a
+
+    assert ev is not None and slopes is not None and dadR is not None
+    # the final iterate is R_a, with its two-Y solutions in Rb1, Rb2 (just swapped names)
+    c1, c2 = Rb1, Rb2
+    with ctx.workprec(ev.prec):
+        Hn = [abs(float(_H(c1, c2, n).mid())) for n in range(2, 6)]
+    R_error = max(h / abs(s) for h, s in zip(Hn, slopes) if s != 0)
+    M0 = ev.systems[0].M0
+    M0b = ev.systems[1].M0
+    coeff_err = []
+    with ctx.workprec(ev.prec):
+        for n in range(1, M0 + 1):
+            diff = abs(float((c1[n - 1] - c2[n - 1]).mid())) if n <= M0b else float("inf")
+            coeff_err.append(diff + abs(dadR[n - 1] if n - 1 < len(dadR) else 0.0) * R_error)
+        Rstr = R_a.mid().str(digits + 5, radius=False, more=True)
+        coeffs = tuple(c.str(digits + 5, radius=False, more=True) for c in c1)
+    if not R_error < 10.0 ** (-digits):
+        raise ConvergenceError(
+            f"refinement reached an estimated error {R_error:.2e}, above the target 1e-{digits}",
+            best=Rstr,
+        )
+    return HighPrecisionForm(
+        level=level,
+        parity=parity,
+        R=_strip_brackets(Rstr),
+        R_error=R_error,
+        digits=int(digits),
+        coeffs=tuple(_strip_brackets(c) for c in coeffs),
+        coeff_errors=tuple(coeff_err),
+        Y1=f"{ev.systems[0].Yq.numerator}/{ev.systems[0].Yq.denominator}",
+        Y2=f"{ev.systems[1].Yq.numerator}/{ev.systems[1].Yq.denominator}",
+        M0=M0,
+        Q=ev.systems[0].Q,
+        prec_bits=ev.prec,
+        iterations=total_evals,
+        history=tuple(history),
+    )
+
+
+def _strip_brackets(s: str) -> str:
+    return s.strip("[]").split(" +/-")[0].strip()
+
+
+def extend_coefficients(
+    form: HighPrecisionForm,
+    n_max: int,
+    *,
+    eps: float = 1e-17,
+    heights: tuple[float, ...] = (1.0, 0.87, 0.76),
+) -> tuple[np.ndarray, np.ndarray]:
+    """Many coefficients a(1..n_max) of a refined form, in double precision.
+
+    Hejhal's inversion (formulas ref. §1.2 item 3, real version) at low heights Y:
+
+        a(n) sqrt(Y) K~_R(2 pi n Y) = (2/Q) sum_{m=1}^{Q} f(z_m) cs(2 pi n x_m),
+
+    where f(z_m) = f(g z_m) is evaluated at the pulled-back point (height >= Y0) from the
+    high-precision coefficients of ``form`` (only the first dozen or so matter there).
+    The sum is a type-II discrete cosine/sine transform (scipy.fft), which needs
+    Q > M(Y), the truncation index at height Y.  Heights Y_k = c_k R/(2 pi n_max) for
+    the factors c_k in ``heights`` keep 2 pi n Y below the turning point for all
+    n <= n_max; for each n the height with the largest |K~_R(2 pi n Y)| is used (away
+    from the zeros of K~), and the second best gives the error estimate.
+
+    Parameters
+    ----------
+    form : HighPrecisionForm
+        Output of :func:`refine_high_precision`.
+    n_max : int
+        Number of coefficients, 2 <= n_max <= 20000.
+    eps : float, optional
+        Truncation target of the expansions (default 1e-17).
+    heights : tuple of float, optional
+        The factors c_k (at least two).
+
+    Returns
+    -------
+    a : ndarray, shape (n_max,)
+        a(1..n_max), a(1) = 1.
+    err : ndarray, shape (n_max,)
+        Estimated absolute errors (difference between the two best heights; at least
+        the double-precision rounding of the transform).
+    """
+    if not isinstance(form, HighPrecisionForm):
+        raise InputError(f"form must be a HighPrecisionForm, got {type(form).__name__}")
+    if isinstance(n_max, bool) or not isinstance(n_max, (int, np.integer)) or not 2 <= n_max <= 20000:
+        raise InputError(f"n_max = {n_max!r} is not allowed; use an integer in [2, 20000]")
+    if len(heights) < 2 or any(not 0 < c <= 1.5 for c in heights):
+        raise InputError(f"heights {heights!r} not allowed; give >= 2 factors in (0, 1.5]")
+    from scipy.fft import dct, dst
+
+    lev = _LEVELS[form.level]
+    prec = 128
+    eps_log = math.log(eps)
+    cs = "cos" if form.parity == "even" else "sin"
+    with ctx.workprec(prec):
+        R = form.R_arb(prec)
+        coef = [arb(c) for c in form.coeffs]
+        Rf = float(R)
+        twopi = 2 * arb.pi()
+        rows_a = []
+        rows_k = []
+        for c in heights:
+            Yf = min(c * Rf / (2 * math.pi * n_max), 0.8 * lev.Y0)
+            Yq = Fraction(Yf).limit_denominator(10**9)
+            Y = arb(Yq.numerator) / Yq.denominator
+            M = _truncation_M(R, Y, eps_log, 64)
+            Q = M + 16
+            fvals = np.empty(Q)
+            for m in range(1, Q + 1):
+                xm = Fraction(2 * m - 1, 4 * Q)
+                (a, b, cc, d), sgn = lev.pullback(float(xm), float(Yq))
+                xr = arb(xm.numerator) / xm.denominator
+                den = (cc * xr + d) ** 2 + (cc * Y) ** 2
+                ys = Y / den
+                xs = (a * cc * (xr * xr + Y * Y) + (a * d + b * cc) * xr + b * d) / den
+                yf = float(ys)
+                tot = arb(0)
+                sq = ys.sqrt()
+                for l in range(1, len(coef) + 1):
+                    if _kt_upper_bound_log(Rf, 2 * math.pi * l * yf) < eps_log - 23:
+                        break
+                    tot += coef[l - 1] * sq * _kt(R, twopi * l * ys, prec) * getattr(twopi * l * xs, cs)()
+                else:
+                    raise ConvergenceError(
+                        f"form carries {len(coef)} coefficients, too few to evaluate f at height {yf:.3f}"
+                    )
+                fvals[m - 1] = sgn * float(tot)
+            # (2/Q) sum_m f_m cs(pi n (2m-1)/(2Q)) for n = 1..n_max (DCT-II / DST-II)
+            if cs == "cos":
+                tr = dct(fvals, type=2)[1 : n_max + 1] / Q
+            else:
+                tr = dst(fvals, type=2)[:n_max] / Q
+            kt = np.array([float(_kt(R, twopi * n * Y, 64)) for n in range(1, n_max + 1)])
+            sY = math.sqrt(float(Y))
+            rows_k.append(np.abs(sY * kt))
+            with np.errstate(divide="ignore", invalid="ignore"):
+                rows_a.append(tr / (sY * kt))
+    A = np.array(rows_a)
+    K = np.array(rows_k)
+    order = np.argsort(-K, axis=0)
+    idx = np.arange(n_max)
+    best = A[order[0], idx]
+    second = A[order[1], idx]
+    # rounding floor of the transform: ~1e-16 sqrt(Q) max|f| / |sqrt(Y) K~|
+    floor = 1e-15 / K[order[0], idx]
+    err = np.maximum(np.abs(best - second), floor)
+    best = best.copy()
+    err[0] = 0.0
+    best[0] = 1.0
+    return best, err
