@@ -1,37 +1,80 @@
 """Command-line interface: ``maasscomp <command> ...`` (also ``python -m maasscomp``).
 
-User errors (bad config, bad arguments, missing or foreign files) print one line on
-stderr and exit with code 2; no traceback.
+Exit codes: 0 success; 1 the run finished but some tasks failed (rerun to retry them);
+2 user error (bad config, bad arguments, missing or foreign files), printed as one line
+(or one line per config problem) on stderr without a traceback; 130 interrupted.
 """
 
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 from pathlib import Path
 from typing import Sequence
 
 from maasscomp import __version__
-from maasscomp.errors import InputError, MaasscompError, StoreError
+from maasscomp.errors import InputError, StoreError
 
 
 class _Parser(argparse.ArgumentParser):
-    def error(self, message: str) -> None:  # argparse exits 2 on usage errors already
-        raise InputError(message)
+    def error(self, message: str) -> None:  # usage errors: one line, exit code 2
+        raise InputError(f"{self.prog}: {message}")
+
+
+def _positive_int(text: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not an integer") from None
+    if v < 1:
+        raise argparse.ArgumentTypeError(f"{v} is not allowed; use an integer >= 1")
+    return v
+
+
+def _nonneg_int(text: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not an integer") from None
+    if v < 0:
+        raise argparse.ArgumentTypeError(f"{v} is not allowed; use an integer >= 0")
+    return v
+
+
+def _load_config(args: argparse.Namespace):
+    from maasscomp.config import load
+
+    cfg = load(args.config)
+    if getattr(args, "backend", None) or getattr(args, "workers", None):
+        cfg = cfg.with_executor(backend=args.backend, workers=args.workers)
+    return cfg
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
-    from maasscomp.config import load
     from maasscomp.pipeline.job import run_job
 
-    cfg = load(args.config)
-    say = (lambda _m: None) if args.quiet else print
-    summary = run_job(cfg, say=say, show_progress=not args.quiet)
-    total = sum(summary.forms_per_class.values())
+    if args.quiet and args.verbose:
+        raise InputError("--quiet and --verbose exclude each other")
+    cfg = _load_config(args)
+    summary = run_job(cfg, quiet=args.quiet, verbose=args.verbose)
     if not args.quiet:
-        print(f"{total} forms stored in {summary.output} ({summary.rejected} candidates rejected, "
-              f"{summary.seconds:.1f} s)")
+        print(summary.as_text())
+    if not summary.ok:
+        print(f"maasscomp: {len(summary.failures)} task(s) failed"
+              + (f"; stopped early ({summary.aborted})" if summary.aborted else "")
+              + f"; see {summary.log_path}; rerun the same config to retry", file=sys.stderr)
+        return 1
+    return 0
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    from maasscomp.pipeline.job import preflight
+
+    cfg = _load_config(args)
+    plan = preflight(cfg)
+    print(f"{cfg.source_path}: valid; output {cfg.job.output}, backend {cfg.executor.backend} "
+          f"with {cfg.executor.workers} worker(s)")
+    print(plan.describe())
     return 0
 
 
@@ -39,7 +82,8 @@ def _cmd_list(args: argparse.Namespace) -> int:
     from maasscomp.store import Store
 
     with Store.open(args.store, "r") as st:
-        rows = st.summary_rows(n_coeffs=args.coeffs)
+        keys = st.select(level=args.level) if args.level is not None else None
+        rows = st.summary_rows(n_coeffs=args.coeffs, keys=keys)
     if not rows:
         print(f"{args.store}: no forms")
         return 0
@@ -52,7 +96,12 @@ def _cmd_list(args: argparse.Namespace) -> int:
                 f"{r['R_error']:>8.1e} {r['hecke_residual']:>8.1e} {new:>5}")
         for n in range(1, args.coeffs + 1):
             c = r.get(f"c{n}")
-            line += f" {'':>14}" if c is None else f" {c.real if isinstance(c, complex) else c:>14.10f}"
+            if c is None:
+                line += f" {'':>14}"
+            elif isinstance(c, complex):
+                line += f" {c.real:>+14.10f}{c.imag:+.3e}i"
+            else:
+                line += f" {c:>14.10f}"
         print(line)
     print(f"{len(rows)} forms")
     return 0
@@ -64,6 +113,9 @@ def _cmd_export(args: argparse.Namespace) -> int:
     if not (args.json or args.csv):
         raise InputError("export needs at least one of --json PATH or --csv PATH")
     Store.open(args.store, "r").close()  # clear error for a missing or foreign file
+    for p in (args.json, args.csv, args.coeffs_csv):
+        if p and not Path(p).parent.resolve().is_dir():
+            raise InputError(f"cannot write {p}: directory {Path(p).parent} does not exist")
     if args.json:
         n = export_json(args.store, args.json)
         print(f"wrote {n} forms to {args.json}")
@@ -74,29 +126,49 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
 
 def _cmd_keys(args: argparse.Namespace) -> int:
-    from maasscomp.config import KEYS
+    from maasscomp.config import keys_markdown
 
-    print("| section | key | type | default | meaning |")
-    print("|---|---|---|---|---|")
-    for sec, key, typ, default, meaning in KEYS:
-        d = "required" if default is None and "absent" not in typ else repr(default)
-        print(f"| [{sec}] | `{key}` | {typ} | {d} | {meaning} |")
+    sys.stdout.write(keys_markdown())
+    return 0
+
+
+def _cmd_report(args: argparse.Namespace) -> int:
+    from maasscomp.pipeline.report import make_report
+
+    out = Path(args.out) if args.out else Path(args.store).with_suffix("").with_name(
+        Path(args.store).stem + "-report")
+    rep = make_report(args.store, out)
+    print(f"report written to {rep.folder} ({', '.join(rep.files)})")
     return 0
 
 
 def build_parser() -> argparse.ArgumentParser:
-    p = _Parser(prog="maasscomp", description="Maass cusp forms on Gamma0(N): eigenvalues, coefficients, sup-norms.")
+    p = _Parser(prog="maasscomp",
+                description="Maass cusp forms on Gamma0(N): eigenvalues, coefficients, sup-norms.")
     p.add_argument("--version", action="version", version=f"maasscomp {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
-    r = sub.add_parser("run", help="run a TOML job config and store the forms found")
+    r = sub.add_parser("run", help="run (or resume) a TOML job config and store the forms found")
     r.add_argument("config", help="path of the TOML job config")
-    r.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    g = r.add_mutually_exclusive_group()
+    g.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    g.add_argument("-v", "--verbose", action="store_true", help="print every task as it finishes")
+    r.add_argument("--backend", choices=("serial", "joblib", "dask"),
+                   help="override [executor] backend (does not change results)")
+    r.add_argument("--workers", type=_positive_int, help="override [executor] workers")
     r.set_defaults(func=_cmd_run)
+
+    c = sub.add_parser("check", help="validate a job config and print its tasks without running")
+    c.add_argument("config", help="path of the TOML job config")
+    c.add_argument("--backend", choices=("serial", "joblib", "dask"), help="override [executor] backend")
+    c.add_argument("--workers", type=_positive_int, help="override [executor] workers")
+    c.set_defaults(func=_cmd_check)
 
     ls = sub.add_parser("list", help="list the forms in a store file")
     ls.add_argument("store", help="HDF5 store file")
-    ls.add_argument("--coeffs", type=int, default=3, help="number of coefficients c(n) to show (default 3)")
+    ls.add_argument("--coeffs", type=_nonneg_int, default=3,
+                    help="number of coefficients c(n) to show (default 3)")
+    ls.add_argument("--level", type=_positive_int, help="only forms of this level")
     ls.set_defaults(func=_cmd_list)
 
     ex = sub.add_parser("export", help="export a store file to JSON and/or CSV")
@@ -104,20 +176,24 @@ def build_parser() -> argparse.ArgumentParser:
     ex.add_argument("--json", metavar="PATH", help="write one JSON document with every field")
     ex.add_argument("--csv", metavar="PATH", help="write one CSV row per form")
     ex.add_argument("--coeffs-csv", metavar="PATH", help="also write all coefficients in long CSV format")
-    ex.add_argument("--coeffs", type=int, default=10, help="coefficients per row in --csv (default 10)")
+    ex.add_argument("--coeffs", type=_nonneg_int, default=10,
+                    help="coefficients per row in --csv (default 10)")
     ex.set_defaults(func=_cmd_export)
 
-    k = sub.add_parser("keys", help="print the table of config keys")
+    rp = sub.add_parser("report", help="turn a store into a report folder (tables, Weyl's law, figures)")
+    rp.add_argument("store", help="HDF5 store file")
+    rp.add_argument("--out", metavar="DIR", help="report folder (default: <store name>-report)")
+    rp.set_defaults(func=_cmd_report)
+
+    k = sub.add_parser("keys", help="print the documentation of every config key (Markdown)")
     k.set_defaults(func=_cmd_keys)
 
-    for modname in ("maasscomp.supnorm.commands", "maasscomp.pipeline.commands"):
-        try:
-            mod = __import__(modname, fromlist=["add_commands"])
-        except ModuleNotFoundError as exc:
-            if exc.name != modname:
-                raise
-            continue
-        mod.add_commands(sub)
+    import importlib.util
+
+    if importlib.util.find_spec("maasscomp.supnorm.commands") is not None:
+        from maasscomp.supnorm import commands as supnorm_commands
+
+        supnorm_commands.add_commands(sub)
     return p
 
 
@@ -127,18 +203,16 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         args = parser.parse_args(argv)
         if not getattr(args, "command", None):
-            parser.print_help()
+            parser.print_help(sys.stderr)
             return 2
-        for name in ("coeffs",):
-            v = getattr(args, name, None)
-            if v is not None and v < 0:
-                raise InputError(f"--{name}={v} is not allowed; use an integer >= 0")
         return int(args.func(args) or 0)
     except (InputError, StoreError) as exc:
         print(f"maasscomp: error: {exc}", file=sys.stderr)
         return 2
+    except SystemExit as exc:  # --help and --version
+        return int(exc.code or 0) if not isinstance(exc.code, str) else 2
     except KeyboardInterrupt:
-        print("maasscomp: interrupted", file=sys.stderr)
+        print("maasscomp: interrupted; finished tasks are stored, rerun to resume", file=sys.stderr)
         return 130
 
 

@@ -1,55 +1,138 @@
 """Job configuration: TOML files validated into frozen dataclasses.
 
-Every key is documented once, in :data:`KEYS` (section, key, type, default, meaning); the
-README's key table is generated from it (``maasscomp keys``). Validation collects one clear
-message per problem and raises a single :class:`~maasscomp.errors.InputError` before any
-work starts.
+Every key is documented once, in :data:`KEYS` (section, key, type, default, meaning);
+``docs/config.md`` is generated from it by ``maasscomp keys``. Validation collects one
+clear message per problem and raises a single :class:`~maasscomp.errors.InputError`
+before any work starts (the pipeline adds the checks that need the groups: levels the
+search cannot handle yet, memory per task).
+
+Levels may be given as a list (``[1, 2, 3]``), a range (``"1..12"``) or a rule
+(``"squarefree up to 50"``, ``"primes up to 100"``, ``"squarefree 10..50"``), see
+:func:`parse_levels`.
+
+The *fingerprint* of a config (:func:`fingerprint_settings`) is the part that changes
+the numbers stored for a form (accuracy target, number of coefficients, grid step, scan
+settings). A store refuses results made under a different fingerprint; everything else
+(levels, windows, classes, chunking, backend, workers, paths) may change between runs.
 """
 
 from __future__ import annotations
 
 import difflib
+import hashlib
+import json
 import math
+import os
+import re
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
 
 from maasscomp.errors import InputError
 
 PARITIES = ("even", "odd")
+ATKIN_LEHNER = ("all", "plus", "minus")
+BACKENDS = ("serial", "joblib", "dask")
+LEVEL_KINDS = ("all", "squarefree", "primes")
 
-# (section, key, type name, default, meaning)
+#: Largest level accepted by a level rule or list (a guard against typos like 10000000).
+MAX_LEVEL = 100_000
+
+# (section, key, type name, default, meaning); default None with "required" in the type
+# means the key must be given.
 KEYS: list[tuple[str, str, str, Any, str]] = [
-    ("job", "name", "string", "job", "Name of the study, recorded in the store."),
-    ("job", "output", "path", None, "HDF5 store to write (a relative path is taken relative to the working directory). Required."),
-    ("search", "levels", "list of int", [1], "Levels N of Gamma0(N) to search."),
-    ("search", "R_min", "float", None, "Lower end of the R window (R > 0, lambda = 1/4 + R^2). Required."),
-    ("search", "R_max", "float", None, "Upper end of the R window (R_max > R_min). Required."),
-    ("search", "parities", "list of string", ["even", "odd"], "Parities to search: 'even' (cosine) and/or 'odd' (sine)."),
-    ("search", "eps", "float", 1e-14, "Target truncation error of every Hejhal system."),
-    ("search", "n_coeffs", "int", 60, "Number of Fourier coefficients stored per form (at least 10)."),
-    ("search", "step", "float or absent", None, "Grid step of the determinant-sign scan; default: a fortieth of the mean spacing of the class."),
+    ("job", "name", "string", "job",
+     "Name of the study. Also the run id under which the store records finished tasks "
+     "(letters, digits and _ . + - only)."),
+    ("job", "output", "path (required)", None,
+     "HDF5 store to write. A relative path is taken relative to the working directory. "
+     "Rerunning the same config resumes into this file."),
+    ("job", "log", "path", "<output>.log",
+     "Log file (appended to). Default: the store path with '.log' added."),
+    ("search", "levels", "list of int, or string", [1],
+     "Levels N of Gamma0(N): a list like [1, 2, 3]; a range \"1..12\" (inclusive); or a "
+     "rule \"squarefree up to 50\", \"primes up to 100\", \"all up to 12\", "
+     "\"squarefree 10..50\"."),
+    ("search", "R_min", "float", None,
+     "Lower end of the R window (lambda = 1/4 + R^2), R_min > 0. Give R_min and R_max, "
+     "or windows."),
+    ("search", "R_max", "float", None,
+     "Upper end of the R window, R_max > R_min. Both ends are included."),
+    ("search", "windows", "list of [float, float]", None,
+     "Several R windows [[R_min, R_max], ...] instead of R_min/R_max; they must not "
+     "overlap."),
+    ("search", "parities", "list of string", ["even", "odd"],
+     "Parities to search: 'even' (cosine series) and/or 'odd' (sine series)."),
+    ("search", "atkin_lehner", "string", "all",
+     "Atkin-Lehner sign classes at squarefree levels N > 1: 'all' (every sign pattern), "
+     "'plus' (all signs +1) or 'minus' (all signs -1). Ignored at level 1."),
+    ("search", "eps", "float", 1e-14,
+     "Target accuracy: truncation error of every Hejhal system, in [1e-16, 1e-4]."),
+    ("search", "n_coeffs", "int", 60,
+     "Number of Fourier coefficients stored per form, in [10, 20000]."),
+    ("search", "step", "float", None,
+     "Grid step of the determinant-sign scan. Default (absent): a fortieth of the mean "
+     "eigenvalue spacing of the class, at most 0.02."),
+    ("search", "chunk_width", "float", 1.0,
+     "Width in R of one search task. Chunk edges sit at multiples of this width, so "
+     "changing a window keeps the finished chunks it shares with the old one."),
+    ("executor", "backend", "string", "joblib",
+     "Where tasks run: 'serial' (this process), 'joblib' (worker processes on this "
+     "machine) or 'dask' (a Dask cluster: a local one, or the scheduler at 'address')."),
+    ("executor", "workers", "int", "number of cores",
+     "Number of worker processes (joblib, local Dask cluster)."),
+    ("executor", "address", "string", None,
+     "Dask only: address of a running scheduler, e.g. 'tcp://10.0.0.5:8786'. Absent: "
+     "start a local cluster with 'workers' processes."),
+    ("executor", "memory_limit_gb", "float", "80% of RAM / workers",
+     "Memory one task may use. A window whose systems would need more is refused before "
+     "any work starts (and a local Dask cluster gets this limit per worker)."),
 ]
 
-_SECTIONS = sorted({s for s, *_ in KEYS})
+# keys of the executor section and job paths do not change results (see module docstring)
+_RESULT_KEYS = {("search", "eps"), ("search", "n_coeffs"), ("search", "step")}
+
+_SECTIONS = list(dict.fromkeys(s for s, *_ in KEYS))
+
+
+# ---------------------------------------------------------------- dataclasses
 
 
 @dataclass(frozen=True)
 class JobConfig:
     name: str
     output: Path
+    log: Path
 
 
 @dataclass(frozen=True)
 class SearchConfig:
     levels: tuple[int, ...]
-    R_min: float
-    R_max: float
-    parities: tuple[str, ...]
+    windows: tuple[tuple[float, float], ...]
+    parities: tuple[str, ...] = PARITIES
+    atkin_lehner: str = "all"
     eps: float = 1e-14
     n_coeffs: int = 60
     step: float | None = None
+    chunk_width: float = 1.0
+
+    @property
+    def R_min(self) -> float:
+        return self.windows[0][0]
+
+    @property
+    def R_max(self) -> float:
+        return self.windows[-1][1]
+
+
+@dataclass(frozen=True)
+class ExecutorConfig:
+    backend: str = "joblib"
+    workers: int = 1
+    address: str | None = None
+    memory_limit_gb: float = 1.0
+    memory_explicit: bool = False
 
 
 @dataclass(frozen=True)
@@ -58,12 +141,72 @@ class Config:
 
     job: JobConfig
     search: SearchConfig
+    executor: ExecutorConfig
     source_text: str = ""
     source_path: Path | None = None
 
+    def normalised(self) -> dict[str, Any]:
+        """Every key with its value after defaults and level rules are applied (JSON-ready)."""
+        d = {
+            "job": {"name": self.job.name, "output": str(self.job.output), "log": str(self.job.log)},
+            "search": asdict(self.search),
+            "executor": asdict(self.executor),
+        }
+        d["search"]["levels"] = list(self.search.levels)
+        d["search"]["windows"] = [list(w) for w in self.search.windows]
+        d["search"]["parities"] = list(self.search.parities)
+        return d
+
+    def with_executor(self, backend: str | None = None, workers: int | None = None) -> "Config":
+        """A copy with the backend and/or worker count replaced (they never change results).
+
+        A scheduler address is dropped when the backend is no longer Dask; the default
+        memory limit follows the new worker count.
+        """
+        from dataclasses import replace
+
+        ex = self.executor
+        if backend is not None:
+            ex = replace(ex, backend=backend, address=ex.address if backend == "dask" else None)
+        if workers is not None:
+            mem = ex.memory_limit_gb if ex.memory_explicit else _default_memory_gb(workers)
+            ex = replace(ex, workers=workers, memory_limit_gb=mem)
+        _check_executor(ex)
+        return replace(self, executor=ex)
+
+
+def fingerprint_settings(normalised: dict[str, Any]) -> dict[str, Any]:
+    """The result-affecting part of a normalised config, as ``{"section.key": value}``."""
+    out = {}
+    for sec, key in sorted(_RESULT_KEYS):
+        out[f"{sec}.{key}"] = normalised.get(sec, {}).get(key)
+    return out
+
+
+def fingerprint(normalised: dict[str, Any]) -> str:
+    """A short hash of :func:`fingerprint_settings`."""
+    text = json.dumps(fingerprint_settings(normalised), sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def fingerprint_changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
+    """Human-readable list of result-affecting differences between two normalised configs."""
+    a, b = fingerprint_settings(old), fingerprint_settings(new)
+    out = []
+    for k in sorted(set(a) | set(b)):
+        if a.get(k) != b.get(k):
+            sec, key = k.split(".", 1)
+            out.append(f"[{sec}] {key}: {a.get(k)!r} -> {b.get(k)!r}")
+    return out
+
+
+# ---------------------------------------------------------------- helpers
+
 
 def _suggest(word: str, options: list[str]) -> str:
-    close = difflib.get_close_matches(word, options, n=1)
+    close = difflib.get_close_matches(word, options, n=1, cutoff=0.6)
+    if not close:  # case slips like r_min for R_min
+        close = [o for o in options if o.lower() == word.lower()]
     return f" (did you mean {close[0]!r}?)" if close else ""
 
 
@@ -71,101 +214,350 @@ def _is_real(v: Any) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
 
 
-def parse(data: dict, *, base_dir: Path | None = None, source_text: str = "", source_path: Path | None = None) -> Config:
-    """Validate a parsed TOML document; raise InputError listing every problem."""
+def _is_int(v: Any) -> bool:
+    return isinstance(v, int) and not isinstance(v, bool)
+
+
+def is_squarefree(n: int) -> bool:
+    """True if no square of a prime divides n (1 is squarefree)."""
+    d = 2
+    while d * d <= n:
+        if n % (d * d) == 0:
+            return False
+        if n % d == 0:
+            n //= d
+        d += 1
+    return True
+
+
+def is_prime(n: int) -> bool:
+    if n < 2:
+        return False
+    d = 2
+    while d * d <= n:
+        if n % d == 0:
+            return False
+        d += 1
+    return True
+
+
+_RULE = re.compile(
+    r"^\s*(?:(?P<kind>all|squarefree|primes?)\s*(?:levels?\s*)?)?"
+    r"(?:(?:up\s*to|<=)\s*(?P<upto>\d+)|(?P<lo>\d+)\s*(?:\.\.|to|-)\s*(?P<hi>\d+))\s*$",
+    re.IGNORECASE,
+)
+
+
+def parse_levels(spec: Any) -> tuple[int, ...]:
+    """Expand a level specification into a sorted tuple of levels.
+
+    Parameters
+    ----------
+    spec : list of int or str
+        A list of levels; a range ``"A..B"`` (also ``"A to B"``, both ends included); or a
+        rule ``"<kind> up to B"`` / ``"<kind> A..B"`` with kind ``all``, ``squarefree`` or
+        ``primes``.
+
+    Raises
+    ------
+    InputError
+        Malformed rule, a level < 1 or > :data:`MAX_LEVEL`, or an empty result.
+    """
+    if isinstance(spec, list):
+        if not spec:
+            raise InputError("[search] levels=[] is empty; give at least one level >= 1")
+        bad = [v for v in spec if not (_is_int(v) and 1 <= v <= MAX_LEVEL)]
+        if bad:
+            raise InputError(
+                f"[search] levels: {', '.join(repr(b) for b in bad)} not allowed; levels must be "
+                f"integers in [1, {MAX_LEVEL}]"
+            )
+        return tuple(sorted(set(spec)))
+    if not isinstance(spec, str):
+        raise InputError(
+            f"[search] levels={spec!r} must be a list of integers or a string such as "
+            "\"1..12\" or \"squarefree up to 50\""
+        )
+    m = _RULE.match(spec)
+    if not m:
+        raise InputError(
+            f"[search] levels={spec!r} is not a level rule; use a range \"A..B\", or "
+            "\"squarefree up to B\", \"primes up to B\", \"all up to B\", \"squarefree A..B\""
+        )
+    kind = (m.group("kind") or "all").lower()
+    kind = "primes" if kind.startswith("prime") else kind
+    if m.group("upto") is not None:
+        lo, hi = 1, int(m.group("upto"))
+    else:
+        lo, hi = int(m.group("lo")), int(m.group("hi"))
+    if lo < 1 or hi > MAX_LEVEL:
+        raise InputError(f"[search] levels={spec!r}: levels must lie in [1, {MAX_LEVEL}]")
+    pred = {"all": lambda n: True, "squarefree": is_squarefree, "primes": is_prime}[kind]
+    out = tuple(n for n in range(lo, hi + 1) if pred(n))
+    if not out:
+        raise InputError(f"[search] levels={spec!r} gives no level at all; widen the range")
+    return out
+
+
+def _total_memory_gb() -> float:
+    try:
+        return os.sysconf("SC_PHYS_PAGES") * os.sysconf("SC_PAGE_SIZE") / 2**30
+    except (ValueError, OSError, AttributeError):  # pragma: no cover - non-POSIX
+        return 8.0
+
+
+def _default_memory_gb(workers: int) -> float:
+    return 0.8 * _total_memory_gb() / max(1, workers)
+
+
+def _check_executor(ex: ExecutorConfig) -> None:
+    if ex.backend not in BACKENDS:
+        raise InputError(f"backend {ex.backend!r} is not allowed; use one of {', '.join(BACKENDS)}")
+    if not _is_int(ex.workers) or ex.workers < 1:
+        raise InputError(f"workers={ex.workers!r} is not allowed; use an integer >= 1")
+
+
+# ---------------------------------------------------------------- validation
+
+
+def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
+          cwd: Path | None = None) -> Config:
+    """Validate a parsed TOML document; raise one InputError listing every problem."""
     problems: list[str] = []
     for sec in data:
         if sec not in _SECTIONS:
-            problems.append(f"unknown section [{sec}]{_suggest(sec, _SECTIONS)}; allowed: {', '.join(_SECTIONS)}")
+            problems.append(f"unknown section [{sec}]{_suggest(sec, _SECTIONS)}; allowed: "
+                            f"{', '.join('[' + s + ']' for s in _SECTIONS)}")
+    body: dict[str, dict] = {}
     for sec in _SECTIONS:
-        body = data.get(sec, {})
-        if not isinstance(body, dict):
-            problems.append(f"[{sec}] must be a table")
-            continue
+        b = data.get(sec, {})
+        if not isinstance(b, dict):
+            problems.append(f"[{sec}] must be a table, got {b!r}")
+            b = {}
         allowed = [k for s, k, *_ in KEYS if s == sec]
-        for k in body:
+        for k in b:
             if k not in allowed:
-                problems.append(f"unknown key {k!r} in [{sec}]{_suggest(k, allowed)}; allowed: {', '.join(allowed)}")
+                problems.append(f"unknown key {k!r} in [{sec}]{_suggest(k, allowed)}; allowed: "
+                                f"{', '.join(allowed)}")
+        body[sec] = b
+    job, srch, exe = body["job"], body["search"], body["executor"]
 
-    job = data.get("job", {}) if isinstance(data.get("job", {}), dict) else {}
-    srch = data.get("search", {}) if isinstance(data.get("search", {}), dict) else {}
-
+    # [job]
     name = job.get("name", "job")
-    if not isinstance(name, str) or not name:
-        problems.append(f"[job] name={name!r} must be a non-empty string")
+    if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.+-]+", name) or name in (".", ".."):
+        problems.append(f"[job] name={name!r} is not allowed; use a non-empty name of letters, "
+                        "digits and _ . + -")
     output = job.get("output")
     if output is None:
         problems.append("[job] output is required: the path of the HDF5 store to write")
-    elif not isinstance(output, str) or not output:
+    elif not isinstance(output, str) or not output.strip():
         problems.append(f"[job] output={output!r} must be a non-empty path string")
+    log = job.get("log")
+    if log is not None and (not isinstance(log, str) or not log.strip()):
+        problems.append(f"[job] log={log!r} must be a non-empty path string")
 
-    levels = srch.get("levels", [1])
-    if not isinstance(levels, list) or not levels:
-        problems.append(f"[search] levels={levels!r} must be a non-empty list of positive integers")
-        levels = []
-    for N in levels:
-        if not (isinstance(N, int) and not isinstance(N, bool) and N >= 1):
-            problems.append(f"[search] level {N!r} is not allowed; levels must be integers >= 1")
+    # [search]
+    levels: tuple[int, ...] = ()
+    try:
+        levels = parse_levels(srch.get("levels", [1]))
+    except InputError as exc:
+        problems.append(str(exc))
 
-    R_min, R_max = srch.get("R_min"), srch.get("R_max")
-    for nm, v in (("R_min", R_min), ("R_max", R_max)):
-        if v is None:
-            problems.append(f"[search] {nm} is required")
-        elif not _is_real(v) or not math.isfinite(v) or v <= 0:
-            problems.append(f"[search] {nm}={v!r} is not allowed; it must be a positive finite number")
-    if _is_real(R_min) and _is_real(R_max) and math.isfinite(R_min) and math.isfinite(R_max) and R_min >= R_max:
-        problems.append(f"[search] R_min={R_min!r} must be smaller than R_max={R_max!r}")
+    windows: list[tuple[float, float]] = []
+    has_pair = "R_min" in srch or "R_max" in srch
+    if "windows" in srch and has_pair:
+        problems.append("[search] give either R_min and R_max, or windows, not both")
+    elif "windows" in srch:
+        ws = srch["windows"]
+        if not isinstance(ws, list) or not ws:
+            problems.append(f"[search] windows={ws!r} must be a non-empty list of [R_min, R_max] pairs")
+            ws = []
+        for w in ws:
+            if not (isinstance(w, list) and len(w) == 2):
+                problems.append(f"[search] window {w!r} must be a pair [R_min, R_max]")
+                continue
+            ok = True
+            for nm, v in zip(("R_min", "R_max"), w):
+                if not _is_real(v) or not math.isfinite(v) or v <= 0:
+                    problems.append(f"[search] window {w!r}: {nm}={v!r} is not allowed; it must "
+                                    "be a positive finite number")
+                    ok = False
+            if ok and w[0] >= w[1]:
+                problems.append(f"[search] window {w!r}: R_min={w[0]!r} must be smaller than "
+                                f"R_max={w[1]!r}")
+                ok = False
+            if ok:
+                windows.append((float(w[0]), float(w[1])))
+        windows.sort()
+        for (a0, b0), (a1, b1) in zip(windows, windows[1:]):
+            if a1 <= b0:
+                problems.append(f"[search] windows [{a0}, {b0}] and [{a1}, {b1}] overlap; merge them")
+    else:
+        R_min, R_max = srch.get("R_min"), srch.get("R_max")
+        ok = True
+        for nm, v in (("R_min", R_min), ("R_max", R_max)):
+            if v is None:
+                problems.append(f"[search] {nm} is required (or give windows = [[R_min, R_max], ...])")
+                ok = False
+            elif not _is_real(v) or not math.isfinite(v) or v <= 0:
+                problems.append(f"[search] {nm}={v!r} is not allowed; it must be a positive finite number")
+                ok = False
+        if ok and R_min >= R_max:
+            problems.append(f"[search] R_min={R_min!r} must be smaller than R_max={R_max!r}")
+        elif ok:
+            windows = [(float(R_min), float(R_max))]
 
     parities = srch.get("parities", list(PARITIES))
     if not isinstance(parities, list) or not parities:
-        problems.append(f"[search] parities={parities!r} must be a non-empty list drawn from {list(PARITIES)}")
+        problems.append(f"[search] parities={parities!r} must be a non-empty list drawn from "
+                        f"{list(PARITIES)}")
         parities = []
     for p in parities:
         if p not in PARITIES:
             problems.append(f"[search] parity {p!r} is not allowed; use 'even' and/or 'odd'")
+    al = srch.get("atkin_lehner", "all")
+    if al not in ATKIN_LEHNER:
+        problems.append(f"[search] atkin_lehner={al!r} is not allowed; use one of "
+                        f"{', '.join(repr(a) for a in ATKIN_LEHNER)}")
     eps = srch.get("eps", 1e-14)
     if not _is_real(eps) or not (1e-16 <= eps <= 1e-4):
-        problems.append(f"[search] eps={eps!r} is not allowed; it must lie in [1e-16, 1e-4]")
+        problems.append(f"[search] eps={eps!r} is not allowed; it must be a number in [1e-16, 1e-4]")
     n_coeffs = srch.get("n_coeffs", 60)
-    if not isinstance(n_coeffs, int) or isinstance(n_coeffs, bool) or not (10 <= n_coeffs <= 20000):
-        problems.append(f"[search] n_coeffs={n_coeffs!r} is not allowed; it must be an integer in [10, 20000]")
+    if not _is_int(n_coeffs) or not (10 <= n_coeffs <= 20000):
+        problems.append(f"[search] n_coeffs={n_coeffs!r} is not allowed; it must be an integer in "
+                        "[10, 20000]")
     step = srch.get("step")
     if step is not None and (not _is_real(step) or not math.isfinite(step) or step <= 0):
         problems.append(f"[search] step={step!r} is not allowed; it must be a positive finite number")
+    elif step is not None and windows and step > min(b - a for a, b in windows) / 2:
+        problems.append(f"[search] step={step!r} is too coarse; it must be at most half the "
+                        "narrowest window")
+    chunk = srch.get("chunk_width", 1.0)
+    if not _is_real(chunk) or not math.isfinite(chunk) or chunk < 0.01:
+        problems.append(f"[search] chunk_width={chunk!r} is not allowed; it must be a number >= 0.01")
+
+    # [executor]
+    backend = exe.get("backend", "joblib")
+    if backend not in BACKENDS:
+        problems.append(f"[executor] backend={backend!r} is not allowed{_suggest(str(backend), list(BACKENDS))}; "
+                        f"use one of {', '.join(repr(b) for b in BACKENDS)}")
+    workers = exe.get("workers", os.cpu_count() or 1)
+    if not _is_int(workers) or not (1 <= workers <= 4096):
+        problems.append(f"[executor] workers={workers!r} is not allowed; use an integer in [1, 4096]")
+        workers = 1
+    address = exe.get("address")
+    if address is not None:
+        if not isinstance(address, str) or not address.strip():
+            problems.append(f"[executor] address={address!r} must be a scheduler address string "
+                            "such as 'tcp://host:8786'")
+        elif backend != "dask":
+            problems.append(f"[executor] address is only used with backend = 'dask' (backend is "
+                            f"{backend!r})")
+    mem = exe.get("memory_limit_gb")
+    mem_explicit = mem is not None
+    if mem is None:
+        mem = _default_memory_gb(workers)
+    elif not _is_real(mem) or not math.isfinite(mem) or mem <= 0:
+        problems.append(f"[executor] memory_limit_gb={mem!r} is not allowed; it must be a "
+                        "positive number")
+        mem = 1.0
 
     if problems:
         where = f"{source_path}: " if source_path else ""
-        raise InputError(where + "; ".join(problems) if len(problems) == 1 else where + "invalid config:\n  - " + "\n  - ".join(problems))
+        if len(problems) == 1:
+            raise InputError(where + problems[0])
+        raise InputError(where + f"{len(problems)} problems in the config:\n  - "
+                         + "\n  - ".join(problems))
 
-    out = Path(output)
-    if not out.is_absolute() and base_dir is not None:
-        out = base_dir / out
+    base = cwd if cwd is not None else Path.cwd()
+    out = Path(output).expanduser()
+    if not out.is_absolute():
+        out = base / out
+    logp = Path(log).expanduser() if log is not None else out.with_name(out.name + ".log")
+    if not logp.is_absolute():
+        logp = base / logp
     return Config(
-        job=JobConfig(name=name, output=out),
+        job=JobConfig(name=name, output=out, log=logp),
         search=SearchConfig(
-            levels=tuple(int(N) for N in levels),
-            R_min=float(R_min),
-            R_max=float(R_max),
+            levels=levels,
+            windows=tuple(windows),
             parities=tuple(dict.fromkeys(parities)),
+            atkin_lehner=al,
             eps=float(eps),
             n_coeffs=int(n_coeffs),
             step=None if step is None else float(step),
+            chunk_width=float(chunk),
         ),
+        executor=ExecutorConfig(backend=backend, workers=int(workers),
+                                address=address, memory_limit_gb=float(mem),
+                                memory_explicit=mem_explicit),
         source_text=source_text,
         source_path=source_path,
     )
 
 
-def load(path: str | Path) -> Config:
-    """Read and validate a TOML job config."""
+def load(path: str | os.PathLike) -> Config:
+    """Read and validate a TOML job config (relative paths: relative to the working directory)."""
     p = Path(path)
     if not p.exists():
         raise InputError(f"config file {str(p)!r} does not exist")
     if not p.is_file():
         raise InputError(f"config path {str(p)!r} is not a file")
-    text = p.read_text(encoding="utf-8")
+    try:
+        text = p.read_text(encoding="utf-8")
+    except UnicodeDecodeError:
+        raise InputError(f"config file {str(p)!r} is not UTF-8 text; expected a TOML job config") from None
+    except OSError as exc:
+        raise InputError(f"cannot read config file {str(p)!r}: {exc.strerror or exc}") from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{p}: not valid TOML ({exc})") from None
     return parse(data, source_text=text, source_path=p)
+
+
+def keys_markdown() -> str:
+    """The documentation of every config key, as Markdown (``docs/config.md``)."""
+    lines = [
+        "# Job config keys",
+        "",
+        "<!-- generated by `maasscomp keys > docs/config.md`; edit maasscomp/config.py instead -->",
+        "",
+        "A job config is a TOML file with the sections below. Unknown sections or keys, wrong",
+        "types and impossible values are reported together, one line each, before any work",
+        "starts (exit code 2). Check a config without running it: `maasscomp check CONFIG`.",
+        "",
+    ]
+    for sec in _SECTIONS:
+        lines += [f"## [{sec}]", "", "| key | type | default | meaning |", "|---|---|---|---|"]
+        for s, key, typ, default, meaning in KEYS:
+            if s != sec:
+                continue
+            if default is None:
+                d = "required" if "required" in typ else "absent"
+            elif isinstance(default, str) and (default.startswith("<") or " " in default):
+                d = default
+            else:
+                d = f"`{json.dumps(default)}`"
+            lines.append(f"| `{key}` | {typ.replace(' (required)', '')} | {d} | {meaning} |")
+        lines.append("")
+    lines += [
+        "## Level rules",
+        "",
+        "`levels` accepts a list of integers, or one string:",
+        "",
+        "- a range: `\"1..12\"` (both ends included; `\"1 to 12\"` also works);",
+        "- a rule: `\"<kind> up to B\"` or `\"<kind> A..B\"`, kind one of "
+        + ", ".join(f"`{k}`" for k in LEVEL_KINDS) + ".",
+        "",
+        "## What a rerun may change",
+        "",
+        "Rerunning a config resumes it: finished tasks are skipped. These keys change the",
+        "numbers stored for a form, so a store refuses a run whose values differ from the",
+        "ones it was written with: "
+        + ", ".join(f"`[{s}] {k}`" for s, k in sorted(_RESULT_KEYS)) + ".",
+        "Everything else (levels, windows, classes, chunk width, executor, paths) may change;",
+        "new tasks are computed and forms already stored are not duplicated.",
+        "",
+    ]
+    return "\n".join(lines)

@@ -1,69 +1,322 @@
-"""Run a job config: search every level and symmetry class, store what is confirmed."""
+"""Run a job config: plan the tasks, run them on an executor, commit results as they arrive.
+
+Order of work (nothing is written before step 3):
+
+1. validate the config and build the plan (:func:`maasscomp.pipeline.tasks.build_plan`);
+2. if the store exists, open it read-only and refuse it when a run recorded in it used
+   result-affecting settings different from this config (:func:`check_compatible`);
+3. start the executor, open the store for writing, record the run, open the log file;
+4. skip the tasks the run already finished, submit the rest, and commit each finished
+   task's forms together with its done mark in ONE store transaction, in the main
+   process, as results arrive.
+
+A kill at any moment therefore loses only the tasks in flight; rerunning the same
+config redoes exactly those.
+"""
 
 from __future__ import annotations
 
-import itertools
+import json
+import logging
+import sys
 import time
+from collections import Counter
 from dataclasses import dataclass, field
-from typing import Callable
+from pathlib import Path
+from typing import Any
 
-from maasscomp.config import Config
-from maasscomp.groups import gamma0
-from maasscomp.hejhal.types import SymmetryClass
-from maasscomp.spectrum.search import SearchSettings, search_window
-from maasscomp.store import Store
+from maasscomp import __version__
+from maasscomp.config import Config, fingerprint, fingerprint_changes
+from maasscomp.errors import InputError, StoreError
+from maasscomp.pipeline.executors import make_executor
+from maasscomp.pipeline.tasks import Plan, TaskOutcome, build_plan, execute
 
+RUN_RECORD_FORMAT = "maasscomp-job"
 
-def symmetry_classes(group, parities: tuple[str, ...]) -> list[SymmetryClass]:
-    """All symmetry classes searched at a level: parities times Atkin--Lehner signs.
-
-    For squarefree levels each prime p | N gets a sign eps_p = +-1 (2^omega(N) sign
-    patterns per parity); other levels are split by parity only.
-    """
-    if not group.is_squarefree:
-        return [SymmetryClass(p) for p in parities]
-    primes = sorted(group.primes)
-    out = []
-    for par in parities:
-        for signs in itertools.product((1, -1), repeat=len(primes)):
-            out.append(SymmetryClass(par, tuple(zip(primes, signs))))
-    return out
+log = logging.getLogger("maasscomp.pipeline")
 
 
 @dataclass
 class JobSummary:
+    """What a run did."""
+
+    output: str
+    run_id: str
+    backend: str = ""
+    workers: int = 1
+    tasks_total: int = 0
+    tasks_skipped: int = 0
+    tasks_run: int = 0
+    failures: list[tuple[str, str]] = field(default_factory=list)
+    aborted: str = ""
+    forms_new: int = 0
     forms_per_class: dict[tuple[int, str], int] = field(default_factory=dict)
+    new_per_class: dict[tuple[int, str], int] = field(default_factory=dict)
     rejected: int = 0
     seconds: float = 0.0
-    output: str = ""
+    task_seconds: float = 0.0
+    commit_seconds: float = 0.0
+    log_path: str = ""
+
+    @property
+    def ok(self) -> bool:
+        return not self.failures and not self.aborted
+
+    def as_text(self) -> str:
+        total = sum(self.forms_per_class.values())
+        lines = [
+            f"run {self.run_id!r}: {self.tasks_run} tasks run, {self.tasks_skipped} already done, "
+            f"{len(self.failures)} failed, in {self.seconds:.1f} s wall "
+            f"({self.task_seconds:.1f} s in tasks on {self.workers} {self.backend} worker(s), "
+            f"{self.commit_seconds:.1f} s writing the store)",
+            f"{total} forms of this config in {self.output} ({self.forms_new} new this run, "
+            f"{self.rejected} candidates rejected):",
+            f"  {'level':>5}  {'class':<14} {'forms':>6} {'new':>5}",
+        ]
+        for (N, lab), n in sorted(self.forms_per_class.items()):
+            lines.append(f"  {N:>5}  {lab:<14} {n:>6} {self.new_per_class.get((N, lab), 0):>5}")
+        if self.failures:
+            lines.append("failed tasks (rerun the same config to retry them):")
+            for tid, err in self.failures:
+                lines.append(f"  {tid}: {err}")
+        if self.aborted:
+            lines.append(f"run stopped early: {self.aborted}; rerun the same config to resume")
+        if self.log_path:
+            lines.append(f"log: {self.log_path}")
+        return "\n".join(lines)
 
 
-def run_job(cfg: Config, *, say: Callable[[str], None] = print, show_progress: bool = True) -> JobSummary:
-    """Search every (level, symmetry class) of the config and store confirmed forms."""
+def run_record(cfg: Config) -> str:
+    """The JSON text stored with the run: normalised config, fingerprint, original TOML."""
+    norm = cfg.normalised()
+    return json.dumps({
+        "format": RUN_RECORD_FORMAT,
+        "version": 1,
+        "package_version": __version__,
+        "fingerprint": fingerprint(norm),
+        "normalised": norm,
+        "toml": cfg.source_text,
+        "source_path": str(cfg.source_path) if cfg.source_path else "",
+    }, indent=1)
+
+
+def read_run_record(text: str) -> dict[str, Any] | None:
+    """Parse a run's config text written by :func:`run_record` (None for other texts)."""
+    try:
+        d = json.loads(text)
+    except (ValueError, TypeError):
+        return None
+    if isinstance(d, dict) and d.get("format") == RUN_RECORD_FORMAT and isinstance(d.get("normalised"), dict):
+        return d
+    return None
+
+
+def check_compatible(st, cfg: Config) -> None:
+    """Raise InputError if a run in the store used different result-affecting settings."""
+    new = cfg.normalised()
+    for rid in st.runs():
+        rec = read_run_record(st.run_info(rid)["config"])
+        if rec is None:
+            continue
+        changes = fingerprint_changes(rec["normalised"], new)
+        if changes:
+            raise InputError(
+                f"{st.path} holds results of run {rid!r} made with other settings: "
+                + "; ".join(changes)
+                + ". Mixing them would give a store of incompatible results; restore the old "
+                "values or write to a new [job] output file")
+
+
+def preflight(cfg: Config) -> Plan:
+    """Everything that can fail before any file is written: config, plan, existing store."""
+    from maasscomp.store import Store
+
+    plan = build_plan(cfg)
+    out = cfg.job.output
+    if out.exists():
+        with Store.open(out, "r") as st:  # StoreError for a foreign or damaged file
+            check_compatible(st, cfg)
+    elif not out.parent.is_dir():
+        raise InputError(f"[job] output={str(out)!r}: directory {out.parent} does not exist")
+    if cfg.job.log.exists() and cfg.job.log.is_dir():
+        raise InputError(f"[job] log={str(cfg.job.log)!r} is a directory; give a file name")
+    if not cfg.job.log.parent.is_dir():
+        raise InputError(f"[job] log={str(cfg.job.log)!r}: directory {cfg.job.log.parent} does not exist")
+    return plan
+
+
+def _task_order(plan: Plan) -> list:
+    # expensive tasks first keeps the last wave of a parallel run short
+    from maasscomp.groups import gamma0
+
+    def cost(t) -> float:
+        return (gamma0(t.level).index * t.chunk.hi) ** 2 * (t.chunk.hi - t.chunk.lo)
+
+    return sorted(plan.tasks, key=lambda t: -cost(t))
+
+
+class _LogFile:
+    """Attach a file handler for one run (and a stderr handler in verbose mode)."""
+
+    def __init__(self, path: Path, verbose: bool) -> None:
+        self.handlers: list[logging.Handler] = []
+        fh = logging.FileHandler(path, encoding="utf-8")
+        fh.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(message)s"))
+        fh.setLevel(logging.DEBUG)
+        self.handlers.append(fh)
+        if verbose:
+            sh = logging.StreamHandler(sys.stderr)
+            sh.setFormatter(logging.Formatter("%(message)s"))
+            sh.setLevel(logging.DEBUG)
+            self.handlers.append(sh)
+        self._old_level = log.level
+        log.setLevel(logging.DEBUG)
+        for h in self.handlers:
+            log.addHandler(h)
+
+    def close(self) -> None:
+        for h in self.handlers:
+            log.removeHandler(h)
+            h.close()
+        log.setLevel(self._old_level)
+
+
+def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
+            show_progress: bool | None = None, executor=None,
+            echo=None) -> JobSummary:
+    """Run (or resume) a job.
+
+    Parameters
+    ----------
+    cfg : Config
+        A validated config (:func:`maasscomp.config.load`).
+    quiet : bool
+        No progress bar and no messages (the log file is still written).
+    verbose : bool
+        Also print every log line (task by task) on stderr.
+    show_progress : bool, optional
+        Progress bar on stderr (default: not quiet).
+    executor : optional
+        An executor to use instead of the one named in the config (already entered or
+        not; it is entered here if it has not been).
+    echo : callable(str), optional
+        Where messages go (default: print to stdout unless quiet).
+
+    Returns
+    -------
+    JobSummary
+
+    Raises
+    ------
+    InputError, StoreError
+        Before any work: bad config, foreign store file, incompatible earlier run.
+    """
     from tqdm import tqdm
 
+    from maasscomp.store import Store
+
+    if echo is None:
+        echo = (lambda _m: None) if quiet else print
+    if show_progress is None:
+        show_progress = not quiet
     t0 = time.perf_counter()
-    s = cfg.search
-    settings = SearchSettings(eps=s.eps, n_coeffs=s.n_coeffs)
-    summary = JobSummary(output=str(cfg.job.output))
-    with Store.open(cfg.job.output, "a") as st:
-        run_id = st.begin_run(config_text=cfg.source_text)
-        for N in s.levels:
-            group = gamma0(N)
-            for sym in symmetry_classes(group, s.parities):
-                bar = tqdm(total=1, desc=f"N={N} {sym.label}", unit="R", disable=not show_progress, leave=False)
+    plan = preflight(cfg)
+    run_id = cfg.job.name
+    summary = JobSummary(output=str(cfg.job.output), run_id=run_id, tasks_total=len(plan.tasks),
+                         log_path=str(cfg.job.log))
 
-                def prog(done: int, total: int) -> None:
-                    bar.total = total
-                    bar.n = done
-                    bar.refresh()
+    own_executor = executor is None
+    ex = make_executor(cfg.executor) if own_executor else executor
+    entered = False
+    logf = None
+    st = None
+    try:
+        if own_executor:
+            ex.__enter__()
+            entered = True
+        summary.backend, summary.workers = ex.name, ex.workers
+        st = Store.open(cfg.job.output, "a")
+        check_compatible(st, cfg)  # again under the writer lock
+        st.begin_run(run_id, config_text=run_record(cfg))
+        logf = _LogFile(cfg.job.log, verbose)
+        done = st.done_tasks(run_id)
+        todo = [t for t in _task_order(plan) if t.task_id not in done]
+        summary.tasks_skipped = len(plan.tasks) - len(todo)
+        log.info("run %r of %s (maasscomp %s), fingerprint %s, store %s",
+                 run_id, cfg.source_path or "<config>", __version__,
+                 fingerprint(cfg.normalised()), cfg.job.output)
+        log.info("plan: %s", plan.describe())
+        log.info("%d tasks to run, %d already done; executor %s with %d worker(s)",
+                 len(todo), summary.tasks_skipped, ex.name, ex.workers)
+        echo(f"{cfg.job.name}: {len(plan.tasks)} tasks ({summary.tasks_skipped} already done), "
+             f"{ex.name} executor with {ex.workers} worker(s) -> {cfg.job.output}")
 
-                res = search_window(group, sym, s.R_min, s.R_max, settings, step=s.step, progress=prog)
-                bar.close()
-                st.add_forms(res.forms, on_duplicate="skip", config_text=cfg.source_text, run_id=run_id)
-                summary.forms_per_class[(N, sym.label)] = len(res.forms)
-                summary.rejected += sum(not c.accepted for c in res.candidates)
-                say(f"level {N} {sym.label:>10}: {len(res.forms)} forms "
-                    + ", ".join(f"R={f.R:.10f}" for f in res.forms))
-    summary.seconds = time.perf_counter() - t0
-    return summary
+        bar = tqdm(total=len(plan.tasks), initial=summary.tasks_skipped, desc="search",
+                   unit="task", disable=not show_progress, file=sys.stderr, dynamic_ncols=True,
+                   smoothing=0.1)
+        new_counts: Counter = Counter()
+        try:
+            for outcome in ex.as_completed(execute, todo):
+                _commit(st, outcome, cfg, run_id, summary, new_counts)
+                bar.update(1)
+                bar.set_postfix(forms=summary.forms_new, failed=len(summary.failures), refresh=False)
+        except (KeyboardInterrupt, InputError, StoreError):
+            raise
+        except Exception as exc:  # a worker died, the scheduler went away, ...
+            summary.aborted = f"{type(exc).__name__}: {exc}"
+            log.error("executor failure, stopping: %s", summary.aborted)
+        finally:
+            bar.close()
+        summary.new_per_class = dict(new_counts)
+        summary.forms_per_class = _count_forms(st, cfg, plan)
+        summary.seconds = time.perf_counter() - t0
+        log.info("summary:\n%s", summary.as_text())
+        return summary
+    except KeyboardInterrupt:
+        log.warning("interrupted; finished tasks are stored, rerun the same config to resume")
+        raise
+    finally:
+        if st is not None:
+            st.close()
+        if entered:
+            ex.__exit__(None, None, None)
+        if logf is not None:
+            logf.close()
+
+
+def _commit(st, outcome: TaskOutcome, cfg: Config, run_id: str, summary: JobSummary,
+            new_counts: Counter) -> None:
+    summary.tasks_run += 1
+    summary.task_seconds += outcome.seconds
+    if not outcome.ok:
+        summary.failures.append((outcome.task_id, outcome.error))
+        log.error("task %s failed after %.1f s on %s: %s\n%s", outcome.task_id, outcome.seconds,
+                  outcome.worker, outcome.error, outcome.detail)
+        return
+    out = outcome.output
+    t = time.perf_counter()
+    with st.transaction():
+        before = len(st)
+        keys = st.add_forms(out.forms, on_duplicate="skip", config_text=cfg.source_text, run_id=run_id)
+        st.mark_task_done(outcome.task_id, keys, run_id=run_id)
+        added = len(st) - before
+    summary.commit_seconds += time.perf_counter() - t
+    summary.forms_new += added
+    summary.rejected += len(out.rejected)
+    if out.forms:
+        new_counts[(out.forms[0].level, out.forms[0].symmetry.label)] += added
+    log.info("task %s: %d forms (%d new), %d rejected candidates, %.2f s on %s",
+             outcome.task_id, len(out.forms), added, len(out.rejected), outcome.seconds, outcome.worker)
+    for R, reason in out.rejected:
+        log.debug("  rejected candidate R=%.12f: %s", R, reason)
+
+
+def _count_forms(st, cfg: Config, plan: Plan) -> dict[tuple[int, str], int]:
+    counts = {}
+    for N, labels in plan.classes.items():
+        for lab in labels:
+            n = 0
+            for a, b in cfg.search.windows:
+                n += len(st.select(level=N, symmetry=lab, R_min=a, R_max=b))
+            counts[(N, lab)] = n
+    return counts

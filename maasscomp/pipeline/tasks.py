@@ -1,0 +1,302 @@
+"""Split a job into independent tasks and run one task (in any process).
+
+A search task is one level x one symmetry class x one R chunk. Tasks are small frozen
+dataclasses that pickle cheaply; :func:`execute` runs one of them and never raises for a
+numerical failure: it returns a :class:`TaskOutcome` with the error text, so one bad
+task cannot stop a sweep.
+
+Chunk boundaries (exact, tested in ``tests/pipeline``)
+----------------------------------------------------
+The R windows are cut at the multiples of ``chunk_width`` (so chunk ids survive a change
+of window). A chunk [a, b] is searched on the slightly larger closed window
+[a - OVERLAP, b + OVERLAP]; it keeps the confirmed forms with
+
+    a - ETA <= R <= b + ETA     (ETA only at inner chunk edges; outer window ends are exact).
+
+Two neighbouring chunks compute the same eigenvalue r with estimates r1, r2 that differ
+by far less than ETA (both are confirmed to ``R_tol`` = 1e-8 at two heights). If r lies
+within ETA of the shared edge both chunks keep it, and the store's duplicate detection
+(|dR| <= 1e-6, same level and class) stores it once; otherwise both chunks agree on
+which side of the edge r lies, and exactly one keeps it. An eigenvalue is lost only if
+r1 > b + ETA and r2 < b - ETA, i.e. |r1 - r2| > 2 ETA, which confirmation rules out. The
+overlap OVERLAP >> ETA keeps every kept root well inside the searched window, away from
+the window ends where a sign change could be missed.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import time
+import traceback
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+from maasscomp.config import Config, is_squarefree
+from maasscomp.errors import InputError
+
+#: Extra R searched on each side of a chunk.
+OVERLAP = 1e-3
+#: Half-width of the band around an inner chunk edge in which both neighbours keep a form.
+ETA = 1e-7
+
+_ID_RE = re.compile(r"^search:N=(?P<N>\d+):(?P<label>[^:]+):\[(?P<a>[^,]+),(?P<b>[^\]]+)\]$")
+
+
+def _fmt(x: float) -> str:
+    return repr(float(x))
+
+
+@dataclass(frozen=True)
+class Chunk:
+    """A piece [lo, hi] of an R window; ``inner_lo``/``inner_hi`` mark edges shared with a
+    neighbouring chunk (where the ETA band applies)."""
+
+    lo: float
+    hi: float
+    inner_lo: bool
+    inner_hi: bool
+
+    @property
+    def keep_lo(self) -> float:
+        return self.lo - ETA if self.inner_lo else self.lo
+
+    @property
+    def keep_hi(self) -> float:
+        return self.hi + ETA if self.inner_hi else self.hi
+
+    def keeps(self, R: float) -> bool:
+        """True if a form found at R belongs to this chunk (see module docstring)."""
+        return self.keep_lo <= R <= self.keep_hi
+
+    @property
+    def search_lo(self) -> float:
+        return max(self.lo - OVERLAP, 0.5 * self.lo)
+
+    @property
+    def search_hi(self) -> float:
+        return self.hi + OVERLAP
+
+
+def chunk_window(R_min: float, R_max: float, width: float) -> list[Chunk]:
+    """Cut [R_min, R_max] at the multiples of ``width`` strictly inside it."""
+    if not (0 < R_min < R_max) or not (width > 0):
+        raise InputError(f"cannot chunk window [{R_min!r}, {R_max!r}] with width {width!r}")
+    edges = [float(R_min)]
+    k = math.floor(R_min / width) + 1
+    tiny = 1e-9 * max(1.0, R_max)
+    while True:
+        e = round(k * width, 12)
+        if e >= R_max - tiny:
+            break
+        if e > R_min + tiny:
+            edges.append(e)
+        k += 1
+    edges.append(float(R_max))
+    n = len(edges) - 1
+    return [Chunk(edges[i], edges[i + 1], i > 0, i < n - 1) for i in range(n)]
+
+
+@dataclass(frozen=True)
+class SearchTask:
+    """Search one symmetry class of one level in one R chunk."""
+
+    level: int
+    label: str
+    chunk: Chunk
+    eps: float
+    n_coeffs: int
+    step: float | None
+    general: bool = False  # non-squarefree level: multi-cusp search by parity
+
+    stage = "search"
+
+    @property
+    def task_id(self) -> str:
+        return f"search:N={self.level}:{self.label}:[{_fmt(self.chunk.lo)},{_fmt(self.chunk.hi)}]"
+
+    def run(self) -> "SearchOutput":
+        from maasscomp.groups import gamma0
+        from maasscomp.hejhal.types import SymmetryClass
+        from maasscomp.spectrum.search import SearchSettings
+
+        group = gamma0(self.level)
+        settings = SearchSettings(eps=self.eps, n_coeffs=self.n_coeffs)
+        sym = SymmetryClass.from_label(self.label)
+        c = self.chunk
+        if self.general:
+            search_window_general = general_search()
+            assert search_window_general is not None
+            res = search_window_general(group, sym.parity, c.search_lo, c.search_hi, settings,
+                                        step=self.step)
+        else:
+            from maasscomp.spectrum.search import search_window
+
+            res = search_window(group, sym, c.search_lo, c.search_hi, settings, step=self.step)
+        kept = tuple(f for f in res.forms if c.keeps(f.R))
+        rejected = tuple((cand.R, cand.reason) for cand in res.candidates
+                         if not cand.accepted and c.keeps(cand.R))
+        return SearchOutput(forms=kept, rejected=rejected, grid_step=float(res.grid_step))
+
+
+@dataclass(frozen=True)
+class SearchOutput:
+    forms: tuple
+    rejected: tuple[tuple[float, str], ...]
+    grid_step: float
+
+
+@dataclass(frozen=True)
+class TaskOutcome:
+    """What comes back from a worker: the output, or the error that stopped the task."""
+
+    task_id: str
+    ok: bool
+    output: Any = None
+    error: str = ""
+    detail: str = ""
+    seconds: float = 0.0
+    worker: str = ""
+
+
+def execute(task) -> TaskOutcome:
+    """Run one task; numerical and input errors become a failed :class:`TaskOutcome`."""
+    import os
+    import socket
+
+    t0 = time.perf_counter()
+    where = f"{socket.gethostname()}:{os.getpid()}"
+    try:
+        out = task.run()
+    except Exception as exc:  # noqa: BLE001 - reported per task, the sweep goes on
+        return TaskOutcome(task.task_id, False, None, f"{type(exc).__name__}: {exc}",
+                           traceback.format_exc(), time.perf_counter() - t0, where)
+    return TaskOutcome(task.task_id, True, out, "", "", time.perf_counter() - t0, where)
+
+
+def parse_task_id(task_id: str) -> dict[str, Any] | None:
+    """Level, class label and chunk [lo, hi] of a search task id (None for other ids)."""
+    m = _ID_RE.match(task_id)
+    if not m:
+        return None
+    return {"level": int(m["N"]), "label": m["label"], "lo": float(m["a"]), "hi": float(m["b"])}
+
+
+# ---------------------------------------------------------------- planning
+
+
+def general_search() -> Callable | None:
+    """The multi-cusp window search for non-squarefree levels, if this version has it."""
+    try:
+        from maasscomp.spectrum.general import search_window_general
+    except ImportError:
+        return None
+    return search_window_general
+
+
+def class_labels(level: int, parities: tuple[str, ...], atkin_lehner: str) -> list[str]:
+    """Symmetry-class labels searched at a level (see :func:`maasscomp.spectrum.search.symmetry_classes`)."""
+    from maasscomp.groups import gamma0
+    from maasscomp.spectrum.search import symmetry_classes
+
+    out = []
+    for sym in symmetry_classes(gamma0(level), tuple(parities)):
+        signs = [s for _, s in sym.al_signs]
+        if atkin_lehner == "plus" and any(s < 0 for s in signs):
+            continue
+        if atkin_lehner == "minus" and any(s > 0 for s in signs):
+            continue
+        out.append(sym.label)
+    return out
+
+
+def estimate_task_memory(level: int, R_max: float, eps: float, n_coeffs: int) -> tuple[float, dict]:
+    """Bytes one search task at this level up to R_max needs, and the sizes behind it.
+
+    The largest arrays of a Hejhal system are Q x M (K-Bessel and phase tables, about
+    eight of them alive at once while the matrix is built) and M x M (the matrix and its
+    factorisation), with M = n_cusps * M0 for the multi-cusp system. M0 follows the
+    truncation rule of :func:`maasscomp.hejhal.params.truncation_M0` (its starting guess,
+    an upper bound), and the final solve for the stored coefficients needs M0 of about
+    3 n_coeffs (:mod:`maasscomp.spectrum.search`).
+    """
+    from maasscomp.groups import gamma0
+
+    g = gamma0(level)
+    Y = 0.80 * g.fundamental_domain_height  # the lower of the two search heights
+    L = math.log(1.0 / eps)
+    R = R_max + 1.0
+    guess = R + 3.0 * (1.5 * L / math.sqrt(2)) ** (2 / 3) * max(R, 1.0) ** (1 / 3) + L + math.pi * R / 2
+    M0 = max(int(math.ceil(guess / (2 * math.pi * Y))) + 4, 3 * n_coeffs)
+    cusps = 1 if g.is_squarefree else len(g.cusps)
+    M = cusps * M0
+    Q = M + max(8, M // 8)
+    nbytes = 8.0 * (8 * Q * M + 3 * M * M)
+    return nbytes, {"M0": M0, "Q": Q, "n_cusps": cusps, "Y": Y}
+
+
+@dataclass(frozen=True)
+class Plan:
+    """Every task of a job, in a fixed order, with what the planner checked."""
+
+    tasks: tuple[SearchTask, ...]
+    classes: dict[int, tuple[str, ...]] = field(default_factory=dict)
+    memory_gb: dict[int, float] = field(default_factory=dict)
+
+    def describe(self) -> str:
+        lines = [f"{len(self.tasks)} search tasks over {len(self.classes)} levels"]
+        for N, labels in self.classes.items():
+            n = sum(t.level == N for t in self.tasks)
+            lines.append(f"  level {N:>4}: {len(labels)} classes ({', '.join(labels)}), {n} tasks, "
+                         f"about {self.memory_gb[N]:.2f} GB per task")
+        return "\n".join(lines)
+
+
+def build_plan(cfg: Config) -> Plan:
+    """All tasks of a validated config; raise InputError for what cannot be run.
+
+    Checks that need the groups: non-squarefree levels need the multi-cusp search, and
+    the systems of one task must fit in ``[executor] memory_limit_gb``. Touches no file.
+    """
+    s = cfg.search
+    problems: list[str] = []
+    have_general = general_search() is not None
+    tasks: list[SearchTask] = []
+    classes: dict[int, tuple[str, ...]] = {}
+    mem: dict[int, float] = {}
+    chunks = [c for (a, b) in s.windows for c in chunk_window(a, b, s.chunk_width)]
+    nonsq = [N for N in s.levels if not is_squarefree(N)]
+    if nonsq and not have_general:
+        problems.append(
+            f"[search] levels {', '.join(map(str, nonsq))} {'is' if len(nonsq) == 1 else 'are'} not "
+            "squarefree: searches at non-squarefree levels are not yet supported by this "
+            "version; use squarefree levels (e.g. levels = \"squarefree up to 50\")")
+    limit = cfg.executor.memory_limit_gb
+    for N in s.levels:
+        general = not is_squarefree(N)
+        if general and not have_general:
+            continue
+        nbytes, info = estimate_task_memory(N, s.R_max, s.eps, s.n_coeffs)
+        mem[N] = nbytes / 2**30
+        if mem[N] > limit:
+            problems.append(
+                f"level {N} up to R={s.R_max:g}: one task needs about {mem[N]:.1f} GB "
+                f"(M0={info['M0']}, Q={info['Q']}, {info['n_cusps']} expansion(s)), more than "
+                f"[executor] memory_limit_gb = {limit:.3g}; lower R_max or n_coeffs, or raise "
+                "memory_limit_gb")
+            continue
+        labels = tuple(class_labels(N, s.parities, s.atkin_lehner))
+        if not labels:
+            problems.append(f"level {N}: no symmetry class left after parities={list(s.parities)} "
+                            f"and atkin_lehner={s.atkin_lehner!r}")
+            continue
+        classes[N] = labels
+        for lab in labels:
+            for c in chunks:
+                tasks.append(SearchTask(N, lab, c, s.eps, s.n_coeffs, s.step, general))
+    if problems:
+        where = f"{cfg.source_path}: " if cfg.source_path else ""
+        if len(problems) == 1:
+            raise InputError(where + problems[0])
+        raise InputError(where + f"{len(problems)} problems in the config:\n  - " + "\n  - ".join(problems))
+    return Plan(tasks=tuple(tasks), classes=classes, memory_gb=mem)
