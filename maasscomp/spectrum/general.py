@@ -1,0 +1,532 @@
+"""Eigenvalue search for any level with multiplicities (parity classes only).
+
+For a level N that is not squarefree there is no Atkin--Lehner splitting of the whole
+space, and one parity class can hold eigenspaces of dimension m > 1: the oldforms g(d z),
+d | N/M, of a newform g of level M share R and parity (Atkin & Lehner, Math. Ann. 185
+(1970) 134-160), and twists may add newforms at the same R. A root of det A(R) of even
+multiplicity does not change sign, so the scan of the multi-cusp system
+(:class:`maasscomp.hejhal.multicusp.MultiCuspSystem`) looks at both
+
+* sign changes of det A(R) (refined by Brent's method), and
+* interior local minima of log|det A(R)| without a sign change (refined by bounded
+  minimisation),
+
+on a grid whose step is a fraction of the mean spacing from Weyl's law (formulas ref. §2).
+Each candidate R is then tested with the singular value decomposition:
+
+1. multiplicity m = number of relative singular values below ``mult_tol`` (at an
+   eigenvalue the m smallest ones are at the truncation level ~1e-15 and grow like
+   |R - R_true|; the next one is of the order of the distance to the next eigenvalue);
+2. the root (or minimum) at a second height Y2 agrees and has the same multiplicity;
+3. the null spaces at Y1 and Y2 span the same coefficient subspace (principal angles of
+   the well-determined coefficients, Björck & Golub, Math. Comp. 27 (1973) 579-594);
+4. at a low storage height the eigenspace is recomputed and a basis chosen: Hecke
+   eigenforms with c_inf(1) = 1 when the Hecke operators T_p (p not dividing N) separate
+   the space (their matrix on the span follows from lambda(p) a(n) = a(pn) + a(n/p),
+   Iwaniec, *Topics in Classical Automorphic Forms* (1997) §6), otherwise the reduced
+   echelon basis of the coefficients at infinity;
+5. every basis member satisfies the Hecke eigen-relations for p not dividing N, and
+   Hecke eigenforms also multiplicativity (:func:`maasscomp.spectrum.hecke.hecke_residual`).
+
+New/old: R is checked at every proper divisor level M of N (same parity; oldforms keep
+the parity of g). With m_M the multiplicity at level M, the numbers of newforms follow
+from m_M = sum_{M' | M} new_{M'} d(M/M') (Atkin & Lehner 1970), and the oldform
+dimension at N is sum_{M | N, M < N} new_M d(N/M).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+from scipy.linalg import subspace_angles
+from scipy.optimize import brentq, minimize_scalar
+
+from maasscomp.errors import InputError
+from maasscomp.hejhal.multicusp import MultiCuspSystem
+from maasscomp.hejhal.params import choose_params
+from maasscomp.hejhal.types import PARITIES, SolverParams, SymmetryClass
+from maasscomp.spectrum.form import Form
+from maasscomp.spectrum.hecke import hecke_residual
+from maasscomp.spectrum.search import Candidate, SearchResult, SearchSettings, mean_spacing
+
+#: Relative singular values (equilibrated matrix, over the largest) below this count as
+#: zero. Measured: at eigenvalues the small singular values are 1e-17..3e-15 for levels
+#: 1, 4, 8, 9, 12; they grow like |dR| (about 1e-10..5e-9 at dR = 1e-9), and the first
+#: non-zero one is above 1e-4 in every scanned window (see the report of issue 3).
+MULTIPLICITY_TOL = 1e-8
+
+#: Relative coefficient accuracy below which an entry counts as well determined
+#: (column scaling over its best value, i.e. roughly the error amplification).
+_GOOD_AMPLIFICATION = 1e6
+
+#: T_p eigenvalues closer than this are treated as equal (one Hecke cluster).
+_CLUSTER_TOL = 1e-5
+
+
+def _small_primes(level: int, count: int = 4) -> list[int]:
+    out, p = [], 2
+    while len(out) < count:
+        if all(p % q for q in range(2, int(math.isqrt(p)) + 1)) and level % p:
+            out.append(p)
+        p += 1
+    return out
+
+
+def _divisors(n: int) -> list[int]:
+    return [d for d in range(1, n + 1) if n % d == 0]
+
+
+# ----------------------------------------------------------------------------------------
+# one-dimensional refinement
+# ----------------------------------------------------------------------------------------
+
+
+def _refine_sign_change(system: MultiCuspSystem, a: float, b: float) -> float:
+    la = system.log_det(a)[1]
+    lb = system.log_det(b)[1]
+    ref = max(la, lb)
+
+    def g(R: float) -> float:
+        s, ld = system.log_det(R)
+        return s * math.exp(max(ld - ref, -700.0)) if s != 0 else 0.0
+
+    return float(brentq(g, a, b, xtol=1e-15, rtol=4 * np.finfo(float).eps, maxiter=200))
+
+
+def _refine_minimum(system: MultiCuspSystem, a: float, b: float) -> float:
+    res = minimize_scalar(
+        lambda R: system.log_det(R)[1], bounds=(a, b), method="bounded", options={"xatol": 1e-14, "maxiter": 400}
+    )
+    return float(res.x)
+
+
+def _root_near(system: MultiCuspSystem, R: float, width: float, odd: bool) -> float | None:
+    """det root (odd multiplicity) or log|det| minimum (even) of ``system`` near R."""
+    for w in (width, 4 * width, 16 * width):
+        a, b = R - w, R + w
+        if odd:
+            if system.log_det(a)[0] * system.log_det(b)[0] < 0:
+                return _refine_sign_change(system, a, b)
+        else:
+            r = _refine_minimum(system, a, b)
+            if a + 1e-3 * w < r < b - 1e-3 * w:
+                return r
+    return None
+
+
+# ----------------------------------------------------------------------------------------
+# coefficient subspaces
+# ----------------------------------------------------------------------------------------
+
+
+def _good_mask(system: MultiCuspSystem, R: float) -> np.ndarray:
+    """Well-determined storage entries (n_cusps, M0) of ``system`` at R."""
+    sc = system.coefficient_scale(R)
+    return sc <= _GOOD_AMPLIFICATION * sc.min()
+
+
+def _real_rows(C: np.ndarray, mask: np.ndarray) -> np.ndarray:
+    """Stack real and imaginary parts of the masked entries: (k, n_cusps, M) -> (rows, k)."""
+    X = C[:, mask].T
+    if np.iscomplexobj(X):
+        X = np.vstack([X.real, X.imag])
+    return X
+
+
+def _subspace_gap(C1: np.ndarray, C2: np.ndarray, mask: np.ndarray) -> float:
+    """sin of the largest principal angle between two coefficient subspaces on ``mask``."""
+    X1, X2 = _real_rows(C1, mask), _real_rows(C2, mask)
+    return float(np.sin(np.max(subspace_angles(X1, X2))))
+
+
+# ----------------------------------------------------------------------------------------
+# Hecke structure of an eigenspace
+# ----------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Cluster:
+    """Joint eigenspace of the T_p (p not dividing N) inside one eigenspace."""
+
+    weights: np.ndarray  # (m, d) combinations of the null vectors spanning the cluster
+    eigenvalues: dict[int, float]  # lambda_p
+
+
+def _hecke_matrix(B: np.ndarray, p: int) -> tuple[np.ndarray, float]:
+    """Matrix H of T_p on the span of the columns of B (coefficients at infinity,
+    n = 1..K), from (T_p b)(n) = b(pn) + b(n/p) on n <= K/p, and its relative fit residual."""
+    K = B.shape[0]
+    L = K // p
+    n = np.arange(1, L + 1)
+    TB = B[p * n - 1].copy()
+    div = n % p == 0
+    TB[div] += B[n[div] // p - 1]
+    H, *_ = np.linalg.lstsq(B[:L], TB, rcond=None)
+    res = np.linalg.norm(B[:L] @ H - TB) / max(np.linalg.norm(TB), 1e-300)
+    return H, float(res)
+
+
+def _hecke_clusters(B: np.ndarray, level: int) -> list[_Cluster]:
+    """Split span(B) into joint eigenspaces of T_p, p not dividing N (small p).
+
+    B has shape (K, m): coefficients at infinity of m independent forms. A fixed generic
+    combination of the T_p is diagonalised; eigenvalues within _CLUSTER_TOL form one
+    cluster.
+    """
+    K, m = B.shape
+    primes = [p for p in _small_primes(level, 4) if K // p >= m + 2]
+    if not primes or m == 1:
+        lam = {}
+        for p in primes:
+            H, _ = _hecke_matrix(B, p)
+            lam[p] = float(H[0, 0])
+        return [_Cluster(np.eye(m), lam)]
+    Hs = {p: _hecke_matrix(B, p)[0] for p in primes}
+    # generic combination (fixed irrational-looking weights keep the run deterministic)
+    w = [1.0, 0.7548776662, 0.5698402910, 0.4301597090]
+    Hc = sum(wi * Hs[p] for wi, p in zip(w, primes))
+    ev, V = np.linalg.eig(Hc)
+    ev = ev.real
+    V = V.real
+    order = np.argsort(ev)
+    ev, V = ev[order], V[:, order]
+    groups: list[list[int]] = [[0]]
+    for i in range(1, m):
+        if abs(ev[i] - ev[groups[-1][-1]]) <= _CLUSTER_TOL * max(1.0, abs(ev[i])):
+            groups[-1].append(i)
+        else:
+            groups.append([i])
+    out = []
+    for g in groups:
+        W = V[:, g]
+        if len(g) > 1:
+            # an orthonormal basis of the cluster span (eigenvectors of a nearly scalar
+            # block are arbitrary, their span is not)
+            W = np.linalg.qr(W)[0]
+        lam = {}
+        for p in primes:
+            Bw = B @ W
+            # Rayleigh-type least squares: T_p (B W) = (B W) lam on the fit rows
+            H, _ = _hecke_matrix(Bw, p)
+            lam[p] = float(np.trace(H) / H.shape[0])
+        out.append(_Cluster(W, lam))
+    return out
+
+
+def _rref_weights(B: np.ndarray, tol: float = 1e-8) -> np.ndarray:
+    """Weights W (m x m) such that (B W) is the reduced echelon basis of span(B):
+    column i has a 1 at its pivot n_i, zeros at the other pivots, pivots increasing."""
+    K, m = B.shape
+    X = B.T.copy()  # rows = forms
+    W = np.eye(m)
+    scale = np.max(np.abs(X))
+    row = 0
+    for col in range(K):
+        if row == m:
+            break
+        piv = row + int(np.argmax(np.abs(X[row:, col])))
+        if abs(X[piv, col]) <= tol * scale:
+            continue
+        X[[row, piv]] = X[[piv, row]]
+        W[:, [row, piv]] = W[:, [piv, row]]
+        f = X[row, col]
+        X[row] /= f
+        W[:, row] /= f
+        for r in range(m):
+            if r != row and X[r, col] != 0.0:
+                g = X[r, col]
+                X[r] -= g * X[row]
+                W[:, r] -= g * W[:, row]
+        row += 1
+    return W
+
+
+def _eigen_residual(b: np.ndarray, lam: dict[int, float], nmax: int) -> float:
+    """max |b(pn) + b(n/p) - lambda_p b(n)| over p in lam, pn <= nmax, relative to max|b|."""
+    nmax = min(nmax, b.size)
+    worst = 0.0
+    for p, lp in lam.items():
+        for n in range(1, nmax // p + 1):
+            v = b[p * n - 1] + (b[n // p - 1] if n % p == 0 else 0.0) - lp * b[n - 1]
+            worst = max(worst, abs(v))
+    return float(worst / max(np.max(np.abs(b[:nmax])), 1e-300))
+
+
+# ----------------------------------------------------------------------------------------
+# the search
+# ----------------------------------------------------------------------------------------
+
+
+def search_window_general(
+    group,
+    parity: str,
+    R_min: float,
+    R_max: float,
+    settings: SearchSettings | None = None,
+    *,
+    step: float | None = None,
+    progress: Callable[[int, int], None] | None = None,
+    mult_tol: float = MULTIPLICITY_TOL,
+    classify: bool = True,
+) -> SearchResult:
+    """Find every eigenvalue of one parity class of Gamma0(N), any N, with multiplicities.
+
+    Parameters
+    ----------
+    group : Gamma0
+        From :func:`maasscomp.groups.gamma0`.
+    parity : {"even", "odd"}
+    R_min, R_max : float
+        The window, 0 < R_min < R_max.
+    settings : SearchSettings, optional
+        Shared knobs of the search (heights, grid density, tolerances, stored length).
+    step : float, optional
+        Grid step override (default: mean spacing of the class / steps_per_spacing,
+        capped by max_step; Weyl's law leading term for the two parity classes).
+    progress : callable(done, total), optional
+        Called after each grid point.
+    mult_tol : float
+        Relative singular value below which a direction counts as null
+        (:data:`MULTIPLICITY_TOL`).
+    classify : bool
+        Decide new/old by checking R at the proper divisor levels (costs one SVD per
+        divisor level and candidate).
+
+    Returns
+    -------
+    SearchResult
+        One :class:`Form` per basis member of every confirmed eigenspace (sorted by R, then
+        basis index) with ``multiplicity`` and ``basis_index`` set, and every candidate with
+        the reason it was kept or rejected. ``symmetry`` carries the parity only.
+    """
+    settings = settings or SearchSettings()
+    if parity not in PARITIES:
+        raise InputError(f"parity {parity!r} is not allowed; use 'even' or 'odd'")
+    for name, v in (("R_min", R_min), ("R_max", R_max)):
+        if not (isinstance(v, (int, float)) and math.isfinite(v) and v > 0):
+            raise InputError(f"{name}={v!r} is not allowed; it must be a positive finite number")
+    if R_min >= R_max:
+        raise InputError(f"R_min={R_min!r} must be smaller than R_max={R_max!r}")
+    if not (0 < mult_tol < 1e-3):
+        raise InputError(f"mult_tol={mult_tol!r} is not allowed; it must lie in (0, 1e-3)")
+    if step is None:
+        step = min(settings.max_step, mean_spacing(group.level, 2, R_max, group.index) / settings.steps_per_spacing)
+    if not (step > 0 and math.isfinite(step)):
+        raise InputError(f"grid step={step!r} is not allowed; it must be a positive finite number")
+
+    Y0 = group.fundamental_domain_height
+    Y1, Y2 = settings.Y1_frac * Y0, settings.Y2_frac * Y0
+    p1 = choose_params(R_max + 1.0, Y1, settings.eps)
+    p2 = choose_params(R_max + 1.0, Y2, settings.eps)
+    sys1 = MultiCuspSystem(group, parity, p1)
+    sys2 = MultiCuspSystem(group, parity, p2)
+
+    # one extra grid point beyond each end so that minima at the window edges are interior
+    n = max(2, int(math.ceil((R_max - R_min) / step)) + 1)
+    grid = np.concatenate(([R_min - step], np.linspace(R_min, R_max, n), [R_max + step]))
+    grid = grid[grid > 0]
+    signs = np.empty(grid.size)
+    logs = np.empty(grid.size)
+    for i, R in enumerate(grid):
+        signs[i], logs[i] = sys1.log_det(float(R))
+        if progress is not None:
+            progress(i + 1, grid.size)
+
+    raw: list[tuple[float, str]] = []
+    for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
+        raw.append((_refine_sign_change(sys1, float(grid[i]), float(grid[i + 1])), "sign change"))
+    for i in range(1, grid.size - 1):
+        if logs[i] < logs[i - 1] and logs[i] < logs[i + 1] and signs[i - 1] == signs[i] == signs[i + 1]:
+            raw.append((_refine_minimum(sys1, float(grid[i - 1]), float(grid[i + 1])), "log|det| minimum"))
+    raw.sort()
+    merged: list[tuple[float, str]] = []
+    for R, how in raw:
+        if merged and abs(R - merged[-1][0]) < 1e-7:
+            continue
+        merged.append((R, how))
+
+    candidates: list[Candidate] = []
+    forms: list[Form] = []
+    for Rc, how in merged:
+        if not (R_min <= Rc <= R_max):
+            continue
+        ok, reason, new_forms = _confirm(group, parity, Rc, sys1, sys2, settings, mult_tol, classify)
+        candidates.append(Candidate(R=Rc, accepted=ok, reason=f"{how}: {reason}"))
+        forms.extend(new_forms)
+    return SearchResult(
+        level=group.level,
+        symmetry=SymmetryClass(parity),
+        R_min=float(R_min),
+        R_max=float(R_max),
+        forms=tuple(sorted(forms, key=lambda f: (f.R, f.basis_index))),
+        candidates=tuple(candidates),
+        grid_step=float(step),
+        params=p1,
+    )
+
+
+def _multiplicity(sv: np.ndarray, tol: float) -> int:
+    return int(np.sum(sv < tol))
+
+
+def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: float, classify: bool):
+    """Independent confirmation of a candidate; returns (ok, reason, forms)."""
+    sv1, U1 = sys1.null_space(Rc, mult_tol)
+    m = U1.shape[1]
+    if m == 0:
+        return False, f"no null direction (smallest relative singular value {sv1[0]:.1e})", []
+    R2 = _root_near(sys2, Rc, max(1e-7, 1e3 * settings.R_tol), odd=bool(m % 2))
+    if R2 is None:
+        return False, f"multiplicity {m} at Y1 but no matching root at Y2", []
+    dR = abs(R2 - Rc)
+    if dR > settings.R_tol:
+        return False, f"roots at Y1 and Y2 differ by {dR:.2e}", []
+    sv2, U2 = sys2.null_space(R2, mult_tol)
+    if U2.shape[1] != m:
+        return False, f"multiplicity {m} at Y1 but {U2.shape[1]} at Y2", []
+    mask = _good_mask(sys1, Rc)[:, : min(sys1.params.M0, sys2.params.M0)]
+    mask &= _good_mask(sys2, R2)[:, : mask.shape[1]]
+    M = mask.shape[1]
+    C1 = sys1.coefficients(U1)[:, :, :M]
+    C2 = sys2.coefficients(U2)[:, :, :M]
+    gap = _subspace_gap(C1, C2, mask)
+    if not np.isfinite(gap) or gap > settings.coeff_tol:
+        return False, f"null spaces at Y1 and Y2 differ (sin angle {gap:.2e})", []
+
+    # storage height: a low Y gives n_coeffs accurate coefficients
+    Ys = min(sys1.params.Y, sys1.params.Y * sys1.params.M0 / (3.0 * settings.n_coeffs))
+    ps_a = choose_params(Rc + 0.5, Ys, settings.eps)
+    ps_b = choose_params(Rc + 0.5, 0.9 * Ys, settings.eps)
+    sa = MultiCuspSystem(group, parity, ps_a)
+    sb = MultiCuspSystem(group, parity, ps_b)
+    Ua, sva = _forced_null(sa, Rc, m)
+    Ub, svb = _forced_null(sb, Rc, m)
+    worst = max(sva[m - 1], svb[m - 1])
+    if worst > mult_tol:
+        return False, f"eigenspace of dimension {m} not found at the storage height (sv {worst:.1e})", []
+    Ms = min(settings.n_coeffs, ps_a.M0, ps_b.M0)
+    Ca = sa.coefficients(Ua)[:, :, :Ms]
+    Cb = sb.coefficients(Ub)[:, :, :Ms]
+    good_a = _good_mask(sa, Rc)[:, :Ms] & _good_mask(sb, Rc)[:, :Ms]
+    K = int(np.sum(np.cumprod(good_a[0])))  # leading well-determined coefficients at infinity
+    B = Ca[:, 0, :K].real.T  # (K, m); infinity is self-conjugate with shift 0: real
+    if K < max(2 * m + 4, 8):
+        return False, f"only {K} well-determined coefficients at infinity", []
+    clusters = _hecke_clusters(B, group.level)
+    members: list[tuple[np.ndarray, bool, dict[int, float]]] = []  # (weights, is_eigenform, lambda)
+    for cl in clusters:
+        Bc = B @ cl.weights
+        if cl.weights.shape[1] == 1 and abs(Bc[0, 0]) > 1e-6 * np.max(np.abs(Bc)):
+            members.append((cl.weights[:, 0] / Bc[0, 0], True, cl.eigenvalues))
+        else:
+            Wr = cl.weights @ _rref_weights(Bc)
+            for i in range(Wr.shape[1]):
+                members.append((Wr[:, i], False, cl.eigenvalues))
+    members.sort(key=lambda t: int(np.argmax(np.abs(B @ t[0]) > 1e-8 * np.max(np.abs(B @ t[0])))))
+
+    if group.level == 1:
+        old = (0, [])
+    elif classify:
+        old = _old_dimension(group, parity, Rc, m, settings, mult_tol)
+    else:
+        old = None
+    forms = []
+    hecke_nmax = min(settings.hecke_nmax, K)
+    # second-height realisation of each member: closest element of span(Cb) on good entries
+    Xb = _real_rows(Cb, good_a)
+    for idx, (w, eig, lam) in enumerate(members):
+        coeffs = np.tensordot(w, Ca, axes=(0, 0))
+        target = _real_rows(coeffs[None], good_a)[:, 0]
+        x, *_ = np.linalg.lstsq(Xb, target, rcond=None)
+        coeffs_b = np.tensordot(x, Cb, axes=(0, 0))
+        errs = np.abs(coeffs - coeffs_b)
+        c_inf = coeffs[0].real
+        res_eig = _eigen_residual(c_inf, lam, hecke_nmax)
+        hres = max(res_eig, hecke_residual(c_inf, group.level, hecke_nmax)) if eig else res_eig
+        if hres > settings.hecke_tol:
+            return False, f"Hecke residual {hres:.2e} above {settings.hecke_tol:.0e} (basis member {idx})", []
+        if not np.iscomplexobj(coeffs) or np.max(np.abs(coeffs.imag)) == 0.0:
+            coeffs = coeffs.real.copy() if np.iscomplexobj(coeffs) else coeffs
+            errs = errs.real if np.iscomplexobj(errs) else errs
+        is_new = _member_is_new(old, m, eig, lam)
+        extra = {
+            "hecke_eigenform": bool(eig),
+            "hecke_eigenvalues": {str(p): v for p, v in lam.items()},
+            "hecke_residual_kind": "multiplicative+eigen" if eig else "eigen (T_p, p not dividing N)",
+            "singular_values_Y1": [float(v) for v in sv1[: m + 1]],
+            "singular_values_store": [float(v) for v in sva[: m + 1]],
+            "coefficient_subspace_gap": gap,
+            "basis": "hecke" if eig else "echelon",
+        }
+        if old is not None:
+            extra["old_dimension"] = int(old[0])
+        forms.append(
+            Form(
+                level=group.level,
+                R=float(Rc),
+                symmetry=SymmetryClass(parity),
+                coeffs=coeffs,
+                coeff_errors=np.asarray(errs, dtype=float),
+                R_error=float(max(dR, 1e-15 * Rc)),
+                hecke_residual=float(hres),
+                params=ps_a,
+                is_new=is_new,
+                multiplicity=m,
+                basis_index=idx,
+                extra=extra,
+            )
+        )
+    return True, f"confirmed, multiplicity {m}", forms
+
+
+def _forced_null(system: MultiCuspSystem, R: float, m: int) -> tuple[np.ndarray, np.ndarray]:
+    """The m smallest singular directions (as unknown vectors) and all singular values."""
+    sv, U = system.null_space(R, count=m)
+    return U, sv
+
+
+def _old_dimension(group, parity, R, m, settings, mult_tol):
+    """(oldform dimension at level N, T_p eigenvalue sets of lower levels) at R."""
+    from maasscomp.groups import gamma0
+
+    N = group.level
+    mult: dict[int, int] = {}
+    lam_lower: list[dict[int, float]] = []
+    for M in _divisors(N)[:-1]:
+        G = gamma0(M)
+        Y = 0.9 * G.fundamental_domain_height
+        ps = choose_params(R + 1.0, Y, settings.eps)
+        sysM = MultiCuspSystem(G, parity, ps)
+        sv, U = sysM.null_space(R, mult_tol)
+        mult[M] = U.shape[1]
+        if U.shape[1]:
+            good = _good_mask(sysM, R)
+            C = sysM.coefficients(U)
+            K = int(np.sum(np.cumprod(good[0])))
+            if K >= 8:
+                for cl in _hecke_clusters(C[:, 0, :K].real.T, N):
+                    lam_lower.append(cl.eigenvalues)
+    new: dict[int, int] = {}
+    for M in _divisors(N)[:-1]:
+        new[M] = mult[M] - sum(new[Mp] * len(_divisors(M // Mp)) for Mp in _divisors(M)[:-1])
+    old = sum(new[M] * len(_divisors(N // M)) for M in new)
+    return old, lam_lower
+
+
+def _member_is_new(old, m, eig, lam):
+    if old is None:
+        return None
+    old_dim, lam_lower = old
+    if old_dim == 0:
+        return True
+    if old_dim >= m:
+        return False
+    # mixed eigenspace: a member whose T_p eigenvalues match a lower-level form is old
+    for ll in lam_lower:
+        common = set(ll) & set(lam)
+        if common and all(abs(ll[p] - lam[p]) < 1e-5 for p in common):
+            return False
+    return True if eig else None
