@@ -1,0 +1,317 @@
+"""Turn a store into a report folder.
+
+Contents (file names fixed, so scripts can rely on them):
+
+``README.md``
+    What the store holds and what the runs did (config, package version, tasks,
+    time stamps), the summary table, the Weyl's-law table, links to every figure.
+``summary.csv``, ``summary.md``
+    One row per level and symmetry class: forms, new/old/unclassified, R range,
+    largest R error and Hecke residual.
+``weyl.csv``, ``weyl_N<level>.png``
+    For every level whose searched R range covers all symmetry classes: forms found
+    against Weyl's law (:func:`maasscomp.spectrum.weyl.completeness`) window by window,
+    and a figure of N(T) and W(T) with the remainder N(T) - W(T).
+``peaks/``
+    Peak statistics of the sup-norm scans, when the store holds scans.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+from collections import defaultdict
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from maasscomp import __version__
+from maasscomp.errors import InputError, MaasscompError
+
+SUMMARY_COLUMNS = ("level", "class", "forms", "new", "old", "unclassified", "R_min", "R_max",
+                   "max_R_error", "max_hecke_residual")
+WEYL_COLUMNS = ("level", "T_lo", "T_hi", "found", "expected", "deficit", "remainder_end", "flagged")
+
+
+@dataclass
+class Report:
+    folder: Path
+    files: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+
+def _merge(intervals: list[tuple[float, float]], gap: float = 1e-9) -> list[tuple[float, float]]:
+    out: list[list[float]] = []
+    for a, b in sorted(intervals):
+        if out and a <= out[-1][1] + gap:
+            out[-1][1] = max(out[-1][1], b)
+        else:
+            out.append([a, b])
+    return [(a, b) for a, b in out]
+
+
+def _intersect(x: list[tuple[float, float]], y: list[tuple[float, float]]) -> list[tuple[float, float]]:
+    out = []
+    for a, b in x:
+        for c, d in y:
+            lo, hi = max(a, c), min(b, d)
+            if hi > lo:
+                out.append((lo, hi))
+    return _merge(out)
+
+
+def searched_coverage(st) -> dict[int, dict[str, list[tuple[float, float]]]]:
+    """R intervals searched per level and class label, from the finished tasks of every run."""
+    from maasscomp.pipeline.tasks import parse_task_id
+
+    cov: dict[int, dict[str, list]] = defaultdict(lambda: defaultdict(list))
+    for rid in st.runs():
+        for tid in st.done_tasks(rid):
+            p = parse_task_id(tid)
+            if p is not None:
+                cov[p["level"]][p["label"]].append((p["lo"], p["hi"]))
+    return {N: {lab: _merge(iv) for lab, iv in d.items()} for N, d in cov.items()}
+
+
+def all_class_labels(level: int) -> list[str]:
+    """Every symmetry class of a level (both parities; Atkin-Lehner signs if squarefree)."""
+    from maasscomp.groups import gamma0
+    from maasscomp.spectrum.search import symmetry_classes
+
+    return [s.label for s in symmetry_classes(gamma0(level), ("even", "odd"))]
+
+
+def _fmt(v: Any) -> str:
+    if isinstance(v, float):
+        if math.isnan(v):
+            return ""
+        return f"{v:.12g}"
+    return str(v)
+
+
+def _markdown_table(columns, rows) -> str:
+    lines = ["| " + " | ".join(columns) + " |", "|" + "---|" * len(columns)]
+    for r in rows:
+        lines.append("| " + " | ".join(_fmt(r[c]) for c in columns) + " |")
+    return "\n".join(lines)
+
+
+def _write_csv(path: Path, columns, rows) -> None:
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.DictWriter(fh, fieldnames=list(columns))
+        w.writeheader()
+        for r in rows:
+            w.writerow({c: (repr(r[c]) if isinstance(r[c], float) else r[c]) for c in columns})
+
+
+def summary_rows(st) -> list[dict[str, Any]]:
+    """One row per (level, class) of the stored forms."""
+    groups: dict[tuple[int, str], list[dict]] = defaultdict(list)
+    for r in st.summary_rows(n_coeffs=0):
+        groups[(r["level"], r["symmetry"])].append(r)
+    rows = []
+    for (N, lab), rs in sorted(groups.items()):
+        R = [r["R"] for r in rs]
+        rows.append({
+            "level": N, "class": lab, "forms": len(rs),
+            "new": sum(r["is_new"] is True for r in rs),
+            "old": sum(r["is_new"] is False for r in rs),
+            "unclassified": sum(r["is_new"] is None for r in rs),
+            "R_min": min(R), "R_max": max(R),
+            "max_R_error": max(r["R_error"] for r in rs),
+            "max_hecke_residual": max(r["hecke_residual"] for r in rs),
+        })
+    return rows
+
+
+def _weyl_figure(level: int, R: np.ndarray, T_lo: float, T_hi: float, path: Path) -> None:
+    from matplotlib.figure import Figure
+
+    from maasscomp.spectrum.weyl import weyl_count
+
+    T = np.linspace(T_lo, T_hi, 800)
+    T = np.union1d(T, R)
+    W = np.asarray(weyl_count(level, T), dtype=float)
+    base = float(weyl_count(level, T_lo))
+    N = base + np.searchsorted(np.sort(R), T, side="right")
+    fig = Figure(figsize=(7.5, 5.2), layout="constrained")
+    ax1, ax2 = fig.subplots(2, 1, sharex=True, height_ratios=(2, 1))
+    ax1.step(T, N, where="post", color="C0", label="N(T): forms found (+ W(T_min))")
+    ax1.plot(T, W, color="C1", label="W(T): Weyl's law with lower-order terms")
+    ax1.set_ylabel("count")
+    ax1.set_title(f"Gamma0({level}): eigenvalues found against Weyl's law")
+    ax1.legend(loc="upper left", fontsize=8)
+    ax2.step(T, N - W, where="post", color="C2")
+    ax2.axhline(0.0, color="0.5", lw=0.8)
+    ax2.set_xlabel("T (spectral parameter R)")
+    ax2.set_ylabel("N(T) - W(T)")
+    fig.savefig(path, dpi=110)
+
+
+def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[str]]:
+    from maasscomp.config import is_squarefree
+    from maasscomp.spectrum.weyl import completeness
+
+    rows: list[dict] = []
+    text: list[str] = []
+    levels = sorted(set(cov) | {r["level"] for r in st.summary_rows(n_coeffs=0)})
+    for N in levels:
+        if not is_squarefree(N):
+            text.append(f"- level {N}: skipped; Weyl's law with lower-order terms is available for "
+                        "squarefree levels only.")
+            continue
+        labels = all_class_labels(N)
+        per_class = cov.get(N, {})
+        missing = [lab for lab in labels if lab not in per_class]
+        if missing:
+            text.append(f"- level {N}: skipped; Weyl's law counts all symmetry classes and the runs "
+                        f"in this store did not search {', '.join(missing)}.")
+            continue
+        full = per_class[labels[0]]
+        for lab in labels[1:]:
+            full = _intersect(full, per_class[lab])
+        if not full:
+            text.append(f"- level {N}: skipped; no R range was searched in every symmetry class.")
+            continue
+        R_all = np.array(sorted(r["R"] for r in st.summary_rows(n_coeffs=0) if r["level"] == N))
+        for T_lo, T_hi in full:
+            R = R_all[(R_all >= T_lo) & (R_all <= T_hi)]
+            c = completeness(N, R, T_lo, T_hi)
+            for w in c.windows:
+                rows.append({"level": N, "T_lo": w.T_lo, "T_hi": w.T_hi, "found": w.found,
+                             "expected": w.expected, "deficit": w.deficit,
+                             "remainder_end": w.remainder_end, "flagged": w.flagged})
+            name = f"weyl_N{N}.png" if len(full) == 1 else f"weyl_N{N}_{T_lo:g}-{T_hi:g}.png"
+            _weyl_figure(N, R, T_lo, T_hi, folder / name)
+            rep.files.append(name)
+            flag = ("windows flagged as probably incomplete: "
+                    + ", ".join(f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in c.flagged)
+                    if c.flagged else "no window flagged")
+            text.append(f"- level {N}, R in [{T_lo:g}, {T_hi:g}]: {c.total_found} forms found, "
+                        f"{c.total_expected:.2f} expected; remainder mean {c.mean_remainder:+.3f}, "
+                        f"rms {c.rms_remainder:.3f}; {flag}. Figure: [{name}]({name})")
+    return rows, text
+
+
+def _peaks_section(store_path: Path, folder: Path, rep: Report) -> list[str]:
+    """Peak statistics of the sup-norm scans (when the scanner is available and scans exist)."""
+    try:
+        from maasscomp.supnorm import report_peaks  # type: ignore[attr-defined]
+    except ImportError:
+        return ["No sup-norm scan statistics: this version has no peak scanner report."]
+    peaks = folder / "peaks"
+    try:
+        files = report_peaks(store_path, peaks)
+    except MaasscompError as exc:
+        return [f"No sup-norm scan statistics: {exc}"]
+    if not files:
+        return ["No sup-norm scan statistics: the store holds no scans."]
+    rep.files += [f"peaks/{Path(f).name}" for f in files]
+    return [f"- [{Path(f).name}](peaks/{Path(f).name})" for f in files]
+
+
+def make_report(store_path: str | Path, out_dir: str | Path) -> Report:
+    """Write the report folder of a store (see the module docstring).
+
+    Raises
+    ------
+    StoreError
+        Missing file or not a maasscomp store (nothing is created then).
+    InputError
+        ``out_dir`` exists and is not a folder.
+    """
+    from maasscomp.pipeline.job import read_run_record
+    from maasscomp.store import Store
+
+    store_path = Path(store_path)
+    folder = Path(out_dir)
+    with Store.open(store_path, "r") as st:
+        if folder.exists() and not folder.is_dir():
+            raise InputError(f"report folder {folder} exists and is not a folder")
+        if not folder.parent.exists():
+            raise InputError(f"cannot create report folder {folder}: {folder.parent} does not exist")
+        folder.mkdir(exist_ok=True)
+        rep = Report(folder=folder)
+
+        srows = summary_rows(st)
+        _write_csv(folder / "summary.csv", SUMMARY_COLUMNS, srows)
+        smd = _markdown_table(SUMMARY_COLUMNS, srows) if srows else "(no forms)"
+        (folder / "summary.md").write_text(smd + "\n", encoding="utf-8")
+        rep.files += ["summary.csv", "summary.md"]
+
+        cov = searched_coverage(st)
+        wrows, wtext = _weyl_section(st, folder, rep, cov)
+        _write_csv(folder / "weyl.csv", WEYL_COLUMNS, wrows)
+        rep.files.append("weyl.csv")
+
+        runs_text = []
+        for rid in st.runs():
+            info = st.run_info(rid)
+            rec = read_run_record(info["config"])
+            done = st.done_tasks(rid)
+            n_forms = len({k for ks in done.values() for k in ks})
+            runs_text.append(f"### Run `{rid}`\n")
+            runs_text.append(f"- started {info['created_utc']} with maasscomp {info['package_version']}")
+            runs_text.append(f"- {len(done)} tasks finished, {n_forms} forms recorded by them")
+            if rec is not None:
+                runs_text.append(f"- config fingerprint `{rec['fingerprint']}` (result-affecting "
+                                 "settings: " + ", ".join(
+                                     f"{k} = {v!r}" for k, v in _fp(rec).items()) + ")")
+                if rec.get("source_path"):
+                    runs_text.append(f"- config file: `{rec['source_path']}`")
+                runs_text.append("\nConfig as given:\n\n```toml\n" + rec.get("toml", "").rstrip() + "\n```\n")
+            elif info["config"]:
+                runs_text.append("\nConfig text:\n\n```\n" + info["config"].rstrip() + "\n```\n")
+        if cov:
+            cov_text = [f"- level {N}, {lab}: " + ", ".join(f"[{a:g}, {b:g}]" for a, b in iv)
+                        for N, d in sorted(cov.items()) for lab, iv in sorted(d.items())]
+        else:
+            cov_text = ["(no search tasks recorded)"]
+        meta = st.metadata
+        n_forms = len(st)
+
+    peaks_text = _peaks_section(store_path, folder, rep)
+
+    md = [
+        f"# Report on `{store_path.name}`",
+        "",
+        f"Made by maasscomp {__version__} from `{store_path}` (store schema "
+        f"{meta.get('schema_version')}, created {meta.get('created_utc')} by maasscomp "
+        f"{meta.get('package_version')}). The store holds {n_forms} forms.",
+        "",
+        "## What the runs did",
+        "",
+        *runs_text,
+        "R ranges searched (finished tasks), per level and symmetry class:",
+        "",
+        *cov_text,
+        "",
+        "## Forms per level and class",
+        "",
+        "Also as [summary.csv](summary.csv).",
+        "",
+        smd,
+        "",
+        "## Spectrum against Weyl's law",
+        "",
+        "Found against expected counts per window in [weyl.csv](weyl.csv); N(T) counts the forms "
+        "found from W(T_min) on, so the remainder N(T) - W(T) starts at 0.",
+        "",
+        *(wtext or ["(no level to compare)"]),
+        "",
+        "## Sup-norm peak statistics",
+        "",
+        *peaks_text,
+        "",
+    ]
+    (folder / "README.md").write_text("\n".join(md), encoding="utf-8")
+    rep.files.insert(0, "README.md")
+    return rep
+
+
+def _fp(rec: dict) -> dict:
+    from maasscomp.config import fingerprint_settings
+
+    return fingerprint_settings(rec["normalised"])
