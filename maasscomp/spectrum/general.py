@@ -42,7 +42,7 @@ from typing import Callable
 
 import numpy as np
 from scipy.linalg import subspace_angles
-from scipy.optimize import brentq, minimize_scalar
+from scipy.optimize import brentq
 
 from maasscomp.errors import InputError
 from maasscomp.hejhal.multicusp import MultiCuspSystem
@@ -96,11 +96,39 @@ def _refine_sign_change(system: MultiCuspSystem, a: float, b: float) -> float:
     return float(brentq(g, a, b, xtol=1e-15, rtol=4 * np.finfo(float).eps, maxiter=200))
 
 
-def _refine_minimum(system: MultiCuspSystem, a: float, b: float) -> float:
-    res = minimize_scalar(
-        lambda R: system.log_det(R)[1], bounds=(a, b), method="bounded", options={"xatol": 1e-14, "maxiter": 400}
-    )
-    return float(res.x)
+def _refine_minimum(system: MultiCuspSystem, a: float, b: float, mid: float | None = None) -> float:
+    """Minimum of log|det| in [a, b] by golden-section search to ~1e-14 relative.
+
+    Near an eigenvalue of multiplicity m, log|det A| ~ m log|R - R0| + smooth, a
+    logarithmic spike that parabolic steps fit badly (and library minimisers stop at a
+    relative tolerance of sqrt(machine eps)); golden section only needs unimodality.
+    """
+    f = lambda R: system.log_det(R)[1]  # noqa: E731
+    g = 0.5 * (3.0 - math.sqrt(5.0))
+    x = mid if mid is not None and a < mid < b else a + g * (b - a)
+    fx = f(x)
+    tol = 1e-14 * max(1.0, abs(x))
+    for _ in range(300):
+        if b - a <= 4 * tol:
+            break
+        # probe the larger part of the bracket
+        if x - a > b - x:
+            u = x - g * (x - a)
+        else:
+            u = x + g * (b - x)
+        fu = f(u)
+        if fu < fx:
+            if u < x:
+                b = x
+            else:
+                a = x
+            x, fx = u, fu
+        else:
+            if u < x:
+                a = u
+            else:
+                b = u
+    return float(x)
 
 
 def _root_near(system: MultiCuspSystem, R: float, width: float, odd: bool) -> float | None:
@@ -111,7 +139,7 @@ def _root_near(system: MultiCuspSystem, R: float, width: float, odd: bool) -> fl
             if system.log_det(a)[0] * system.log_det(b)[0] < 0:
                 return _refine_sign_change(system, a, b)
         else:
-            r = _refine_minimum(system, a, b)
+            r = _refine_minimum(system, a, b, R)
             if a + 1e-3 * w < r < b - 1e-3 * w:
                 return r
     return None
@@ -340,7 +368,9 @@ def search_window_general(
         raw.append((_refine_sign_change(sys1, float(grid[i]), float(grid[i + 1])), "sign change"))
     for i in range(1, grid.size - 1):
         if logs[i] < logs[i - 1] and logs[i] < logs[i + 1] and signs[i - 1] == signs[i] == signs[i + 1]:
-            raw.append((_refine_minimum(sys1, float(grid[i - 1]), float(grid[i + 1])), "log|det| minimum"))
+            raw.append(
+                (_refine_minimum(sys1, float(grid[i - 1]), float(grid[i + 1]), float(grid[i])), "log|det| minimum")
+            )
     raw.sort()
     merged: list[tuple[float, str]] = []
     for R, how in raw:
