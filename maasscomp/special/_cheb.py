@@ -89,11 +89,16 @@ def build_adaptive(
     tail_tol: float = 3e-15,
     min_width: float = 0.0,
     max_pieces: int = 4000,
+    scale_floor: float = 0.0,
+    noise_floor: float = 0.0,
 ) -> tuple[list[float], list[np.ndarray]]:
     """Fit f on the intervals given by ``breaks`` and bisect until every piece resolves f.
 
     A piece is accepted when its last three coefficients are below ``tail_tol`` times the
-    largest value of ``|f|`` on the piece.  ``f`` is called once per level with all
+    largest value of ``|f|`` on the piece, or times ``scale_floor`` if that is larger (for
+    oscillating functions, whose rounding noise near a zero is set by the envelope, not by
+    the local values).  A tail below the absolute ``noise_floor`` is accepted too (the
+    rounding of the interpolation nodes themselves, ``eps |x| |f'|``, sets such a floor).  ``f`` is called once per level with all
     nodes of all pending pieces (vectorised), and may return complex values.
 
     Returns the final edges and the per-piece coefficient arrays (in order).
@@ -106,9 +111,9 @@ def build_adaptive(
         coefs = values_to_coeffs(vals)
         nxt = []
         for (a, b), v, c in zip(pending, vals, coefs):
-            scale = np.max(np.abs(v))
+            scale = max(float(np.max(np.abs(v))), scale_floor)
             tail = np.max(np.abs(c[-3:]))
-            if tail <= tail_tol * scale or (b - a) <= min_width or len(done) + len(nxt) > max_pieces:
+            if tail <= max(tail_tol * scale, noise_floor) or (b - a) <= min_width or len(done) + len(nxt) > max_pieces:
                 done[(a, b)] = c
             else:
                 mid = 0.5 * (a + b)

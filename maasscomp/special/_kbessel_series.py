@@ -98,12 +98,12 @@ def taylor_coefficients(R: float, x0: float, w0: float, dw0: float, nterms: int)
     a[0] = w0
     if nterms > 1:
         a[1] = dw0
-    R2 = R * R
     x02 = x0 * x0
+    q0 = (R - x0) * (R + x0)  # R^2 - x0^2 without cancellation
     for n in range(0, nterms - 2):
         am1 = a[n - 1] if n >= 1 else 0.0
         am2 = a[n - 2] if n >= 2 else 0.0
-        a[n + 2] = -(x0 * (n + 1) * (2 * n + 1) * a[n + 1] + (n * n + R2 - x02) * a[n] - 2 * x0 * am1 - am2) / (x02 * (n + 1) * (n + 2))
+        a[n + 2] = -(x0 * (n + 1) * (2 * n + 1) * a[n + 1] + (n * n + q0) * a[n] - 2 * x0 * am1 - am2) / (x02 * (n + 1) * (n + 2))
     return a
 
 

@@ -125,7 +125,14 @@ class KTable:
         width = self.x_hi - self.x_lo
         npieces = max(2, int(math.ceil(width / max(R ** (1.0 / 3.0), 0.5))))
         breaks = list(np.linspace(self.x_lo, self.x_hi, npieces + 1))
-        edges, cs = build_adaptive(lambda xx: dense_eval(xs, coefs, xx), breaks, n=24)
+        # rounding noise of the node values is ~eps times the envelope (near zeros of Kt)
+        # plus eps |x Kt'| (rounding of the nodes), so the accuracy test of a piece is
+        # made relative to these floors rather than to the local values
+        floor = float(np.max(np.abs(coefs[:, 0])))
+        noise = 8.0 * 2.2e-16 * self.x_hi * float(np.max(np.abs(coefs[:, 1])))
+        edges, cs = build_adaptive(
+            lambda xx: dense_eval(xs, coefs, xx), breaks, n=24, scale_floor=floor, noise_floor=noise
+        )
         self.zone2 = make_piecewise(edges, cs)
 
     def _prepare_derivatives(self) -> None:

@@ -24,13 +24,21 @@ R_MAX = 10000.0
 _CACHE_SIZE = 32
 
 
+def _fmt(v) -> str:
+    """repr of a bad value, without numpy scalar decorations."""
+    try:
+        return repr(float(v))
+    except (TypeError, ValueError):
+        return repr(v)
+
+
 def _check_R(R) -> float:
     try:
         Rf = float(R)
     except (TypeError, ValueError):
         raise InputError(f"R = {R!r} is not a real number; R must be a finite float in (0, {R_MAX:g}]") from None
     if not math.isfinite(Rf) or Rf <= 0.0 or Rf > R_MAX:
-        raise InputError(f"R = {R!r} is out of range; R must be a finite float in (0, {R_MAX:g}]")
+        raise InputError(f"R = {_fmt(R)} is out of range; R must be a finite float in (0, {R_MAX:g}]")
     return Rf
 
 
@@ -43,7 +51,7 @@ def _check_x(x) -> np.ndarray:
     if np.any(bad):
         first = xa[bad].flat[0]
         raise InputError(
-            f"x = {first!r} is out of range ({int(bad.sum())} bad value(s)); x must be finite and > 0"
+            f"x = {_fmt(first)} is out of range ({int(bad.sum())} bad value(s)); x must be finite and > 0"
         )
     return xa
 
@@ -113,7 +121,12 @@ def ktilde_dx(R: float, x: ArrayLike) -> np.ndarray:
 
 def ktilde_many(R: ArrayLike, x: ArrayLike) -> np.ndarray:
     """:func:`ktilde` broadcast over both ``R`` and ``x`` (loops over the distinct R values)."""
-    Ra = np.asarray(R, dtype=np.float64) if not isinstance(R, np.ndarray) else R.astype(np.float64)
+    try:
+        Ra = np.asarray(R, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise InputError(f"R = {R!r} is not an array of real numbers; R must be finite floats in (0, {R_MAX:g}]") from None
+    for Rk in np.unique(Ra):
+        _check_R(Rk)
     xa = _check_x(x)
     Rb, xb = np.broadcast_arrays(Ra, xa)
     out = np.empty(Rb.shape, dtype=np.float64)

@@ -1,8 +1,8 @@
 """Spot values and input validation for maasscomp.special.ktilde.
 
-Spot values: computed with python-flint (arb) and printed in the project's K-Bessel notes
-(formulas notes §3.3, "agree with mpmath to >= 13 digits"); each value is checked to the
-number of digits printed there.
+Spot values: data/reference/kbessel_spot_values.csv, computed with python-flint (arb) and
+printed in the project's reference notes (formulas.md §3.3); each value is checked to the
+number of significant digits printed there.
 """
 
 from __future__ import annotations
@@ -15,24 +15,18 @@ import pytest
 from maasscomp.errors import InputError
 from maasscomp.special import ktilde, ktilde_dx, ktilde_many
 
-# (R, x, value, significant digits printed) -- arb values from formulas notes §3.3
-SPOT_VALUES = [
-    (10.0, 8.4358335228, 1.0155312331529, 14),
-    (100.0, 96.329078961, 0.46016484810711, 14),
-    (1000.0, 991.9520134, 0.212363260512382, 15),
-    (1000.0, 10.0, 0.0784722007524326, 15),
-    (1000.0, 2000.0, 1.1239338364147e-299, 14),
-    (100.0, 100.0, 0.30274510185, 11),
-    (1000.0, 1000.0, 0.14052555477, 11),
-]
+from .kbessel_refdata import load_csv
+
+_SPOT = load_csv("kbessel_spot_values.csv")
+SPOT_VALUES = list(zip(_SPOT["R"], _SPOT["x"], _SPOT["value"], _SPOT["digits"].astype(int)))
 
 
 @pytest.mark.parametrize("R, x, value, digits", SPOT_VALUES)
 def test_spot_values_from_arb(R, x, value, digits):
     got = float(ktilde(R, x))
-    # half a unit in the last printed digit, relative
-    tol = 0.5 * 10.0 ** (1 - digits) * 1.0001
-    assert abs(got / value - 1.0) <= tol + 1e-13
+    # half a unit in the last printed significant digit, relative to the value
+    tol = 0.5 * 10.0 ** (1 - digits) * 10 ** (math.floor(math.log10(abs(value))) - math.log10(abs(value)))
+    assert abs(got - value) <= (tol + 1e-14) * abs(value)
 
 
 def test_shape_and_dtype_follow_x():
@@ -41,6 +35,7 @@ def test_shape_and_dtype_follow_x():
     assert out.shape == (3, 4) and out.dtype == np.float64
     assert np.shape(ktilde(20.0, 3.0)) == ()
     np.testing.assert_array_equal(out.ravel(), ktilde(20.0, x.ravel()))
+    assert ktilde(20.0, np.array([])).shape == (0,)
 
 
 def test_many_matches_fixed_R():
@@ -50,24 +45,30 @@ def test_many_matches_fixed_R():
     assert got.shape == (3, 4)
     for i in range(3):
         np.testing.assert_array_equal(got[i], ktilde(float(R[i, 0]), x))
+    # scalar R and elementwise pairs
+    np.testing.assert_array_equal(ktilde_many(50.0, x), ktilde(50.0, x))
+    pairs = ktilde_many([5.0, 500.0], [1.0, 499.0])
+    assert pairs[0] == ktilde(5.0, 1.0) and pairs[1] == ktilde(500.0, 499.0)
 
 
-@pytest.mark.parametrize("R", [0.0, -1.0, math.nan, math.inf, 10000.5, 1e6])
+@pytest.mark.parametrize("R", [0.0, -1.0, math.nan, math.inf, 10000.5, 1e6, "abc"])
 def test_bad_R_is_input_error(R):
-    with pytest.raises(InputError, match="R = .*\\(0, 10000\\]"):
+    with pytest.raises(InputError, match=r"R = .*\(0, 10000\]"):
         ktilde(R, 1.0)
-    with pytest.raises(InputError):
+    with pytest.raises(InputError, match=r"R = "):
         ktilde_dx(R, 1.0)
 
 
-@pytest.mark.parametrize("x", [0.0, -2.0, math.nan, math.inf, [1.0, 2.0, -0.5]])
+@pytest.mark.parametrize("x", [0.0, -2.0, math.nan, math.inf, -math.inf, [1.0, 2.0, -0.5]])
 def test_bad_x_is_input_error(x):
     with pytest.raises(InputError, match="x = .*finite and > 0"):
         ktilde(10.0, x)
+    with pytest.raises(InputError, match="x = "):
+        ktilde_many(10.0, x)
 
 
 def test_bad_R_in_many_is_input_error():
-    with pytest.raises(InputError, match="R = "):
+    with pytest.raises(InputError, match="R = -3"):
         ktilde_many([1.0, -3.0], [1.0, 2.0])
 
 
