@@ -258,9 +258,10 @@ class Gamma0:
     def fundamental_domain_height(self) -> float:
         """Y0: a certified lower bound for the height of every pulled-back point.
 
-        For every z in H, ``self.pullback(z).y >= Y0``; hence sample points at height
-        Y < Y0 in any cusp coordinate are strictly raised by the pullback (formulas ref.
-        §1.3). N = 1: Y0 = sqrt(3)/2 (the corners of the standard domain). N > 1: the
+        For every z in H, ``self.pullback(z).y >= Y0`` (up to rounding in the last bit
+        for N = 1); hence sample points at height Y < Y0 in any cusp coordinate are
+        strictly raised by the pullback (formulas ref. §1.3). N = 1: Y0 = sqrt(3)/2
+        exactly (the corners of the standard domain). N > 1: the
         pulled-back height of a point is max over finitely many candidates
         y / (w |c z + d|^2) with z in the standard domain F1 (see
         :meth:`pullback`). A branch-and-bound over F1 x (cosets), with the lower bound
@@ -273,9 +274,10 @@ class Gamma0:
         from ._height import certified_min_height
 
         t = self._t
-        lower = certified_min_height(t.cand.cd, t.cand.width, rtol=1e-6)
+        lower = certified_min_height(t.cand.cd, t.cand.width, t.cand.relevant, rtol=1e-6)
         elementary = math.sqrt(3.0) / (2.0 * max(c.width for c in self.cusps))
-        return max(lower * (1.0 - 1e-12), elementary)
+        # the factor covers rounding in the pullback (relative ~1e-15) and its 1e-12 tie rule
+        return max(lower * (1.0 - 1e-9), elementary)
 
     @property
     def Y0(self) -> float:
@@ -561,6 +563,13 @@ class _Candidates:
         self.C = np.einsum("ksij,sjl->ksil", E[kk], H)
         self.Cf = self.C.astype(float)
         self.cmax = int(np.abs(self.C).max())
+        # candidate s can beat s = 0 on F1 only if (c^2 - |c d| + d^2) w[k, s] <= w[k, 0]
+        # (|c z + d|^2 >= c^2 - |c d| + d^2 for |z| >= 1, |Re z| <= 1/2); the 1e-9 keeps ties
+        cd = np.array(cand, dtype=np.int64)
+        lower = (cd[:, 0] ** 2 - np.abs(cd[:, 0] * cd[:, 1]) + cd[:, 1] ** 2).astype(float)
+        ok = lower[None, :] * self.width <= self.width[:, :1] * (1 + 1e-9)
+        ok[:, 0] = True
+        self.relevant = [np.flatnonzero(row) for row in ok]
 
 
 # ----------------------------------------------------------------------------------------
@@ -625,6 +634,37 @@ def _reduce_sl2z(x: np.ndarray, y: np.ndarray, maxit: int = 10_000):
     return a, b, c, d
 
 
+def _best_candidate(cand: _Candidates, k: np.ndarray, zx: np.ndarray, zy: np.ndarray) -> np.ndarray:
+    """Index s of the highest candidate for points z = zx + i zy in F1 with cosets k.
+
+    Points are grouped by coset so that only the candidates that can beat the coset's
+    own cusp are evaluated (``cand.relevant``), and no (n, S) temporaries are formed.
+    """
+    n = k.shape[0]
+    s = np.zeros(n, dtype=np.int64)
+    if cand.cd.shape[0] == 1 or n == 0:
+        return s
+    order = np.argsort(k, kind="stable")
+    counts = np.bincount(k, minlength=len(cand.relevant))
+    stops = np.cumsum(counts)
+    for kk in np.flatnonzero(counts):
+        rel = cand.relevant[kk]
+        if rel.size == 1:
+            continue
+        idx = order[stops[kk] - counts[kk] : stops[kk]]
+        cc = cand.cd[rel, 0]
+        dd = cand.cd[rel, 1]
+        zxi = zx[idx, None]
+        zyi = zy[idx, None]
+        qx = cc * zxi + dd
+        qy = cc * zyi
+        h = 1.0 / ((qx * qx + qy * qy) * cand.width[kk, rel])
+        # prefer the coset's own cusp unless another candidate is genuinely higher
+        h[:, 0] *= 1.0 + 1e-12
+        s[idx] = rel[np.argmax(h, axis=1)]
+    return s
+
+
 def _pullback(G: Gamma0, x: ArrayLike, y: ArrayLike) -> Pullback:
     xa = np.asarray(x, dtype=float)
     ya = np.asarray(y, dtype=float)
@@ -655,18 +695,7 @@ def _pullback(G: Gamma0, x: ArrayLike, y: ArrayLike) -> Pullback:
     zy = yf / den2
     # coset of B = A^{-1} = [[d, -b], [-c, a]]
     k = t.coset_of(-c, a)
-    S = cand.cd.shape[0]
-    if S == 1:
-        s = np.zeros(xf.shape[0], dtype=np.int64)
-    else:
-        cc = cand.cd[:, 0]
-        dd = cand.cd[:, 1]
-        qx = cc[None, :] * zx[:, None] + dd[None, :]
-        qy = cc[None, :] * zy[:, None]
-        h = 1.0 / ((qx * qx + qy * qy) * cand.width[k])
-        # prefer the coset's own cusp unless another candidate is genuinely higher
-        h[:, 0] *= 1.0 + 1e-12
-        s = np.argmax(h, axis=1)
+    s = _best_candidate(cand, k, zx, zy)
     C = cand.C[k, s]  # (n, 2, 2)
     Cf = cand.Cf[k, s]
     j = cand.cusp[k, s]
