@@ -72,8 +72,8 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
     ("search", "n_coeffs", "int", 60,
      "Number of Fourier coefficients stored per form, in [10, 20000]."),
     ("search", "step", "float", None,
-     "Grid step of the determinant-sign scan. Default (absent): a fortieth of the mean "
-     "eigenvalue spacing of the class, at most 0.02."),
+     "Grid step of the determinant-sign scan. Default (absent): the search's own rule, a "
+     "fixed fraction of the mean eigenvalue spacing of the class (Weyl's law), at most 0.02."),
     ("search", "chunk_width", "float", 1.0,
      "Width in R of one search task. Chunk edges sit at multiples of this width, so "
      "changing a window keeps the finished chunks it shares with the old one."),
@@ -429,9 +429,6 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     step = srch.get("step")
     if step is not None and (not _is_real(step) or not math.isfinite(step) or step <= 0):
         problems.append(f"[search] step={step!r} is not allowed; it must be a positive finite number")
-    elif step is not None and windows and step > min(b - a for a, b in windows) / 2:
-        problems.append(f"[search] step={step!r} is too coarse; it must be at most half the "
-                        "narrowest window")
     chunk = srch.get("chunk_width", 1.0)
     if not _is_real(chunk) or not math.isfinite(chunk) or chunk < 0.01:
         problems.append(f"[search] chunk_width={chunk!r} is not allowed; it must be a number >= 0.01")
