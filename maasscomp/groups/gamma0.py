@@ -34,6 +34,12 @@ _IDENTITY: Mat = ((1, 0), (0, 1))
 # Above this size an int64 entry may overflow in the products formed by the pullback
 # (entries are multiplied by tabulated matrices with entries <= ~N^2).
 _INT_SAFE = 2**52
+_CHUNK = 8192
+_TOO_LOW = (
+    "points with Im z down to {y:g} are too close to the real axis: the exact reducing "
+    "matrices leave the int64 range (a double-precision point is only determined to "
+    "relative ~1e-16/Im z there); supported: Im z >= 1e-12"
+)
 
 
 def _kronecker_minus4(p: int) -> int:
@@ -399,12 +405,14 @@ class Gamma0:
 
         Notes
         -----
-        The reducing matrices are exact; their entries grow like y^{-1/2}. The computed w
+        The reducing matrices are exact; their entries grow like y^{-1/2} for generic x
+        and up to y^{-1} for x near a rational with small denominator. The computed w
         inherits the conditioning of the map z -> gamma z: a rounding error of size
         2^-53 |z| in the input becomes a relative error of about 1e-16 |z|^2 / y in w,
-        i.e. ~1e-10 at y = 1e-6 and ~1e-4 at y = 1e-12. Points whose matrices would
-        leave the exact int64 range (entries above 2^52, y below ~1e-30 or |x| above
-        ~1e15) raise InputError.
+        i.e. ~1e-10 at y = 1e-6, ~1e-5 at y = 1e-12 (measured against exact rational
+        arithmetic). Below that the double-precision input no longer determines the
+        point; when the matrices would leave the exact int64 range (possible from
+        y ~ 1e-13 on, or |x| above ~1e15) InputError is raised.
         """
         return _pullback(self, x, y)
 
@@ -621,10 +629,7 @@ def _reduce_sl2z(x: np.ndarray, y: np.ndarray, maxit: int = 10_000):
         ai = ai - ti * ci
         bi = bi - ti * di
         if np.abs(ai).max() > _INT_SAFE or np.abs(bi).max() > _INT_SAFE:
-            raise InputError(
-                "a point is too close to the real axis for exact int64 reduction "
-                f"(min Im z = {y.min():g}); use Im z > 1e-30"
-            )
+            raise InputError(_TOO_LOW.format(y=y.min()))
         a[idx], b[idx], c[idx], d[idx] = ai, bi, ci, di
         zx[idx] = zxi
         zy[idx] = zyi
@@ -681,7 +686,24 @@ def _pullback(G: Gamma0, x: ArrayLike, y: ArrayLike) -> Pullback:
         raise InputError(
             f"pullback needs finite points in the upper half plane; got z = {xf[i]!r} + {yf[i]!r}i"
         )
-    t = G._t
+    n_pts = xf.shape[0]
+    gam = np.empty((n_pts, 4), dtype=np.int64)
+    j = np.empty(n_pts, dtype=np.int64)
+    wx = np.empty(n_pts)
+    wy = np.empty(n_pts)
+    # chunks keep the temporaries in cache (measured: ~1.5x faster at 1e5 points)
+    for lo in range(0, n_pts, _CHUNK):
+        sl = slice(lo, min(lo + _CHUNK, n_pts))
+        gam[sl], j[sl], wx[sl], wy[sl] = _pullback_core(G._t, xf[sl], yf[sl])
+    return Pullback(
+        gamma=gam.reshape(shape + (2, 2)),
+        cusp=j.reshape(shape),
+        x=wx.reshape(shape),
+        y=wy.reshape(shape),
+    )
+
+
+def _pullback_core(t: _Tables, xf: np.ndarray, yf: np.ndarray):
     cand = t.cand
     a, b, c, d = _reduce_sl2z(xf, yf)
     # z = A w recomputed from the input with the exact matrix (keeps gamma and w consistent)
@@ -714,9 +736,7 @@ def _pullback(G: Gamma0, x: ArrayLike, y: ArrayLike) -> Pullback:
     # gamma = M_j T^{-n} C A / det M_j  (exact; in Gamma0(N), see module notes)
     amax = max(int(np.abs(a).max()), int(np.abs(b).max()), int(np.abs(c).max()), int(np.abs(d).max()))
     if 8 * cand.cmax * amax * t.mmax * (1 + int(np.abs(ni).max(initial=0))) >= 2**62:
-        raise InputError(
-            f"matrices for points with Im z down to {yf.min():g} exceed the exact int64 range"
-        )
+        raise InputError(_TOO_LOW.format(y=yf.min()))
     F00 = C[:, 0, 0] * a + C[:, 0, 1] * c
     F01 = C[:, 0, 0] * b + C[:, 0, 1] * d
     F10 = C[:, 1, 0] * a + C[:, 1, 1] * c
@@ -735,12 +755,7 @@ def _pullback(G: Gamma0, x: ArrayLike, y: ArrayLike) -> Pullback:
     gam //= D[:, None]
     neg = (gam[:, 2] < 0) | ((gam[:, 2] == 0) & (gam[:, 3] < 0))
     gam[neg] *= -1
-    return Pullback(
-        gamma=gam.reshape(shape + (2, 2)),
-        cusp=j.reshape(shape),
-        x=wx.reshape(shape),
-        y=wy.reshape(shape),
-    )
+    return gam, j, wx, wy
 
 
 # ----------------------------------------------------------------------------------------

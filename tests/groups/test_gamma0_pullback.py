@@ -190,3 +190,45 @@ def test_y0_is_attained(N):
     P = G.pullback(pts.real, pts.imag)
     assert P.y.min() >= G.Y0
     assert P.y.min() <= 1.02 * G.Y0
+
+
+def _exact_w(g, M, x, y):
+    """sigma^{-1} gamma z in exact rational arithmetic for the float point x + i y."""
+    from fractions import Fraction
+
+    X, Y = Fraction(float(x)), Fraction(float(y))
+    G = [[int(v) for v in row] for row in np.asarray(g).tolist()]
+    A = [[M[1][1], -M[0][1]], [-M[1][0], M[0][0]]]
+    P = [[sum(A[i][k] * G[k][j] for k in range(2)) for j in range(2)] for i in range(2)]
+    (a, b), (c, d) = P
+    # (a z + b) / (c z + d) with z = X + iY
+    nr, ni = a * X + b, a * Y
+    dr, di = c * X + d, c * Y
+    den = dr * dr + di * di
+    wr = (nr * dr + ni * di) / den
+    wi = (ni * dr - nr * di) / den
+    return wr - round(wr), wi
+
+
+@pytest.mark.parametrize("N", [1, 12, 30, 45])
+def test_accuracy_against_exact_arithmetic(N):
+    """w agrees with exact rational arithmetic to ~1e-16 |z|^2 / y (documented bound)."""
+    G = gamma0(N)
+    rng = np.random.default_rng(7 + N)
+    x = rng.uniform(-2, 2, 40)
+    y = 10 ** rng.uniform(-6, -1, 40)
+    P = G.pullback(x, y)
+    for i in range(x.size):
+        wr, wi = _exact_w(P.gamma[i], G.cusps[int(P.cusp[i])].scaling, x[i], y[i])
+        bound = 1e-15 * (1 + x[i] ** 2 + y[i] ** 2) / y[i]
+        assert abs(float(wi) - P.y[i]) <= bound * P.y[i]
+        dx = abs((float(wr) - P.x[i] + 0.5) % 1.0 - 0.5)
+        assert dx <= bound * P.y[i]
+
+
+def test_too_close_to_axis():
+    G = gamma0(12)
+    P = G.pullback([0.3141592653589793, -0.7234], [1e-12, 1e-12])
+    assert np.all(G.contains(P.gamma))
+    with pytest.raises(InputError, match="too close to the real axis"):
+        G.pullback(-0.7234, 1e-40)
