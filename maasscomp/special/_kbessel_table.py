@@ -36,6 +36,11 @@ from maasscomp.special._cheb import PiecewiseCheb, build_adaptive, make_piecewis
 from maasscomp.special._kbessel_quad import decay_amplitude, osc_amplitude, psi_decay
 from maasscomp.special._kbessel_series import arg_gamma_dd, dense_eval, march_down, series_eval
 
+try:  # the compiled kernel is optional: without numba the numpy path is used
+    from maasscomp.special import _kbessel_fast as _fast
+except ImportError:  # pragma: no cover
+    _fast = None
+
 C_ZONE = 3.0
 X_LO_MIN = 3.5  # zone I is used when R - C R^{1/3} >= this
 X_SERIES = 2.0  # upper end of the power-series zone for small R
@@ -78,6 +83,7 @@ class KTable:
         else:
             self.zone2 = None
         self._deriv_ready = False
+        self._kargs = None
 
     # -- construction -------------------------------------------------------------------
     def _build_zone1(self) -> None:
@@ -147,8 +153,40 @@ class KTable:
         self._deriv_ready = True
 
     # -- evaluation ---------------------------------------------------------------------
+    def _kernel_args(self):
+        if getattr(self, "_kargs", None) is None:
+            dummy_e = np.array([0.0, 1.0])
+            dummy_c = np.zeros((2, 1))
+            j_e = self.j_re.edges if self.osc else dummy_e
+            j_r = np.ascontiguousarray(self.j_re.coef) if self.osc else dummy_c
+            j_i = np.ascontiguousarray(self.j_im.coef) if self.osc else dummy_c
+            has2 = self.zone2 is not None
+            z_e = self.zone2.edges if has2 else dummy_e
+            z_c = np.ascontiguousarray(self.zone2.coef) if has2 else dummy_c
+            self._kargs = (self.R, self.osc, self.x_lo, self.x_hi, self.x_max, j_e, j_r, j_i, z_e, z_c, has2,
+                           self.m_cheb.edges, np.ascontiguousarray(self.m_cheb.coef),
+                           _dd._C_TAB, _dd._LNC_HI, _dd._LNC_LO)
+        return self._kargs
+
     def evaluate(self, x: np.ndarray, deriv: bool = False) -> np.ndarray:
-        """Kt(R, x) (or dKt/dx if ``deriv``) for a 1-D float64 array of positive x."""
+        """Kt(R, x) (or dKt/dx if ``deriv``) for a 1-D float64 array of positive x.
+
+        Values use the compiled kernel of :mod:`._kbessel_fast` (the power-series zone of
+        small R and all derivatives use the numpy code below).
+        """
+        if not deriv and _fast is not None:
+            x = np.ascontiguousarray(x, dtype=np.float64)
+            out = np.empty_like(x)
+            _fast.eval_kernel(*self._kernel_args(), x, out)
+            if not self.osc:
+                sel = np.isnan(out)
+                if np.any(sel):
+                    out[sel] = series_eval(self.R, self.argg, x[sel])[0]
+            return out
+        return self.evaluate_numpy(x, deriv)
+
+    def evaluate_numpy(self, x: np.ndarray, deriv: bool = False) -> np.ndarray:
+        """Pure-numpy evaluation (reference path for the compiled kernel; derivatives)."""
         R = self.R
         out = np.zeros_like(x)
         if deriv:

@@ -148,3 +148,16 @@ def test_far_field_asymptotics():
     lead = np.sqrt(math.pi / (2 * x)) * np.exp(-x + math.pi * R / 2) * (1 + a1 / x + a2 / x**2)
     # the next term, a3/x^3, is below 6e-7 here
     assert np.all(np.abs(ktilde(R, x) / lead - 1) <= 1e-6)
+
+
+@pytest.mark.parametrize("R", [0.5, 5.0, 10.5, 300.0, 7000.0])
+def test_compiled_kernel_matches_numpy_path(R):
+    """The numba kernel and the pure-numpy evaluation of the same table agree in all zones."""
+    tab = kbessel_table(R)
+    x = np.concatenate([np.geomspace(1e-4, R, 3000), np.linspace(R, tab.x_max * 1.01, 3000)])
+    a = tab.evaluate(x)
+    b = tab.evaluate_numpy(x)
+    amp = np.where(x < R, np.maximum(1.0, np.abs(b)), np.abs(b))
+    ok = (x < R) | (np.abs(b) > 1e-290)
+    assert np.all(np.abs(a - b)[ok] <= 1e-14 * amp[ok])
+    assert np.all(a[x > tab.x_max] == 0.0)
