@@ -157,7 +157,9 @@ def test_compiled_kernel_matches_numpy_path(R):
     x = np.concatenate([np.geomspace(1e-4, R, 3000), np.linspace(R, tab.x_max * 1.01, 3000)])
     a = tab.evaluate(x)
     b = tab.evaluate_numpy(x)
-    amp = np.where(x < R, np.maximum(1.0, np.abs(b)), np.abs(b))
+    # x >= R: exp(-Psi) with Psi up to 700 turns one-ulp differences of Psi (libm atan vs
+    # numpy arctan) into relative differences of ~1e-13
+    tol = np.where(x < R, 1e-14 * np.maximum(1.0, np.abs(b)), 2e-13 * np.abs(b))
     ok = (x < R) | (np.abs(b) > 1e-290)
-    assert np.all(np.abs(a - b)[ok] <= 1e-14 * amp[ok])
+    assert np.all(np.abs(a - b)[ok] <= tol[ok])
     assert np.all(a[x > tab.x_max] == 0.0)
