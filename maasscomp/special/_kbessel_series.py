@@ -49,30 +49,39 @@ def series_prefactor(R: float) -> float:
 
 
 def series_sum(R: float, x: np.ndarray, need_deriv: bool = False):
-    """S(x) = sum_k (x^2/4)^k / (k! (1 + iR)_k) and optionally dS/dx (complex arrays)."""
+    """S(x) = sum_k (x^2/4)^k / (k! (1 + iR)_k) and optionally dS/dx (complex arrays).
+
+    ``dS/dx = (x/2) sum_{k>=1} z^{k-1} / ((k-1)! (1 + iR)_k)``, ``z = x^2/4``, summed with its
+    own term recurrence (no division by x, which may be subnormal).
+    """
     z = 0.25 * x * x
     term = np.ones(x.shape, dtype=np.complex128)
     acc = term.copy()
-    dacc = np.zeros_like(acc) if need_deriv else None
+    v = np.full(x.shape, 1.0 / complex(1.0, R)) if need_deriv else None
+    dacc = v.copy() if need_deriv else None
     k = 0
     while True:
         k += 1
         term = term * z / (k * complex(k, R))
         acc = acc + term
-        if need_deriv:
-            # d/dx z^k = k z^k * 2 / x
-            dacc = dacc + (2.0 * k) * term
+        if need_deriv and k >= 2:
+            v = v * z / ((k - 1) * complex(k, R))
+            dacc = dacc + v
         if np.all(np.abs(term) <= 1e-18 * np.abs(acc)) or k > 400:
             break
     if need_deriv:
-        return acc, dacc / x
+        # one more term of the derivative series, which lags by one index
+        v = v * z / (k * complex(k + 1, R))
+        dacc = dacc + v
+        return acc, 0.5 * x * dacc
     return acc, None
 
 
 def series_eval(R: float, argg: tuple[float, float], x: np.ndarray, need_deriv: bool = False):
     """Kt(R, x) (and dKt/dx) from the power series; ``argg`` = arg Gamma(1 + iR) in dd."""
     S, dS = series_sum(R, x, need_deriv)
-    lh, ll = _dd.dd_log(0.5 * x)
+    lh, ll = _dd.dd_log(x)  # log(x/2) = log x - log 2 (x/2 may underflow)
+    lh, ll = _dd.dd_add(lh, ll, -_dd.LN2_HI, -_dd.LN2_LO)
     ph, pl = _dd.dd_mul_d(lh, ll, R)
     ph, pl = _dd.dd_add(ph, pl, -argg[0], -argg[1])
     c, s = _dd.dd_cos_sin(ph, pl)
