@@ -25,8 +25,7 @@ truncation error) exactly when R is an eigenvalue of the class.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from functools import cached_property
+import math
 
 import numpy as np
 
@@ -57,15 +56,52 @@ def check_symmetry(group, symmetry: SymmetryClass) -> None:
         )
 
 
-@dataclass(frozen=True)
-class SamplePoints:
-    """Sample points of one system and their pullbacks (independent of R)."""
+class SampleSet:
+    """Sample points on the horocycle at height Y and their pullbacks.
 
-    x: np.ndarray  # sample abscissae x_m, shape (Q,)
-    Y: float
-    xs: np.ndarray  # pulled-back abscissae, shape (Q,)
-    ys: np.ndarray  # pulled-back heights, shape (Q,)
-    sign: np.ndarray  # eps_{Q(m)} (+-1), shape (Q,)
+    Independent of R and of the symmetry class, so every class of a level (and every R of
+    a scan) shares one set: the matrices of all classes need Kt(R, x) at the same points.
+
+    Parameters
+    ----------
+    group : Gamma0
+    params : SolverParams
+    """
+
+    def __init__(self, group, params: SolverParams) -> None:
+        Y0 = group.fundamental_domain_height
+        if not (0 < params.Y < Y0):
+            raise InputError(
+                f"sample height Y={params.Y!r} is not allowed for level {group.level}; "
+                f"it must lie in (0, {Y0:.6g}) so that every pullback raises the point"
+            )
+        self.group = group
+        self.params = params
+        m = np.arange(1, params.Q + 1)
+        self.x = (m - 0.5) / (2 * params.Q)
+        self.Y = params.Y
+        pb = group.pullback(self.x, np.full_like(self.x, params.Y))
+        self.cusp = np.asarray(pb.cusp, dtype=int)
+        self.xs = np.asarray(pb.x, dtype=float)
+        self.ys = np.asarray(pb.y, dtype=float)
+        if np.any(self.ys <= params.Y * (1 + 1e-12)):
+            raise InputError(
+                f"sample height Y={params.Y} is too large for level {group.level}: some pullbacks "
+                "do not rise above Y"
+            )
+        n = np.arange(1, params.M0 + 1)
+        # every x at which Kt is needed: the pulled-back points (Q x M0), then the diagonal
+        self.k_points = np.concatenate([((TWO_PI * self.ys)[:, None] * n[None, :]).ravel(), TWO_PI * self.Y * n])
+
+    def k_values(self, R: float, *, exceptional: bool = False) -> np.ndarray:
+        """Kt(R, x) at :attr:`k_points` (or K_t(x) of real order t = R when exceptional)."""
+        if exceptional:
+            if not (0 < R < 0.5):
+                raise InputError(f"t={R!r} is not allowed for an exceptional system; it must lie in (0, 1/2)")
+            from scipy.special import kv
+
+            return kv(R, self.k_points)
+        return ktilde(R, self.k_points)
 
 
 class HejhalSystem:
@@ -80,48 +116,35 @@ class HejhalSystem:
     params : SolverParams
         Y, M0, Q. Y must lie below the group's fundamental-domain height so that every
         pullback raises the sample point.
+    samples : SampleSet, optional
+        Share the sample points (and their pullbacks) with the other classes of the level.
     """
 
-    def __init__(self, group, symmetry: SymmetryClass, params: SolverParams) -> None:
+    def __init__(self, group, symmetry: SymmetryClass, params: SolverParams, samples: SampleSet | None = None) -> None:
         check_symmetry(group, symmetry)
-        Y0 = group.fundamental_domain_height
-        if not (0 < params.Y < Y0):
-            raise InputError(
-                f"sample height Y={params.Y!r} is not allowed for level {group.level}; "
-                f"it must lie in (0, {Y0:.6g}) so that every pullback raises the point"
-            )
+        if samples is None:
+            samples = SampleSet(group, params)
+        elif samples.params != params or samples.group.level != group.level:
+            raise InputError("the shared sample set was built for other parameters or another level")
         self.group = group
         self.symmetry = symmetry
         self.params = params
-        self._cs = _cs(symmetry.parity)
+        self.samples = samples
+        cs = _cs(symmetry.parity)
+        sign = np.array([symmetry.al_sign(group.cusps[int(j)].atkin_lehner_Q) for j in samples.cusp], dtype=float)
+        n = np.arange(1, params.M0 + 1)
+        # R-independent trigonometric factors of V (Q x M0 and M0 x Q)
+        self._out = sign[:, None] * cs(TWO_PI * np.outer(samples.xs, n))
+        self._inv = (2.0 / params.Q) * cs(TWO_PI * np.outer(n, samples.x))
+        self._sqrt_ys = np.sqrt(samples.ys)[:, None]
 
-    @cached_property
-    def samples(self) -> SamplePoints:
-        p = self.params
-        m = np.arange(1, p.Q + 1)
-        x = (m - 0.5) / (2 * p.Q)
-        pb = self.group.pullback(x, np.full_like(x, p.Y))
-        cusps = self.group.cusps
-        sign = np.array(
-            [self.symmetry.al_sign(cusps[int(j)].atkin_lehner_Q) for j in np.asarray(pb.cusp)],
-            dtype=float,
-        )
-        ys = np.asarray(pb.y, dtype=float)
-        if np.any(ys <= p.Y * (1 + 1e-12)):
-            raise InputError(
-                f"sample height Y={p.Y} is too large for level {self.group.level}: some pullbacks "
-                "do not rise above Y"
-            )
-        return SamplePoints(x=x, Y=p.Y, xs=np.asarray(pb.x, dtype=float), ys=ys, sign=sign)
-
-    @cached_property
-    def _phases(self) -> tuple[np.ndarray, np.ndarray]:
-        """R-independent trigonometric factors of V (Q x M0 and M0 x Q)."""
-        s = self.samples
-        n = np.arange(1, self.params.M0 + 1)
-        out = s.sign[:, None] * self._cs(TWO_PI * np.outer(s.xs, n))
-        inv = (2.0 / self.params.Q) * self._cs(TWO_PI * np.outer(n, s.x))
-        return out, inv
+    def matrix_from_k(self, k: np.ndarray) -> np.ndarray:
+        """A(R) from the values k = Kt(R, samples.k_points)."""
+        Q, M0 = self.params.Q, self.params.M0
+        kb = self._sqrt_ys * k[: Q * M0].reshape(Q, M0)
+        A = -(self._inv @ (kb * self._out))
+        A[np.diag_indices(M0)] += math.sqrt(self.params.Y) * k[Q * M0:]
+        return A
 
     def matrix(self, R: float, *, exceptional: bool = False) -> np.ndarray:
         """The square matrix A(R) of size M0 (singular at eigenvalues of the class).
@@ -130,40 +153,32 @@ class HejhalSystem:
         lambda = 1/4 - t^2 (spectral parameter R = i t) with K_t of real order
         (scipy.special.kv), to search for exceptional eigenvalues below 1/4.
         """
-        s = self.samples
-        M0 = self.params.M0
-        n = np.arange(1, M0 + 1)
-        out, inv = self._phases
-        if exceptional:
-            if not (0 < R < 0.5):
-                raise InputError(f"t={R!r} is not allowed for an exceptional system; it must lie in (0, 1/2)")
-            from scipy.special import kv
-
-            kfun = lambda x: kv(R, x)  # noqa: E731
-        else:
-            kfun = lambda x: ktilde(R, x)  # noqa: E731
-        kb = np.sqrt(s.ys)[:, None] * kfun((TWO_PI * s.ys)[:, None] * n[None, :])
-        V = inv @ (kb * out)
-        diag = np.sqrt(s.Y) * kfun(TWO_PI * s.Y * n)
-        A = -V
-        A[np.diag_indices(M0)] += diag
-        return A
+        return self.matrix_from_k(self.samples.k_values(R, exceptional=exceptional))
 
     def log_det(self, R: float, *, exceptional: bool = False) -> tuple[float, float]:
         """Sign and log|det A(R)| (formulas ref. §1.4: the sign changes at eigenvalues)."""
-        sign, logdet = np.linalg.slogdet(self.matrix(R, exceptional=exceptional))
-        return float(sign), float(logdet)
+        return slogdet(self.matrix(R, exceptional=exceptional))
 
     def solve(self, R: float, *, exceptional: bool = False) -> np.ndarray:
         """Coefficients a(1..M0) with a(1) = 1 (the n = 1 equation is dropped)."""
-        A = self.matrix(R, exceptional=exceptional)
-        try:
-            rest = np.linalg.solve(A[1:, 1:], -A[1:, 0])
-        except np.linalg.LinAlgError:
-            rest = np.linalg.lstsq(A[1:, 1:], -A[1:, 0], rcond=None)[0]
-        return np.concatenate(([1.0], rest))
+        return normalised_solution(self.matrix(R, exceptional=exceptional))
 
     def residual(self, R: float, a: np.ndarray) -> float:
         """Relative residual |A a| / (|A| |a|) of a coefficient vector."""
         A = self.matrix(R)
         return float(np.linalg.norm(A @ a) / (np.linalg.norm(A) * np.linalg.norm(a)))
+
+
+def slogdet(A: np.ndarray) -> tuple[float, float]:
+    """Sign and log|det A| as floats."""
+    sign, logdet = np.linalg.slogdet(A)
+    return float(sign), float(logdet)
+
+
+def normalised_solution(A: np.ndarray) -> np.ndarray:
+    """Solution of A a = 0 with a(1) = 1, dropping the first equation (Hejhal 1999, §2)."""
+    try:
+        rest = np.linalg.solve(A[1:, 1:], -A[1:, 0])
+    except np.linalg.LinAlgError:
+        rest = np.linalg.lstsq(A[1:, 1:], -A[1:, 0], rcond=None)[0]
+    return np.concatenate(([1.0], rest))

@@ -1,36 +1,46 @@
-"""Locate, refine and confirm every eigenvalue of one symmetry class in an R window.
+"""Locate, refine and confirm every eigenvalue of the symmetry classes of a level in an R window.
 
 Method (formulas ref. §1.4). With Y, M0 and Q held fixed over the window (M0 chosen for
 its top), the sign of det A(R) of the square Hejhal system is scanned on a grid whose step
-is a small fraction of the mean spacing of the class predicted by Weyl's law; interior
-minima of log|det A(R)| without a sign change are examined for root pairs inside one cell. det A(R) is
+is a small fraction of the mean spacing of a class predicted by Weyl's law. det A(R) is
 continuous in R, so unlike the classical two-Y comparison (Hejhal 1999; Strömberg 2005)
 it has no poles; it changes sign at every eigenvalue and at spurious points where the
-truncated system is singular. Each sign change is refined by Brent's method, and a
-candidate is accepted only when it is confirmed independently:
+truncated system is singular. Interior minima of log|det A(R)| without a sign change are
+examined for root pairs inside one grid cell. Each sign change is refined by Brent's
+method, and a candidate is accepted only when it is confirmed independently:
 
-1. the root of det A(R) at a second height Y2 agrees (the eigenvalue is independent of Y,
-   a spurious root is not), giving the error estimate of R;
-2. the normalised coefficients a(2..) solved at Y1 and at Y2 agree;
+1. the normalised coefficients a(2..) solved at a second height Y2 agree with those at Y1
+   (an eigenvalue does not depend on Y, a spurious root does);
+2. a secant step of the two-height difference (the classical test function of Hejhal's
+   method) moves R by less than ``R_tol``; its size is the stored error estimate of R;
 3. the Hecke relations hold (a(mn) = a(m) a(n), a(p^2) = a(p)^2 - 1, ...).
+
+All classes of a level share the sample points and their pullbacks, hence the values of
+Kt(R, x) the matrices need; those values come from a Chebyshev interpolant in R per chunk of
+the window (:mod:`maasscomp.hejhal.kinterp`), which checks its own accuracy.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
-from typing import Callable
+from dataclasses import dataclass
+from typing import Callable, Sequence
 
 import numpy as np
-from scipy.optimize import brentq
+from scipy.optimize import brentq, minimize_scalar
 
 from maasscomp.errors import InputError
+from maasscomp.hejhal.kinterp import KInterpolator
 from maasscomp.hejhal.params import choose_params
-from maasscomp.hejhal.system import HejhalSystem
+from maasscomp.hejhal.system import HejhalSystem, SampleSet, normalised_solution, slogdet
 from maasscomp.hejhal.types import SolverParams, SymmetryClass
-from maasscomp.spectrum.form import Form
 from maasscomp.spectrum.classify import classify
+from maasscomp.spectrum.form import Form
 from maasscomp.spectrum.hecke import hecke_residual
+
+# Beyond this many Kt points per R the direct per-R evaluation is used instead of
+# interpolation in R (the interpolant's memory grows like nodes x points).
+_INTERP_MAX_POINTS = 1_500_000
 
 
 @dataclass(frozen=True)
@@ -52,7 +62,7 @@ class SearchSettings:
     hecke_tol : float
         Largest accepted Hecke residual at confirmation.
     R_tol : float
-        Largest accepted difference between the det roots at Y1 and Y2.
+        Largest accepted secant step of the two-height difference at the refined root.
     n_coeffs : int
         Number of coefficients stored per form (the final solve uses a height low enough
         for these to be accurate).
@@ -114,66 +124,185 @@ def mean_spacing(level: int, n_classes: int, R: float, index: int) -> float:
     return 6.0 * n_classes / (index * max(R, 1.0))
 
 
-def _det_function(system: HejhalSystem, ref: float) -> Callable[[float], float]:
+class _KSource:
+    """Kt(R, x) at a sample set's points: interpolated in R per chunk, or direct."""
+
+    def __init__(self, samples: SampleSet, Ra: float, Rb: float) -> None:
+        self.samples = samples
+        self.interp = None
+        if samples.k_points.size <= _INTERP_MAX_POINTS and Rb > Ra:
+            self.interp = KInterpolator(samples.k_points, Ra, Rb)
+
+    def __call__(self, R: float) -> np.ndarray:
+        if self.interp is not None and self.interp.Ra <= R <= self.interp.Rb:
+            return self.interp(R)
+        return self.samples.k_values(R)
+
+
+def _chunks(grid: np.ndarray, samples: SampleSet) -> list[tuple[int, int]]:
+    """Index ranges [i0, i1] (inclusive, consecutive ranges share an end point) such that
+    the interpolant of each has a moderate number of nodes."""
+    xmin = float(samples.k_points.min())
+    omega = math.acosh(max(grid[-1] / xmin, 1.0))
+    width = 50.0 / max(omega, 0.5)  # about 44 Chebyshev nodes per chunk
+    out, i0 = [], 0
+    while i0 < len(grid) - 1:
+        i1 = int(np.searchsorted(grid, grid[i0] + width, side="right")) - 1
+        i1 = min(max(i1, i0 + 2), len(grid) - 1)
+        out.append((i0, i1))
+        i0 = i1
+    return out or [(0, len(grid) - 1)]
+
+
+def _refine(det: Callable[[float], tuple[float, float]], a: float, b: float) -> float:
+    """Root of det in the sign-change bracket [a, b] by Brent's method."""
+    la, lb = det(a)[1], det(b)[1]
+    ref = max(la, lb)
+
     def g(R: float) -> float:
-        s, ld = system.log_det(R)
-        return s * math.exp(max(ld - ref, -700.0)) if s != 0 else 0.0
+        s, ld = det(R)
+        return s * math.exp(max(ld - ref, -700.0))
 
-    return g
-
-
-def _refine_root(system: HejhalSystem, a: float, b: float) -> float:
-    sa, la = system.log_det(a)
-    sb, lb = system.log_det(b)
-    g = _det_function(system, max(la, lb))
     return float(brentq(g, a, b, xtol=1e-15, rtol=4 * np.finfo(float).eps, maxiter=200))
 
 
-def _root_near(system: HejhalSystem, R: float, width: float) -> float | None:
-    """Root of det A at this system's Y within R +- width (None if no sign change)."""
-    for w in (width, 4 * width, 16 * width):
-        a, b = R - w, R + w
-        if system.log_det(a)[0] * system.log_det(b)[0] < 0:
-            return _refine_root(system, a, b)
-    return None
-
-
-def _hidden_pairs(system: HejhalSystem, grid: np.ndarray, signs: np.ndarray,
-                  logs: np.ndarray) -> list[tuple[float, float]]:
-    """Brackets of root pairs that fall inside one grid cell.
+def _hidden_pairs(det: Callable[[float], tuple[float, float]], grid: np.ndarray, signs: np.ndarray,
+                  logs: np.ndarray, lo: int, hi: int) -> list[tuple[float, float]]:
+    """Brackets of root pairs that fall inside one grid cell, for interior indices lo..hi-1.
 
     Between two roots |det A| has a maximum, so an interior local minimum of log|det A|
     with no sign change around it marks either a near miss or two roots closer than the
-    grid step. The minimum is located by bounded minimisation; if the sign there differs
-    from its neighbours, both roots are bracketed.
+    grid step. The minimum is located by bounded minimisation; if the sign there (or just
+    beside it: the minimiser may stop at one of the roots) differs from its neighbours,
+    both roots are bracketed.
     """
-    from scipy.optimize import minimize_scalar
-
     out = []
-    for i in range(1, len(grid) - 1):
+    for i in range(max(lo, 1), min(hi, len(grid) - 1)):
         if not (logs[i] < logs[i - 1] and logs[i] < logs[i + 1]):
             continue
         if signs[i - 1] != signs[i] or signs[i] != signs[i + 1]:
-            continue  # the sign changes are bracketed already
+            continue
         a, b = float(grid[i - 1]), float(grid[i + 1])
-        res = minimize_scalar(lambda R: system.log_det(R)[1], bounds=(a, b), method="bounded",
+        res = minimize_scalar(lambda R: det(R)[1], bounds=(a, b), method="bounded",
                               options={"xatol": 1e-12 * max(1.0, b)})
         m = float(res.x)
-        # the minimiser may stop right at one of the two roots: probe both sides of it
         for p in (m, m - 1e-9 * (b - a), m + 1e-9 * (b - a)):
-            if a < p < b and system.log_det(p)[0] != signs[i]:
+            if a < p < b and det(p)[0] != signs[i]:
                 out += [(a, p), (p, b)]
                 break
     return out
 
 
-def _store_height(R: float, n_coeffs: int, p1: SolverParams) -> float:
+def _store_height(n_coeffs: int, p1: SolverParams) -> float:
     """A height whose truncation M0 is about 3 n_coeffs.
 
     Coefficients up to about M0/3 are accurate to near the truncation target in double
     precision (formulas ref. §1.3); M0 grows like 1/Y at fixed R.
     """
     return min(p1.Y, p1.Y * p1.M0 / (3.0 * n_coeffs))
+
+
+def _check_window(R_min: float, R_max: float) -> None:
+    for name, v in (("R_min", R_min), ("R_max", R_max)):
+        if not (isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) and v > 0):
+            raise InputError(f"{name}={v!r} is not allowed; it must be a positive finite number")
+    if R_min >= R_max:
+        raise InputError(f"R_min={R_min!r} must be smaller than R_max={R_max!r}")
+
+
+def search_classes(
+    group,
+    classes: Sequence[SymmetryClass],
+    R_min: float,
+    R_max: float,
+    settings: SearchSettings | None = None,
+    *,
+    step: float | None = None,
+    progress: Callable[[int, int], None] | None = None,
+) -> dict[SymmetryClass, SearchResult]:
+    """Find every eigenvalue of the given symmetry classes of a level with R in [R_min, R_max].
+
+    Parameters
+    ----------
+    group : Gamma0
+        From :func:`maasscomp.groups.gamma0` (squarefree level).
+    classes : sequence of SymmetryClass
+        Classes to search; they share the sample points and the K-Bessel values.
+    R_min, R_max : float
+        The window, 0 < R_min < R_max. A root exactly at R_max is reported; one exactly
+        at R_min is reported too (callers that split a window de-duplicate).
+    settings : SearchSettings, optional
+    step : float, optional
+        Grid step override (default: mean spacing / steps_per_spacing, capped by max_step).
+    progress : callable(done, total), optional
+        Called after each grid point.
+
+    Returns
+    -------
+    dict
+        One :class:`SearchResult` per class: accepted forms sorted by R, and every
+        candidate with the reason it was kept or rejected.
+    """
+    settings = settings or SearchSettings()
+    _check_window(R_min, R_max)
+    classes = list(dict.fromkeys(classes))
+    if not classes:
+        raise InputError("no symmetry class to search; give at least one")
+    n_classes = 2 * 2 ** len(group.primes)
+    if step is None:
+        step = min(settings.max_step, mean_spacing(group.level, n_classes, R_max, group.index) / settings.steps_per_spacing)
+    if not (isinstance(step, (int, float)) and math.isfinite(step) and step > 0):
+        raise InputError(f"grid step={step!r} is not allowed; it must be a positive finite number")
+
+    Y0 = group.fundamental_domain_height
+    # one set of parameters for the whole scan: a jump of M0 would flip the sign of det
+    p1 = choose_params(R_max + 1.0, settings.Y1_frac * Y0, settings.eps)
+    p2 = choose_params(R_max + 1.0, settings.Y2_frac * Y0, settings.eps)
+    s1, s2 = SampleSet(group, p1), SampleSet(group, p2)
+    sys1 = {c: HejhalSystem(group, c, p1, s1) for c in classes}
+    sys2 = {c: HejhalSystem(group, c, p2, s2) for c in classes}
+
+    n = max(3, int(math.ceil((R_max - R_min) / step)) + 1)
+    grid = np.linspace(R_min, R_max, n)
+    signs = {c: np.empty(n) for c in classes}
+    logs = {c: np.empty(n) for c in classes}
+    roots: dict[SymmetryClass, list[float]] = {c: [] for c in classes}
+    done = 0
+    for i0, i1 in _chunks(grid, s1):
+        lo, hi = max(i0 - 1, 0), min(i1 + 1, n - 1)  # one cell of overlap for the minima test
+        ksrc = _KSource(s1, float(grid[lo]), float(grid[hi]))
+        for i in range(lo, hi + 1):
+            k = ksrc(float(grid[i]))
+            for c in classes:
+                signs[c][i], logs[c][i] = slogdet(sys1[c].matrix_from_k(k))
+            if i0 <= i < i1 or i == n - 1:
+                done += 1
+                if progress is not None:
+                    progress(done, n)
+        for c in classes:
+            det = lambda R, c=c: slogdet(sys1[c].matrix_from_k(ksrc(R)))  # noqa: E731
+            sg = signs[c]
+            for i in range(i0, i1):
+                if sg[i] * sg[i + 1] < 0:
+                    roots[c].append(_refine(det, float(grid[i]), float(grid[i + 1])))
+            for a, b in _hidden_pairs(det, grid, sg, logs[c], i0 if i0 > 0 else 1, i1):
+                roots[c].append(_refine(det, a, b))
+
+    results = {}
+    for c in classes:
+        candidates: list[Candidate] = []
+        forms: list[Form] = []
+        for Rc in sorted(roots[c]):
+            ok, reason, form = _confirm(group, c, Rc, sys1[c], sys2[c], settings)
+            candidates.append(Candidate(R=Rc, accepted=ok, reason=reason))
+            if ok:
+                forms.append(form)
+        results[c] = SearchResult(
+            level=group.level, symmetry=c, R_min=float(R_min), R_max=float(R_max),
+            forms=tuple(sorted(forms, key=lambda f: f.R)), candidates=tuple(candidates),
+            grid_step=float(step), params=p1,
+        )
+    return results
 
 
 def search_window(
@@ -188,95 +317,46 @@ def search_window(
 ) -> SearchResult:
     """Find every eigenvalue of one symmetry class with R in [R_min, R_max].
 
-    Parameters
-    ----------
-    group : Gamma0
-        From :func:`maasscomp.groups.gamma0` (squarefree level).
-    symmetry : SymmetryClass
-    R_min, R_max : float
-        The window, 0 < R_min < R_max.
-    settings : SearchSettings, optional
-    step : float, optional
-        Grid step override (default: mean spacing / steps_per_spacing, capped by max_step).
-    progress : callable(done, total), optional
-        Called after each grid point.
-
-    Returns
-    -------
-    SearchResult
-        Accepted forms sorted by R, and every candidate with the reason it was kept or
-        rejected.
+    See :func:`search_classes` (this is the one-class case).
     """
-    settings = settings or SearchSettings()
-    for name, v in (("R_min", R_min), ("R_max", R_max)):
-        if not (isinstance(v, (int, float)) and math.isfinite(v) and v > 0):
-            raise InputError(f"{name}={v!r} is not allowed; it must be a positive finite number")
-    if R_min >= R_max:
-        raise InputError(f"R_min={R_min!r} must be smaller than R_max={R_max!r}")
-    n_classes = 2 * 2 ** len(group.primes)
-    if step is None:
-        step = min(settings.max_step, mean_spacing(group.level, n_classes, R_max, group.index) / settings.steps_per_spacing)
-    if not (step > 0 and math.isfinite(step)):
-        raise InputError(f"grid step={step!r} is not allowed; it must be a positive finite number")
-
-    Y0 = group.fundamental_domain_height
-    Y1, Y2 = settings.Y1_frac * Y0, settings.Y2_frac * Y0
-    # one set of parameters for the whole scan: a jump of M0 would flip the sign of det
-    p1 = choose_params(R_max + 1.0, Y1, settings.eps)
-    p2 = choose_params(R_max + 1.0, Y2, settings.eps)
-    sys1 = HejhalSystem(group, symmetry, p1)
-    sys2 = HejhalSystem(group, symmetry, p2)
-
-    n = max(2, int(math.ceil((R_max - R_min) / step)) + 1)
-    grid = np.linspace(R_min, R_max, n)
-    signs = np.empty(n)
-    logs = np.empty(n)
-    for i, R in enumerate(grid):
-        signs[i], logs[i] = sys1.log_det(float(R))
-        if progress is not None:
-            progress(i + 1, n)
-
-    brackets = [(float(grid[i]), float(grid[i + 1])) for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]]
-    brackets += _hidden_pairs(sys1, grid, signs, logs)
-
-    candidates: list[Candidate] = []
-    forms: list[Form] = []
-    for a, b in sorted(brackets):
-        Rc = _refine_root(sys1, a, b)
-        ok, reason, form = _confirm(group, symmetry, Rc, sys1, sys2, settings, step)
-        candidates.append(Candidate(R=Rc, accepted=ok, reason=reason))
-        if ok:
-            forms.append(form)
-    return SearchResult(
-        level=group.level,
-        symmetry=symmetry,
-        R_min=float(R_min),
-        R_max=float(R_max),
-        forms=tuple(sorted(forms, key=lambda f: f.R)),
-        candidates=tuple(candidates),
-        grid_step=float(step),
-        params=p1,
-    )
+    return search_classes(group, [symmetry], R_min, R_max, settings, step=step, progress=progress)[symmetry]
 
 
-def _confirm(group, symmetry, Rc, sys1, sys2, settings: SearchSettings, step: float):
+def _confirm(group, symmetry: SymmetryClass, Rc: float, sys1: HejhalSystem, sys2: HejhalSystem,
+             settings: SearchSettings):
     """Independent confirmation of a det root; returns (ok, reason, Form | None)."""
-    R2 = _root_near(sys2, Rc, max(1e-7, 1e3 * settings.R_tol))
-    if R2 is None:
-        return False, "no det root at the second height Y2", None
-    dR = abs(R2 - Rc)
-    if dR > settings.R_tol:
-        return False, f"det roots at Y1 and Y2 differ by {dR:.2e}", None
-    a1 = sys1.solve(Rc)
-    a2 = sys2.solve(Rc)
     k = min(8, sys1.params.M0 // 2, sys2.params.M0 // 2)
-    dcoef = float(np.max(np.abs(a1[1:k] - a2[1:k])))
+
+    def two_heights(R: float) -> tuple[np.ndarray, np.ndarray]:
+        return sys1.solve(R), sys2.solve(R)
+
+    a1, a2 = two_heights(Rc)
+    H0 = a1[1:k] - a2[1:k]
+    dcoef = float(np.max(np.abs(H0)))
     if not np.isfinite(dcoef) or dcoef > settings.coeff_tol:
         return False, f"coefficients at Y1 and Y2 differ by {dcoef:.2e}", None
+    # secant steps of the two-height difference H(R) (least squares over a(2..k)); they
+    # polish the root found on interpolated K values with exact ones
+    dR = math.inf
+    for _ in range(3):
+        h = 1e-7 * max(1.0, Rc)
+        b1, b2 = two_heights(Rc + h)
+        dH = (b1[1:k] - b2[1:k]) - H0
+        denom = float(dH @ dH)
+        step = -float(H0 @ dH) / denom * h if denom > 0 else math.inf
+        if not abs(step) <= settings.R_tol:
+            return False, f"two-height secant step {abs(step):.2e} above R_tol {settings.R_tol:.0e}", None
+        Rc += step
+        a1, a2 = two_heights(Rc)
+        H0 = a1[1:k] - a2[1:k]
+        if abs(step) <= 1e-13 * max(1.0, Rc) or abs(step) >= 0.5 * dR:
+            dR = abs(step)
+            break
+        dR = abs(step)
 
     # final solve at a height giving n_coeffs accurate coefficients, and a second height
     # for their error estimate
-    Ys = _store_height(Rc, settings.n_coeffs, sys1.params)
+    Ys = _store_height(settings.n_coeffs, sys1.params)
     ps_a = choose_params(Rc + 0.5, Ys, settings.eps)
     ps_b = choose_params(Rc + 0.5, 0.9 * Ys, settings.eps)
     ca = HejhalSystem(group, symmetry, ps_a).solve(Rc)
