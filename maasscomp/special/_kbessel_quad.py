@@ -143,7 +143,7 @@ def _dpsi_osc(S, R, w):
     return S * np.sinh(w) + 2.0 * R * sh2 * sh2
 
 
-def osc_amplitude(R: float, x, h: float = 0.3, tau_max: float = 6.3, substeps: int = 4):
+def osc_amplitude(R: float, x, h: float = 0.3, tau_max: float = 6.3, substeps: int = 2):
     """Complex amplitude ``J(x)`` with ``Kt(R, x) = Re[exp(i Phi(x)) J(x)]`` for ``0 <= x < R``.
 
     Trapezoidal rule in the steepest-descent variable ``tau`` (step ``h``, ``|tau| <= tau_max``,
@@ -155,6 +155,9 @@ def osc_amplitude(R: float, x, h: float = 0.3, tau_max: float = 6.3, substeps: i
     real axis, which is ``sqrt(|Phi(x)|)`` (the second saddle ``-alpha``) and
     ``sqrt(pi R)`` (saddles at ``alpha + 2 pi i k``).  Callers keep ``|Phi| >= 4`` and
     ``R >= 8``, where ``h = 0.3`` gives relative errors near 1e-16.
+
+    The continuation is checked: if a Newton solve leaves a residual above 1e-12, the
+    computation is repeated with twice as many continuation substeps.
     """
     x = np.atleast_1d(np.asarray(x, dtype=np.float64))
     S = np.sqrt((R - x) * (R + x))
@@ -175,6 +178,11 @@ def osc_amplitude(R: float, x, h: float = 0.3, tau_max: float = 6.3, substeps: i
             target = 1j * tau * tau
             for _ in range(4):
                 w = w - (_psi_osc(S, R, w) - target) / _dpsi_osc(S, R, w)
+            resid = np.abs(_psi_osc(S, R, w) - target)
+            if np.any(~(resid <= 1e-12 * (1.0 + tau * tau))):
+                if substeps >= 64:
+                    raise RuntimeError(f"osc_amplitude: contour continuation failed for R={R}")
+                return osc_amplitude(R, x, h, tau_max, 2 * substeps)
             hist.append(w)
             if len(hist) > 3:
                 hist.pop(0)

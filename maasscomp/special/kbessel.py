@@ -96,8 +96,10 @@ def ktilde(R: float, x: ArrayLike) -> np.ndarray:
     J. Comput. Phys. 175 (2002) 398-411) on both sides of the turning point, with the large
     oscillatory phase ``sqrt(R^2 - x^2) - R arccosh(R/x)`` evaluated in double-double
     arithmetic; Taylor marching of Bessel's equation (DLMF 10.25.1) across the turning
-    point.  Accuracy (measured against arb): absolute error below ~1e-14 for ``x < R``,
-    relative error below ~1e-13 for ``x >= R``.
+    point.  Accuracy measured against arb (data/reference/kbessel_arb_table.csv,
+    R = 0.1 .. 10^4): absolute error below 4e-14 * max(1, |Kt|) for ``x < R``, relative
+    error below 1.4e-13 for ``x >= R`` (the largest errors come from ``exp(-Psi)`` with
+    ``Psi`` up to 700 in the far tail).
     """
     Rf = _check_R(R)
     xa = _check_x(x)
