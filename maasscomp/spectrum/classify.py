@@ -48,10 +48,10 @@ def eigen_at_level(M: int, parity: str, al_signs: dict[int, int], R: float, *, t
     g = gamma0(M)
     sym = SymmetryClass(parity, tuple((p, al_signs[p]) for p in sorted(g.primes)))
     Y0 = g.fundamental_domain_height
-    sols = []
-    for frac in (0.9, 0.75):
-        p = choose_params(R + 0.5, frac * Y0, eps)
-        sols.append(HejhalSystem(g, sym, p).solve(R))
+    # heights low enough that M0 >= 24, so a(2..6) are far inside the accurate range (~M0/3)
+    p = choose_params(R + 0.5, 0.9 * Y0, eps)
+    Y = 0.9 * Y0 * min(1.0, p.M0 / 24.0)
+    sols = [HejhalSystem(g, sym, choose_params(R + 0.5, f * Y, eps)).solve(R) for f in (1.0, 0.85)]
     k = min(7, sols[0].size, sols[1].size)
     if np.all(np.isfinite(sols[0][:k])) and np.max(np.abs(sols[0][1:k] - sols[1][1:k])) < tol:
         return sols[0]
