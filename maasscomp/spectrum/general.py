@@ -8,17 +8,18 @@ multiplicity does not change sign, so the scan of the multi-cusp system
 (:class:`maasscomp.hejhal.multicusp.MultiCuspSystem`) looks at both
 
 * sign changes of det A(R) (refined by Brent's method), and
-* interior local minima of log|det A(R)| without a sign change (refined by bounded
-  minimisation),
+* interior local minima of log|det A(R)| without a sign change (refined by golden-section
+  search),
 
-on a grid whose step is a fraction of the mean spacing from Weyl's law (formulas ref. §2).
+at two heights Y1 and Y2 (a spurious root of the truncated system depends on Y and can
+mask a true eigenvalue in the same grid interval at one height only), on a grid whose step is a fraction of the mean spacing from Weyl's law (formulas ref. §2).
 Each candidate R is then tested with the singular value decomposition:
 
 1. multiplicity m = number of relative singular values below ``mult_tol`` (at an
    eigenvalue the m smallest ones are at the truncation level ~1e-15 and grow like
    |R - R_true|; the next one is of the order of the distance to the next eigenvalue);
-2. the root (or minimum) at a second height Y2 agrees and has the same multiplicity;
-3. the null spaces at Y1 and Y2 span the same coefficient subspace (principal angles of
+2. the root (or minimum) at the other height agrees and has the same multiplicity;
+3. the null spaces at both heights span the same coefficient subspace (principal angles of
    the well-determined coefficients, Björck & Golub, Math. Comp. 27 (1973) 579-594);
 4. at a low storage height the eigenspace is recomputed and a basis chosen: Hecke
    eigenforms with c_inf(1) = 1 when the Hecke operators T_p (p not dividing N) separate
@@ -85,15 +86,49 @@ def _divisors(n: int) -> list[int]:
 
 
 def _refine_sign_change(system: MultiCuspSystem, a: float, b: float) -> float:
-    la = system.log_det(a)[1]
-    lb = system.log_det(b)[1]
-    ref = max(la, lb)
+    """Root of det A(R) in [a, b] (a sign change) to ~1e-15 relative.
 
-    def g(R: float) -> float:
-        s, ld = system.log_det(R)
-        return s * math.exp(max(ld - ref, -700.0)) if s != 0 else 0.0
+    Near a root of multiplicity m, |det| ~ |R - R0|^m, on which Brent's method converges
+    only linearly for m > 1. After a few Brent steps on sign * |det| the multiplicity is
+    estimated from the slope of log|det| against log|R - R0| over the points already
+    evaluated, and Brent's method is restarted on sign * |det|^(1/m), which has a simple root.
+    """
+    seen: dict[float, tuple[float, float]] = {}
 
-    return float(brentq(g, a, b, xtol=1e-15, rtol=4 * np.finfo(float).eps, maxiter=200))
+    def ev(R: float) -> tuple[float, float]:
+        if R not in seen:
+            seen[R] = system.log_det(R)
+        return seen[R]
+
+    ref = max(ev(a)[1], ev(b)[1])
+
+    def make(m: int):
+        def g(R: float) -> float:
+            s, ld = ev(R)
+            return s * math.exp(max((ld - ref) / m, -700.0)) if s != 0 else 0.0
+
+        return g
+
+    tol = dict(xtol=1e-15, rtol=4 * np.finfo(float).eps)
+    try:
+        return float(brentq(make(1), a, b, maxiter=12, **tol))
+    except RuntimeError:
+        pass
+    pts = sorted(seen.items())
+    lo, hi = a, b
+    for (r0, (s0, _)), (r1, (s1, _)) in zip(pts[:-1], pts[1:]):
+        if s0 * s1 < 0:
+            lo, hi = r0, r1
+            break
+    c, w = 0.5 * (lo + hi), hi - lo
+    far = [(r, v[1]) for r, v in pts if abs(r - c) >= 3 * w]
+    m = 1
+    if len(far) >= 2:
+        X = np.array([[math.log(abs(r - c)), 1.0] for r, _ in far])
+        slope = float(np.linalg.lstsq(X, np.array([ld for _, ld in far]), rcond=None)[0][0])
+        m = int(min(12, max(1, round(slope))))
+    ref = max(ev(lo)[1], ev(hi)[1])
+    return float(brentq(make(m), lo, hi, maxiter=200, **tol))
 
 
 def _refine_minimum(system: MultiCuspSystem, a: float, b: float, mid: float | None = None) -> float:
@@ -315,7 +350,7 @@ def search_window_general(
         Grid step override (default: mean spacing of the class / steps_per_spacing,
         capped by max_step; Weyl's law leading term for the two parity classes).
     progress : callable(done, total), optional
-        Called after each grid point.
+        Called after each grid point (two scans: at Y1 and at Y2).
     mult_tol : float
         Relative singular value below which a direction counts as null
         (:data:`MULTIPLICITY_TOL`).
@@ -356,36 +391,45 @@ def search_window_general(
     n = max(2, int(math.ceil((R_max - R_min) / step)) + 1)
     grid = np.concatenate(([R_min - step], np.linspace(R_min, R_max, n), [R_max + step]))
     grid = grid[grid > 0]
-    signs = np.empty(grid.size)
-    logs = np.empty(grid.size)
-    for i, R in enumerate(grid):
-        signs[i], logs[i] = sys1.log_det(float(R))
-        if progress is not None:
-            progress(i + 1, grid.size)
-
-    raw: list[tuple[float, str]] = []
-    for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
-        raw.append((_refine_sign_change(sys1, float(grid[i]), float(grid[i + 1])), "sign change"))
-    for i in range(1, grid.size - 1):
-        if logs[i] < logs[i - 1] and logs[i] < logs[i + 1] and signs[i - 1] == signs[i] == signs[i + 1]:
-            raw.append(
-                (_refine_minimum(sys1, float(grid[i - 1]), float(grid[i + 1]), float(grid[i])), "log|det| minimum")
-            )
+    # Both heights are scanned: a spurious root of the truncated system at one height (these
+    # depend on Y) can hide a true eigenvalue in the same grid interval, which the other
+    # height then still shows.
+    systems = (sys1, sys2)
+    raw: list[tuple[float, str, int]] = []
+    for k, sysk in enumerate(systems):
+        signs = np.empty(grid.size)
+        logs = np.empty(grid.size)
+        for i, R in enumerate(grid):
+            signs[i], logs[i] = sysk.log_det(float(R))
+            if progress is not None:
+                progress(k * grid.size + i + 1, 2 * grid.size)
+        for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
+            raw.append((_refine_sign_change(sysk, float(grid[i]), float(grid[i + 1])), "sign change", k))
+        for i in range(1, grid.size - 1):
+            if logs[i] < logs[i - 1] and logs[i] < logs[i + 1] and signs[i - 1] == signs[i] == signs[i + 1]:
+                Rm = _refine_minimum(sysk, float(grid[i - 1]), float(grid[i + 1]), float(grid[i]))
+                raw.append((Rm, "log|det| minimum", k))
     raw.sort()
-    merged: list[tuple[float, str]] = []
-    for R, how in raw:
-        if merged and abs(R - merged[-1][0]) < 1e-7:
-            continue
-        merged.append((R, how))
+    clusters: list[list[tuple[float, str, int]]] = []
+    for item in raw:
+        if clusters and abs(item[0] - clusters[-1][-1][0]) < 1e-7:
+            clusters[-1].append(item)
+        else:
+            clusters.append([item])
 
     candidates: list[Candidate] = []
     forms: list[Form] = []
-    for Rc, how in merged:
-        if not (R_min <= Rc <= R_max):
-            continue
-        ok, reason, new_forms = _confirm(group, parity, Rc, sys1, sys2, settings, mult_tol, classify)
-        candidates.append(Candidate(R=Rc, accepted=ok, reason=f"{how}: {reason}"))
-        forms.extend(new_forms)
+    for cl in clusters:
+        for Rc, how, k in cl:
+            if not (R_min <= Rc <= R_max):
+                continue
+            ok, reason, new_forms = _confirm(
+                group, parity, Rc, systems[k], systems[1 - k], settings, mult_tol, classify
+            )
+            candidates.append(Candidate(R=Rc, accepted=ok, reason=f"{how} at Y{k + 1}: {reason}"))
+            if ok:
+                forms.extend(new_forms)
+                break
     return SearchResult(
         level=group.level,
         symmetry=SymmetryClass(parity),
@@ -403,20 +447,21 @@ def _multiplicity(sv: np.ndarray, tol: float) -> int:
 
 
 def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: float, classify: bool):
-    """Independent confirmation of a candidate; returns (ok, reason, forms)."""
+    """Independent confirmation of a candidate found with ``sys1`` (the scan height), using
+    ``sys2`` (the other height); returns (ok, reason, forms)."""
     sv1, U1 = sys1.null_space(Rc, mult_tol)
     m = U1.shape[1]
     if m == 0:
         return False, f"no null direction (smallest relative singular value {sv1[0]:.1e})", []
     R2 = _root_near(sys2, Rc, max(1e-7, 1e3 * settings.R_tol), odd=bool(m % 2))
     if R2 is None:
-        return False, f"multiplicity {m} at Y1 but no matching root at Y2", []
+        return False, f"multiplicity {m} at the scan height but no matching root at the other height", []
     dR = abs(R2 - Rc)
     if dR > settings.R_tol:
-        return False, f"roots at Y1 and Y2 differ by {dR:.2e}", []
+        return False, f"roots at the two heights differ by {dR:.2e}", []
     sv2, U2 = sys2.null_space(R2, mult_tol)
     if U2.shape[1] != m:
-        return False, f"multiplicity {m} at Y1 but {U2.shape[1]} at Y2", []
+        return False, f"multiplicity {m} at the scan height but {U2.shape[1]} at the other height", []
     mask = _good_mask(sys1, Rc)[:, : min(sys1.params.M0, sys2.params.M0)]
     mask &= _good_mask(sys2, R2)[:, : mask.shape[1]]
     M = mask.shape[1]
@@ -424,7 +469,7 @@ def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: 
     C2 = sys2.coefficients(U2)[:, :, :M]
     gap = _subspace_gap(C1, C2, mask)
     if not np.isfinite(gap) or gap > settings.coeff_tol:
-        return False, f"null spaces at Y1 and Y2 differ (sin angle {gap:.2e})", []
+        return False, f"null spaces at the two heights differ (sin angle {gap:.2e})", []
 
     # storage height: a low Y gives n_coeffs accurate coefficients
     Ys = min(sys1.params.Y, sys1.params.Y * sys1.params.M0 / (3.0 * settings.n_coeffs))
@@ -486,7 +531,7 @@ def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: 
             "hecke_eigenform": bool(eig),
             "hecke_eigenvalues": {str(p): v for p, v in lam.items()},
             "hecke_residual_kind": "multiplicative+eigen" if eig else "eigen (T_p, p not dividing N)",
-            "singular_values_Y1": [float(v) for v in sv1[: m + 1]],
+            "singular_values_scan": [float(v) for v in sv1[: m + 1]],
             "singular_values_store": [float(v) for v in sva[: m + 1]],
             "coefficient_subspace_gap": gap,
             "basis": "hecke" if eig else "echelon",
