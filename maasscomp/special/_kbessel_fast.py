@@ -12,6 +12,7 @@ contraction of multiply-add pairs.
 
 from __future__ import annotations
 
+import cmath
 import math
 
 import numba
@@ -168,3 +169,127 @@ def eval_kernel(R, osc, x_lo, x_hi, x_max,
             out[idx] = _clenshaw(m_edges, m_coef, xi) * math.exp(-_psi_decay(R, xi))
         else:
             out[idx] = 0.0
+
+
+# ---------------------------------------------------------------------------------------
+# table construction: compiled versions of the quadratures of :mod:`._kbessel_quad`
+# (same formulas, one scalar loop per node; the numpy versions stay the reference)
+
+
+@_jit
+def _sinh_minus_id_c(w):
+    if abs(w) < 1.0:
+        w2 = w * w
+        term = w * w2 / 6.0
+        acc = term
+        for n in range(2, 12):
+            term = term * w2 / ((2 * n) * (2 * n + 1))
+            acc = acc + term
+        return acc
+    return cmath.sinh(w) - w
+
+
+@_jit
+def osc_amplitude_kernel(R, x, h, tau_max, substeps, out):
+    """J(x) of :func:`._kbessel_quad.osc_amplitude`; returns False if a Newton solve failed."""
+    K = int(math.ceil(tau_max / h))
+    dt = h / substeps
+    e4 = cmath.exp(0.25j * math.pi)
+    for i in range(x.size):
+        xi = x[i]
+        S = math.sqrt((R - xi) * (R + xi))
+        c0 = math.sqrt(2.0 / S) * e4
+        total = c0
+        for sgn in (1.0, -1.0):
+            w0 = 0j
+            w1 = 0j
+            w2 = 0j
+            for j in range(1, K * substeps + 1):
+                tau = sgn * j * dt
+                if j == 1:
+                    w = tau * c0
+                elif j == 2:
+                    w = 2.0 * w2 - w1
+                else:
+                    w = 3.0 * w2 - 3.0 * w1 + w0
+                target = 1j * tau * tau
+                for _ in range(8):
+                    sh2 = cmath.sinh(0.5 * w)
+                    psi = 2.0 * S * sh2 * sh2 + R * _sinh_minus_id_c(w)
+                    dpsi = S * cmath.sinh(w) + 2.0 * R * sh2 * sh2
+                    dw = (psi - target) / dpsi
+                    w = w - dw
+                    if abs(dw) <= 1e-13 * abs(w):
+                        break
+                sh2 = cmath.sinh(0.5 * w)
+                psi = 2.0 * S * sh2 * sh2 + R * _sinh_minus_id_c(w)
+                if not (abs(psi - target) <= 1e-12 * (1.0 + tau * tau)):
+                    return False
+                w0 = w1
+                w1 = w2
+                w2 = w
+                if j % substeps == 0:
+                    dpsi = S * cmath.sinh(w) + 2.0 * R * sh2 * sh2
+                    total = total + math.exp(-tau * tau) * (2j * tau / dpsi)
+        out[i] = h * total
+    return True
+
+
+@_jit
+def decay_amplitude_kernel(R, x, nodes_per_width, out):
+    """M(x) of :func:`._kbessel_quad.decay_amplitude` (values only)."""
+    for i in range(x.size):
+        xi = x[i]
+        rho = R / xi
+        # tau*: tau / sin(tau) = 1 / rho on (0, pi), bisection
+        lo = 0.0
+        hi = math.pi
+        target = 1.0 / rho
+        for _ in range(60):
+            mid = 0.5 * (lo + hi)
+            val = 1.0 if mid == 0.0 else mid / math.sin(mid)
+            if val > target:
+                hi = mid
+            else:
+                lo = mid
+        ts = 0.5 * (lo + hi)
+        cos_s0 = math.sqrt((xi - R) * (xi + R)) / xi
+        b2 = 0.5 * xi * cos_s0 + R * rho / (6.0 * cos_s0)
+        h = min(min(ts, 1.4) / 7.5, 0.5 / math.sqrt(b2)) / nodes_per_width
+        acc = 0.5
+        k = 1
+        while True:
+            t = k * h
+            sh = math.sinh(t)
+            # 1 - g^2 = (sinh t - t)(sinh t + t)/sinh^2 t, g = t/sinh t
+            if t < 1.0:
+                t2 = t * t
+                term = t * t2 / 6.0
+                smt = term
+                for n in range(2, 12):
+                    term = term * t2 / ((2 * n) * (2 * n + 1))
+                    smt += term
+            else:
+                smt = sh - t
+            g = t / sh
+            omg2 = smt * (sh + t) / (sh * sh)
+            cos_s = math.sqrt(cos_s0 * cos_s0 + rho * rho * omg2)
+            delta = -math.asin(rho * omg2 / (g * cos_s0 + cos_s))
+            if abs(delta) < 1.0:
+                d2 = delta * delta
+                term = delta * d2 / 6.0
+                xms = term
+                for n in range(2, 12):
+                    term = -term * d2 / ((2 * n) * (2 * n + 1))
+                    xms += term
+            else:
+                xms = delta - math.sin(delta)
+            s2 = math.sinh(0.5 * t)
+            sd = math.sin(0.5 * delta)
+            B = 2.0 * xi * s2 * s2 * cos_s - 2.0 * xi * cos_s0 * sd * sd + R * xms
+            e = math.exp(-B)
+            acc += e
+            if e < 1e-19:
+                break
+            k += 1
+        out[i] = h * acc

@@ -41,6 +41,25 @@ try:  # the compiled kernel is optional: without numba the numpy path is used
 except ImportError:  # pragma: no cover
     _fast = None
 
+def _osc_amp(R: float, x: np.ndarray) -> np.ndarray:
+    """J(x) at table nodes: compiled kernel, numpy fallback (also if continuation fails)."""
+    if _fast is not None:
+        out = np.empty(x.shape, dtype=np.complex128)
+        for sub in (2, 8):
+            if _fast.osc_amplitude_kernel(R, np.ascontiguousarray(x, dtype=np.float64), 0.3, 6.3, sub, out):
+                return out
+    return osc_amplitude(R, x)
+
+
+def _decay_amp(R: float, x: np.ndarray) -> np.ndarray:
+    """M(x) at table nodes: compiled kernel, numpy fallback."""
+    if _fast is not None:
+        out = np.empty(x.shape, dtype=np.float64)
+        _fast.decay_amplitude_kernel(R, np.ascontiguousarray(x, dtype=np.float64), 1.0, out)
+        return out
+    return decay_amplitude(R, x)
+
+
 C_ZONE = 3.0
 X_LO_MIN = 3.5  # zone I is used when R - C R^{1/3} >= this
 X_SERIES = 2.0  # upper end of the power-series zone for small R
@@ -95,19 +114,23 @@ class KTable:
             breaks.append(R - d)
         breaks.append(0.0)
         breaks = sorted(breaks)
-        edges, cs = build_adaptive(lambda xx: osc_amplitude(R, xx), breaks, n=24)
+        edges, cs = build_adaptive(lambda xx: _osc_amp(R, xx), breaks, n=24)
         self.j_re = make_piecewise(edges, [c.real.copy() for c in cs])
         self.j_im = make_piecewise(edges, [c.imag.copy() for c in cs])
 
     def _build_zone3(self) -> None:
         R = self.R
-        # x_max: Psi(x_max) = PSI_MAX (Psi increasing for x > R)
+        # x_max: Psi(x_max) = PSI_MAX (Psi increasing for x > R); scalar bisection
+        def psi(x: float) -> float:
+            v = math.sqrt((x - R) * (x + R)) / R
+            return R * (v - math.atan(v))  # no cancellation issue at Psi ~ 700
+
         lo, hi = R, R + 2.0 * PSI_MAX + 10.0 * R ** (1.0 / 3.0) + 10.0
-        while psi_decay(R, np.array([hi]))[0] < PSI_MAX:
+        while psi(hi) < PSI_MAX:
             hi *= 2.0
-        for _ in range(200):
+        for _ in range(80):
             mid = 0.5 * (lo + hi)
-            if psi_decay(R, np.array([mid]))[0] < PSI_MAX:
+            if psi(mid) < PSI_MAX:
                 lo = mid
             else:
                 hi = mid
@@ -118,7 +141,7 @@ class KTable:
             d *= 2.0
             breaks.append(R + d)
         breaks.append(self.x_max)
-        edges, cs = build_adaptive(lambda xx: decay_amplitude(R, xx), breaks, n=24)
+        edges, cs = build_adaptive(lambda xx: _decay_amp(R, xx), breaks, n=24)
         self.m_cheb = make_piecewise(edges, cs)
 
     def _build_zone2(self) -> None:
