@@ -7,8 +7,18 @@ Public API
 ----------
 evaluate, FormEvaluator, Evaluation
     F(z) anywhere in the upper half plane, via pullback to the fastest-converging cusp.
+l2_norm, NormResult, compact_quadrature, kt2_tail, rankin_selberg_norm2
+    ||F||^2 by quadrature over a fundamental domain, with the Rankin--Selberg cross-check.
+scan_form, ScanSettings, ScanResult, RegionPeak, leading_profile_peak
+    Peaks of |f|/||f|| in each cusp region and on the compact part, with a grid bound.
 """
 
 from maasscomp.supnorm.evaluate import Evaluation, FormEvaluator, evaluate
+from maasscomp.supnorm.norm import NormResult, compact_quadrature, kt2_tail, l2_norm, rankin_selberg_norm2
+from maasscomp.supnorm.scan import RegionPeak, ScanResult, ScanSettings, leading_profile_peak, scan_form
 
-__all__ = ["evaluate", "FormEvaluator", "Evaluation"]
+__all__ = [
+    "evaluate", "FormEvaluator", "Evaluation",
+    "l2_norm", "NormResult", "compact_quadrature", "kt2_tail", "rankin_selberg_norm2",
+    "scan_form", "ScanSettings", "ScanResult", "RegionPeak", "leading_profile_peak",
+]

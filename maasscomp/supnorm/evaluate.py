@@ -47,22 +47,9 @@ def ktilde(R: float, x: ArrayLike) -> np.ndarray:
 
 
 def ktilde_and_derivative(R: float, t: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
-    """Kt_R(t) and d/dt Kt_R(t).
-
-    The derivative is a central difference with step 2e-5/omega(t), omega(t) =
-    sqrt(|R^2 - t^2|)/t + 1 the local rate of change of Kt (phase rate below the turning point,
-    DLMF 10.45.7 / formulas ref. §3.2; decay rate above it), so the truncation error is
-    (2e-5)^2/6 ~ 1e-10 relative and rounding costs about 1e-11; ample for gradients and for
-    the grid bounds of the scanner, which carry a safety factor.
-    """
+    """Kt_R(t) and d/dt Kt_R(t) (``special.ktilde`` and ``special.ktilde_dx``)."""
     t = np.asarray(t, dtype=float)
-    omega = np.sqrt(np.abs(R * R - t * t)) / t + 1.0
-    h = 2e-5 / omega
-    h = np.minimum(h, 0.5 * t)
-    k0 = ktilde(R, t)
-    kp = ktilde(R, t + h)
-    km = ktilde(R, t - h)
-    return k0, (kp - km) / (2.0 * h)
+    return ktilde(R, t), np.asarray(special.ktilde_dx(R, t), dtype=float)
 
 
 @dataclass(frozen=True)
@@ -157,28 +144,30 @@ class FormEvaluator:
         """Smallest M with sum_{n>M} envelope(n) A_n(y) <= tol for every y >= y_min.
 
         Beyond the turning point 2 pi n y > R each A_n(y) decreases in y (DLMF 10.40.2), so the
-        tail at y_min bounds the tail above it; M is never below the turning point index.
+        tail at a height below y_min bounds the tail at and above y_min; heights are rounded
+        down to a grid of 64 points per e-fold so that results can be cached. M is never below
+        the turning point index.
         """
         tol = self.tol if tol is None else float(tol)
-        if not (y_min > 0):
-            raise InputError(f"height y={y_min!r} is not allowed; it must be positive")
-        key = (round(math.log(y_min), 6), tol)
+        if not (y_min > 0 and math.isfinite(y_min)):
+            raise InputError(f"height y={y_min!r} is not allowed; it must be positive and finite")
+        q = math.floor(math.log(y_min) * 64.0)
+        key = (q, tol)
         if key in self._nterm_cache:
             return self._nterm_cache[key]
+        y_min = math.exp(q / 64.0)
         R = self.R
         n0 = max(1, int(math.ceil((R + 2.0 * max(R, 1.0) ** (1 / 3)) / (TWO_PI * y_min))))
         n_hi = n0 + 8
         while True:
-            n = np.arange(1, n_hi + 1)
-            env = self._table.envelope(n_hi) if n_hi <= self._table.M else self._envelope(n_hi)
+            env = self._table.envelope(n_hi)
             t = env * np.abs(self.amplitudes([y_min], n_hi)[0])
-            if t[-1] < 1e-3 * tol and n_hi >= n0 + 8:
+            if t[-1] < 1e-3 * tol:
                 break
             n_hi = int(1.5 * n_hi) + 8
             if n_hi > 10_000_000:
                 raise InputError(f"height y={y_min!r} is too small to evaluate the form at R={R}")
         tail = np.cumsum(t[::-1])[::-1]  # tail[k] = sum_{n>=k+1} t_n
-        # smallest M with sum_{n > M} t_n <= tol, i.e. tail[M] <= tol
         ok = np.nonzero(tail <= tol)[0]
         M = int(ok[0]) if ok.size else n_hi
         M = max(M, min(n0, n_hi))
@@ -278,20 +267,21 @@ class FormEvaluator:
 
     # ------------------------------------------------------------------ horocycles
 
-    def horocycle(self, cusp: int, y: float, L: int, n_terms: int | None = None
-                  ) -> tuple[np.ndarray, np.ndarray]:
+    def horocycle(self, cusp: int, y: float, L: int, n_terms: int | None = None,
+                  amplitudes: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
         """F on the horocycle Im w = y of a cusp at x_k = -1/2 + k/L, k = 0..L-1, by one FFT.
 
         F(x + i y) = Re sum_n d_n A_n(y) e^{2 pi i n x} with d_n = conj(c_n) (even) or -i c_n
         (odd), so the L samples are the real part of an inverse DFT of the padded vector; the
         shift to x_0 = -1/2 multiplies d_n by (-1)^n. Needs L > n_terms (no aliasing).
-        Returns (x_k, values).
+        ``amplitudes`` may pass precomputed A_n(y), n = 1..n_terms. Returns (x_k, values).
         """
         nt = self.terms_needed(y) if n_terms is None else int(n_terms)
         if L <= nt:
             raise InputError(f"horocycle length L={L} must exceed the number of terms {nt}")
         tab = self.ensure_terms(nt)
-        d = tab.exp_coeffs(cusp, nt) * self.amplitudes([y], nt)[0]
+        A = self.amplitudes([y], nt)[0] if amplitudes is None else np.asarray(amplitudes)[:nt]
+        d = tab.exp_coeffs(cusp, nt) * A
         d = d * np.where(np.arange(1, nt + 1) % 2 == 1, -1.0, 1.0)
         buf = np.zeros(L, dtype=complex)
         buf[1:nt + 1] = d
