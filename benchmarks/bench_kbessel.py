@@ -71,6 +71,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--R", type=float, nargs="*", default=[10.0, 100.0, 1000.0, 10000.0])
     args = ap.parse_args(argv)
     rng = np.random.default_rng(1)
+    ktilde(7.25, np.linspace(0.1, 20.0, 50))  # load/compile the numba kernels outside the timings
     print(f"{'R':>8} {'build [s]':>10} {'ktilde [1/s]':>13} {'(wall)':>10} {'numpy path':>11} "
           f"{'mpmath [1/s]':>13} {'ratio':>10} {'goal met':>9}")
     for R in args.R:
