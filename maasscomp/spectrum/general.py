@@ -232,20 +232,33 @@ def _hecke_matrix(B: np.ndarray, p: int) -> tuple[np.ndarray, float]:
     return H, float(res)
 
 
+def _usable_primes(B: np.ndarray, level: int) -> list[int]:
+    """Small primes p not dividing N for which the rows n <= K/p of B determine the span
+    (full column rank), so that T_p can be fitted on them."""
+    K, m = B.shape
+    out = []
+    for p in _small_primes(level, 4):
+        L = K // p
+        if L < m + 2:
+            continue
+        sv = np.linalg.svd(B[:L], compute_uv=False)
+        if sv[-1] > 1e-8 * sv[0]:
+            out.append(p)
+    return out
+
+
 def _hecke_clusters(B: np.ndarray, level: int) -> list[_Cluster]:
     """Split span(B) into joint eigenspaces of T_p, p not dividing N (small p).
 
     B has shape (K, m): coefficients at infinity of m independent forms. A fixed generic
     combination of the T_p is diagonalised; eigenvalues within _CLUSTER_TOL form one
-    cluster.
+    cluster. Only primes whose fit rows n <= K/p determine the span are used (an oldform
+    g(dz) vanishes at n < d).
     """
     K, m = B.shape
-    primes = [p for p in _small_primes(level, 4) if K // p >= m + 2]
+    primes = _usable_primes(B, level)
     if not primes or m == 1:
-        lam = {}
-        for p in primes:
-            H, _ = _hecke_matrix(B, p)
-            lam[p] = float(H[0, 0])
+        lam = {p: float(_hecke_matrix(B, p)[0][0, 0]) for p in primes} if m == 1 else {}
         return [_Cluster(np.eye(m), lam)]
     Hs = {p: _hecke_matrix(B, p)[0] for p in primes}
     # generic combination (fixed irrational-looking weights keep the run deterministic)
@@ -269,10 +282,9 @@ def _hecke_clusters(B: np.ndarray, level: int) -> list[_Cluster]:
             # an orthonormal basis of the cluster span (eigenvectors of a nearly scalar
             # block are arbitrary, their span is not)
             W = np.linalg.qr(W)[0]
+        Bw = B @ W
         lam = {}
         for p in primes:
-            Bw = B @ W
-            # Rayleigh-type least squares: T_p (B W) = (B W) lam on the fit rows
             H, _ = _hecke_matrix(Bw, p)
             lam[p] = float(np.trace(H) / H.shape[0])
         out.append(_Cluster(W, lam))
