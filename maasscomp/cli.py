@@ -211,6 +211,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 2
     except SystemExit as exc:  # --help and --version
         return int(exc.code or 0) if not isinstance(exc.code, str) else 2
+    except BrokenPipeError:  # output piped into head & co.
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 1
     except KeyboardInterrupt:
         print("maasscomp: interrupted; finished tasks are stored, rerun to resume", file=sys.stderr)
         return 130

@@ -6,9 +6,10 @@ Order of work (nothing is written before step 3):
 2. if the store exists, open it read-only and refuse it when a run recorded in it used
    result-affecting settings different from this config (:func:`check_compatible`);
 3. start the executor, open the store for writing, record the run, open the log file;
-4. skip the tasks the run already finished, submit the rest, and commit each finished
-   task's forms together with its done mark in ONE store transaction, in the main
-   process, as results arrive.
+4. skip the tasks the run already finished, submit the rest (grouped by level and R
+   chunk, :class:`maasscomp.pipeline.tasks.TaskGroup`), and commit each finished
+   task's forms together with its done mark in ONE store transaction (one per group),
+   in the main process, as results arrive.
 
 A kill at any moment therefore loses only the tasks in flight; rerunning the same
 config redoes exactly those.
@@ -29,7 +30,7 @@ from maasscomp import __version__
 from maasscomp.config import Config, fingerprint, fingerprint_changes
 from maasscomp.errors import InputError, StoreError
 from maasscomp.pipeline.executors import make_executor
-from maasscomp.pipeline.tasks import Plan, TaskOutcome, build_plan, execute
+from maasscomp.pipeline.tasks import Plan, TaskOutcome, build_plan, execute_group, group_tasks
 
 RUN_RECORD_FORMAT = "maasscomp-job"
 
@@ -256,9 +257,9 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
                    smoothing=0.1)
         new_counts: Counter = Counter()
         try:
-            for outcome in ex.as_completed(execute, todo):
-                _commit(st, outcome, cfg, run_id, summary, new_counts)
-                bar.update(1)
+            for outcomes in ex.as_completed(execute_group, group_tasks(todo)):
+                _commit(st, outcomes, cfg, run_id, summary, new_counts)
+                bar.update(len(outcomes))
                 bar.set_postfix(forms=summary.forms_new, failed=len(summary.failures), refresh=False)
         except (KeyboardInterrupt, InputError, StoreError):
             raise
@@ -284,31 +285,40 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
             logf.close()
 
 
-def _commit(st, outcome: TaskOutcome, cfg: Config, run_id: str, summary: JobSummary,
+def _commit(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str, summary: JobSummary,
             new_counts: Counter) -> None:
-    summary.tasks_run += 1
-    summary.task_seconds += outcome.seconds
-    if not outcome.ok:
-        summary.failures.append((outcome.task_id, outcome.error))
-        log.error("task %s failed after %.1f s on %s: %s\n%s", outcome.task_id, outcome.seconds,
-                  outcome.worker, outcome.error, outcome.detail)
-        return
-    out = outcome.output
+    """Store the forms of every finished task of a group with its done mark, in ONE
+    transaction (a failed task gets no mark and is retried by the next run)."""
     t = time.perf_counter()
-    with st.transaction():
-        before = len(st)
-        keys = st.add_forms(out.forms, on_duplicate="skip", config_text=cfg.source_text, run_id=run_id)
-        st.mark_task_done(outcome.task_id, keys, run_id=run_id)
-        added = len(st) - before
+    good = [o for o in outcomes if o.ok]
+    added: dict[str, int] = {}
+    if good:
+        with st.transaction():
+            for o in good:
+                before = len(st)
+                keys = st.add_forms(o.output.forms, on_duplicate="skip",
+                                    config_text=cfg.source_text, run_id=run_id)
+                st.mark_task_done(o.task_id, keys, run_id=run_id)
+                added[o.task_id] = len(st) - before
     summary.commit_seconds += time.perf_counter() - t
-    summary.forms_new += added
-    summary.rejected += len(out.rejected)
-    if out.forms:
-        new_counts[(out.forms[0].level, out.forms[0].symmetry.label)] += added
-    log.info("task %s: %d forms (%d new), %d rejected candidates, %.2f s on %s",
-             outcome.task_id, len(out.forms), added, len(out.rejected), outcome.seconds, outcome.worker)
-    for R, reason in out.rejected:
-        log.debug("  rejected candidate R=%.12f: %s", R, reason)
+    for o in outcomes:
+        summary.tasks_run += 1
+        summary.task_seconds += o.seconds
+        if not o.ok:
+            summary.failures.append((o.task_id, o.error))
+            log.error("task %s failed after %.1f s on %s: %s\n%s", o.task_id, o.seconds,
+                      o.worker, o.error, o.detail)
+            continue
+        out = o.output
+        n_new = added[o.task_id]
+        summary.forms_new += n_new
+        summary.rejected += len(out.rejected)
+        if out.forms:
+            new_counts[(out.forms[0].level, out.forms[0].symmetry.label)] += n_new
+        log.info("task %s: %d forms (%d new), %d rejected candidates, %.2f s on %s",
+                 o.task_id, len(out.forms), n_new, len(out.rejected), o.seconds, o.worker)
+        for R, reason in out.rejected:
+            log.debug("  rejected candidate R=%.12f: %s", R, reason)
 
 
 def _count_forms(st, cfg: Config, plan: Plan) -> dict[tuple[int, str], int]:

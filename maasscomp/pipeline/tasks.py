@@ -174,6 +174,38 @@ def execute(task) -> TaskOutcome:
     return TaskOutcome(task.task_id, True, out, "", "", time.perf_counter() - t0, where)
 
 
+@dataclass(frozen=True)
+class TaskGroup:
+    """Tasks run one after the other by one worker: the classes of one level and R chunk.
+
+    The classes of a level are searched on the same R grid, and the K-Bessel tables of
+    :mod:`maasscomp.special` are cached per R in each process, so a worker that searches
+    all classes of a chunk builds each table once (several times less work at levels
+    with many classes than spreading the classes over workers). Every task keeps its
+    own id, result and done mark.
+    """
+
+    tasks: tuple
+
+    @property
+    def group_id(self) -> str:
+        return self.tasks[0].task_id if len(self.tasks) == 1 else \
+            f"{self.tasks[0].task_id} (+{len(self.tasks) - 1} classes)"
+
+
+def group_tasks(tasks) -> list[TaskGroup]:
+    """Group tasks by level and chunk, keeping the order of first appearance."""
+    groups: dict[tuple, list] = {}
+    for t in tasks:
+        groups.setdefault((t.level, t.chunk), []).append(t)
+    return [TaskGroup(tuple(g)) for g in groups.values()]
+
+
+def execute_group(group: TaskGroup) -> list[TaskOutcome]:
+    """Run the tasks of a group in this process (see :class:`TaskGroup`)."""
+    return [execute(t) for t in group.tasks]
+
+
 def parse_task_id(task_id: str) -> dict[str, Any] | None:
     """Level, class label and chunk [lo, hi] of a search task id (None for other ids)."""
     m = _ID_RE.match(task_id)
@@ -244,11 +276,12 @@ class Plan:
     memory_gb: dict[int, float] = field(default_factory=dict)
 
     def describe(self) -> str:
-        lines = [f"{len(self.tasks)} search tasks over {len(self.classes)} levels"]
+        nl = len(self.classes)
+        lines = [f"{len(self.tasks)} search tasks over {nl} level{'s' if nl != 1 else ''}"]
         for N, labels in self.classes.items():
             n = sum(t.level == N for t in self.tasks)
             lines.append(f"  level {N:>4}: {len(labels)} classes ({', '.join(labels)}), {n} tasks, "
-                         f"about {self.memory_gb[N]:.2f} GB per task")
+                         f"about {1024 * self.memory_gb[N]:.0f} MB per task")
         return "\n".join(lines)
 
 
