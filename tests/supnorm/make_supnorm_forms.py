@@ -1,0 +1,76 @@
+"""Precompute the small store of Maass forms used by the supnorm tests.
+
+Runs the project's own eigenvalue search (``maasscomp.spectrum.search.search_window``) and
+writes every confirmed form to ``tests/supnorm/data/supnorm_forms.h5``:
+
+* level 1, all symmetry classes, 0.5 <= R <= 20, 400 coefficients (enough primes for
+  L(1, sym^2 f) by the approximate functional equation at R < 20);
+* levels 2, 5, 6, 11, all Atkin--Lehner/parity classes, 0.5 <= R <= 10, 200 coefficients
+  (enough for the expansions at the lowest pulled-back heights, e.g. Y0 ~ 0.09 for N = 11);
+* the first form of one class at levels 2, 5 and 11 again with 900 coefficients (enough for
+  L(1, sym^2 f) of conductor N^2), stored under basis_index 0 of a separate file
+  ``supnorm_forms_rs.h5`` so that keys do not clash.
+
+Run from the repository root: ``python tests/supnorm/make_supnorm_forms.py`` (about 10
+minutes on 2 cores) and ``python tests/supnorm/make_supnorm_forms.py rs`` (under a minute).
+The tests skip with a message when a file is missing.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from pathlib import Path
+
+from joblib import Parallel, delayed
+
+from maasscomp.groups import gamma0
+from maasscomp.spectrum.search import SearchSettings, search_window, symmetry_classes
+from maasscomp.store import Store
+
+OUT = Path(__file__).resolve().parent / "data" / "supnorm_forms.h5"
+OUT_RS = Path(__file__).resolve().parent / "data" / "supnorm_forms_rs.h5"
+PLAN = [(1, 20.0, 400), (2, 10.0, 200), (5, 10.0, 200), (6, 10.0, 200), (11, 10.0, 200)]
+# (level, parity, Atkin-Lehner signs, R window): windows around the first newform of the class
+PLAN_RS = [(2, "odd", ((2, -1),), 5.3, 5.5), (5, "odd", ((5, -1),), 3.0, 3.1), (11, "odd", ((11, -1),), 2.0, 2.1)]
+
+
+def _task(N: int, sym, R_max: float, n_coeffs: int):
+    t = time.perf_counter()
+    res = search_window(gamma0(N), sym, 0.5, R_max, SearchSettings(n_coeffs=n_coeffs))
+    return N, sym.label, list(res.forms), time.perf_counter() - t
+
+
+def _task_rs(N: int, parity: str, signs, lo: float, hi: float):
+    from maasscomp.hejhal.types import SymmetryClass
+
+    res = search_window(gamma0(N), SymmetryClass(parity, signs), lo, hi, SearchSettings(n_coeffs=900))
+    return list(res.forms)
+
+
+def main() -> int:
+    if sys.argv[1:] == ["rs"]:
+        out = Parallel(n_jobs=2)(delayed(_task_rs)(*t) for t in PLAN_RS)
+        forms = [f for fs in out for f in fs]
+        with Store.open(OUT_RS, "w") as st:
+            st.add_forms(forms, config_text="tests/supnorm/make_supnorm_forms.py rs")
+        print(f"wrote {len(forms)} forms to {OUT_RS}")
+        return 0
+    levels = {int(a) for a in sys.argv[1:]} or {N for N, *_ in PLAN}
+    tasks = [(N, s, R_max, nc) for N, R_max, nc in PLAN if N in levels
+             for s in symmetry_classes(gamma0(N), ("even", "odd"))]
+    out = Parallel(n_jobs=2)(delayed(_task)(*t) for t in tasks)
+    forms = []
+    for N, label, fs, dt in out:
+        print(f"level {N:>2} {label:<14} {len(fs):>3} forms  {dt:7.1f} s")
+        forms.extend(fs)
+    forms.sort(key=lambda f: (f.level, f.R))
+    OUT.parent.mkdir(parents=True, exist_ok=True)
+    with Store.open(OUT, "w") as st:
+        st.add_forms(forms, on_duplicate="error", config_text="tests/supnorm/make_supnorm_forms.py")
+    print(f"wrote {len(forms)} forms to {OUT}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
