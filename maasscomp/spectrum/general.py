@@ -265,8 +265,7 @@ def _hecke_clusters(B: np.ndarray, level: int) -> list[_Cluster]:
     w = [1.0, 0.7548776662, 0.5698402910, 0.4301597090]
     Hc = sum(wi * Hs[p] for wi, p in zip(w, primes))
     ev, V = np.linalg.eig(Hc)
-    ev = ev.real
-    V = V.real
+    ev = ev.real  # Hecke operators are self-adjoint: a tiny imaginary part is rounding
     order = np.argsort(ev)
     ev, V = ev[order], V[:, order]
     groups: list[list[int]] = [[0]]
@@ -277,11 +276,11 @@ def _hecke_clusters(B: np.ndarray, level: int) -> list[_Cluster]:
             groups.append([i])
     out = []
     for g in groups:
-        W = V[:, g]
-        if len(g) > 1:
-            # an orthonormal basis of the cluster span (eigenvectors of a nearly scalar
-            # block are arbitrary, their span is not)
-            W = np.linalg.qr(W)[0]
+        # a real orthonormal basis of the cluster's invariant subspace: a (nearly) repeated
+        # eigenvalue may come back as a complex-conjugate pair, whose real and imaginary
+        # parts together span the real subspace (the individual eigenvectors are arbitrary)
+        Z = np.hstack([V[:, g].real, V[:, g].imag])
+        W = np.linalg.svd(Z, full_matrices=False)[0][:, : len(g)]
         Bw = B @ W
         lam = {}
         for p in primes:

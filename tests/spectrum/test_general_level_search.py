@@ -167,3 +167,26 @@ def test_bad_input():
         search_window_general(G, "odd", 1.0, float("nan"))
     with pytest.raises(InputError, match="mult_tol"):
         search_window_general(G, "odd", 1.0, 2.0, mult_tol=0.1)
+
+
+def test_level25_multiplicity_two_newform_pair_related_by_the_twist_mod_5():
+    """A twist pair inside one parity class: chi_5(p) = (p/5) is even (chi_5(-1) = +1), so for a
+    newform f of level 25 the twist f (x) chi_5 has level 25, the same R and the same parity,
+    with Hecke eigenvalues chi_5(p) lambda_f(p) (from memory of the theory). The window
+    [1.95, 2.15] was found by our own scan of level 25 (no published value is used)."""
+    res = search_window_general(gamma0(25), "odd", 1.95, 2.15)
+    distinct = _distinct(res.forms)
+    assert len(distinct) == 1
+    pair = [f for f in res.forms if f.R == distinct[0].R]
+    assert len(pair) == 2 and all(f.multiplicity == 2 for f in pair)
+    assert all(f.is_new is True and f.extra["hecke_eigenform"] for f in pair)
+    c1, c2 = (f.coeffs[0, :30].real for f in pair)
+    for f in pair:
+        # Hecke relations c(mn) = c(m)c(n), c(p^2) = c(p)^2 - 1 (p not dividing 25), common practice
+        assert hecke_residual(f.coeffs[0].real, 25, 30) <= 1e-8
+        assert abs(f.coeffs[0, 4].real) <= 1e-9  # c(5) = 0 for a newform with 25 | N (common practice)
+    legendre5 = {0: 0, 1: 1, 4: 1, 2: -1, 3: -1}
+    for n in range(1, 31):
+        assert abs(c2[n - 1] - legendre5[n % 5] * c1[n - 1]) <= 1e-8, n
+    assert np.max(np.abs(c1 - c2)) > 0.5  # two different forms
+    assert _third_height_nullity(pair[0]) == 2
