@@ -77,6 +77,17 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
     ("search", "chunk_width", "float", 1.0,
      "Width in R of one search task. Chunk edges sit at multiples of this width, so "
      "changing a window keeps the finished chunks it shares with the old one."),
+    ("scan", "enabled", "bool", False,
+     "After the search, scan every form of the config for the maximum of |f|/||f|| in each "
+     "cusp region and on the compact part (one task per form; results stored beside the "
+     "form)."),
+    ("scan", "Y_c", "float", 1.0,
+     "Height (in each cusp's coordinate) above which a point belongs to the cusp region; "
+     ">= 1."),
+    ("scan", "rtol", "float", 1e-3,
+     "Relative accuracy the scan grid guarantees for each region's maximum, in [1e-9, 0.5]."),
+    ("scan", "samples_per_wavelength", "float", 6.0,
+     "Initial density of the scan grid, in [2, 100]."),
     ("executor", "backend", "string", "joblib",
      "Where tasks run: 'serial' (this process), 'joblib' (worker processes on this "
      "machine) or 'dask' (a Dask cluster: a local one, or the scheduler at 'address')."),
@@ -92,6 +103,8 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
 
 # keys of the executor section and job paths do not change results (see module docstring)
 _RESULT_KEYS = {("search", "eps"), ("search", "n_coeffs"), ("search", "step")}
+# compared only when both runs scanned (enabling scans later adds results, changes none)
+_SCAN_RESULT_KEYS = {("scan", "Y_c"), ("scan", "rtol"), ("scan", "samples_per_wavelength")}
 
 _SECTIONS = list(dict.fromkeys(s for s, *_ in KEYS))
 
@@ -127,6 +140,14 @@ class SearchConfig:
 
 
 @dataclass(frozen=True)
+class ScanConfig:
+    enabled: bool = False
+    Y_c: float = 1.0
+    rtol: float = 1e-3
+    samples_per_wavelength: float = 6.0
+
+
+@dataclass(frozen=True)
 class ExecutorConfig:
     backend: str = "joblib"
     workers: int = 1
@@ -141,6 +162,7 @@ class Config:
 
     job: JobConfig
     search: SearchConfig
+    scan: ScanConfig
     executor: ExecutorConfig
     source_text: str = ""
     source_path: Path | None = None
@@ -150,6 +172,7 @@ class Config:
         d = {
             "job": {"name": self.job.name, "output": str(self.job.output), "log": str(self.job.log)},
             "search": asdict(self.search),
+            "scan": asdict(self.scan),
             "executor": asdict(self.executor),
         }
         d["search"]["levels"] = list(self.search.levels)
@@ -176,9 +199,15 @@ class Config:
 
 
 def fingerprint_settings(normalised: dict[str, Any]) -> dict[str, Any]:
-    """The result-affecting part of a normalised config, as ``{"section.key": value}``."""
+    """The result-affecting part of a normalised config, as ``{"section.key": value}``.
+
+    Scan settings are included only when the config scans.
+    """
+    keys = set(_RESULT_KEYS)
+    if normalised.get("scan", {}).get("enabled"):
+        keys |= _SCAN_RESULT_KEYS
     out = {}
-    for sec, key in sorted(_RESULT_KEYS):
+    for sec, key in sorted(keys):
         out[f"{sec}.{key}"] = normalised.get(sec, {}).get(key)
     return out
 
@@ -190,13 +219,15 @@ def fingerprint(normalised: dict[str, Any]) -> str:
 
 
 def fingerprint_changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
-    """Human-readable list of result-affecting differences between two normalised configs."""
+    """Human-readable list of result-affecting differences between two normalised configs
+    (settings present in only one of them, like scan settings of a run without scans,
+    are not differences)."""
     a, b = fingerprint_settings(old), fingerprint_settings(new)
     out = []
-    for k in sorted(set(a) | set(b)):
-        if a.get(k) != b.get(k):
+    for k in sorted(set(a) & set(b)):
+        if a[k] != b[k]:
             sec, key = k.split(".", 1)
-            out.append(f"[{sec}] {key}: {a.get(k)!r} -> {b.get(k)!r}")
+            out.append(f"[{sec}] {key}: {a[k]!r} -> {b[k]!r}")
     return out
 
 
@@ -433,6 +464,22 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     if not _is_real(chunk) or not math.isfinite(chunk) or chunk < 0.01:
         problems.append(f"[search] chunk_width={chunk!r} is not allowed; it must be a number >= 0.01")
 
+    # [scan]
+    scn = body["scan"]
+    enabled = scn.get("enabled", False)
+    if not isinstance(enabled, bool):
+        problems.append(f"[scan] enabled={enabled!r} must be true or false")
+    Y_c = scn.get("Y_c", 1.0)
+    if not _is_real(Y_c) or not math.isfinite(Y_c) or Y_c < 1.0:
+        problems.append(f"[scan] Y_c={Y_c!r} is not allowed; it must be a finite number >= 1")
+    rtol = scn.get("rtol", 1e-3)
+    if not _is_real(rtol) or not (1e-9 <= rtol <= 0.5):
+        problems.append(f"[scan] rtol={rtol!r} is not allowed; it must be a number in [1e-9, 0.5]")
+    spw = scn.get("samples_per_wavelength", 6.0)
+    if not _is_real(spw) or not (2.0 <= spw <= 100.0):
+        problems.append(f"[scan] samples_per_wavelength={spw!r} is not allowed; it must be a "
+                        "number in [2, 100]")
+
     # [executor]
     backend = exe.get("backend", "joblib")
     if backend not in BACKENDS:
@@ -485,6 +532,8 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
             step=None if step is None else float(step),
             chunk_width=float(chunk),
         ),
+        scan=ScanConfig(enabled=bool(enabled), Y_c=float(Y_c), rtol=float(rtol),
+                        samples_per_wavelength=float(spw)),
         executor=ExecutorConfig(backend=backend, workers=int(workers),
                                 address=address, memory_limit_gb=float(mem),
                                 memory_explicit=mem_explicit),
@@ -552,8 +601,10 @@ def keys_markdown() -> str:
         "Rerunning a config resumes it: finished tasks are skipped. These keys change the",
         "numbers stored for a form, so a store refuses a run whose values differ from the",
         "ones it was written with: "
-        + ", ".join(f"`[{s}] {k}`" for s, k in sorted(_RESULT_KEYS)) + ".",
-        "Everything else (levels, windows, classes, chunk width, executor, paths) may change;",
+        + ", ".join(f"`[{s}] {k}`" for s, k in sorted(_RESULT_KEYS)) + "; and, when both runs "
+        "scan, " + ", ".join(f"`[{s}] {k}`" for s, k in sorted(_SCAN_RESULT_KEYS)) + ".",
+        "Everything else (levels, windows, classes, chunk width, executor, paths, turning",
+        "scans on) may change;",
         "new tasks are computed and forms already stored are not duplicated.",
         "",
     ]

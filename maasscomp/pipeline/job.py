@@ -54,6 +54,11 @@ class JobSummary:
     forms_per_class: dict[tuple[int, str], int] = field(default_factory=dict)
     new_per_class: dict[tuple[int, str], int] = field(default_factory=dict)
     rejected: int = 0
+    scans_total: int = 0
+    scans_skipped: int = 0
+    scans_run: int = 0
+    scan_regions: dict[str, int] = field(default_factory=dict)
+    stage_seconds: dict[str, float] = field(default_factory=dict)
     seconds: float = 0.0
     task_seconds: float = 0.0
     commit_seconds: float = 0.0
@@ -76,6 +81,13 @@ class JobSummary:
         ]
         for (N, lab), n in sorted(self.forms_per_class.items()):
             lines.append(f"  {N:>5}  {lab:<14} {n:>6} {self.new_per_class.get((N, lab), 0):>5}")
+        if self.scans_total:
+            where = ", ".join(f"{n} {'in a cusp' if r == 'cusp' else 'on the compact part'}"
+                              for r, n in sorted(self.scan_regions.items()))
+            lines.append(f"sup-norm scans: {self.scans_run} run, {self.scans_skipped} already done"
+                         + (f"; global maximum {where}" if where else ""))
+        if self.stage_seconds:
+            lines.append("time per stage: " + ", ".join(f"{k} {v:.1f} s" for k, v in self.stage_seconds.items()))
         if self.failures:
             lines.append("failed tasks (rerun the same config to retry them):")
             for tid, err in self.failures:
@@ -252,10 +264,11 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
         echo(f"{cfg.job.name}: {len(plan.tasks)} tasks ({summary.tasks_skipped} already done), "
              f"{ex.name} executor with {ex.workers} worker(s) -> {cfg.job.output}")
 
+        new_counts: Counter = Counter()
+        ts = time.perf_counter()
         bar = tqdm(total=len(plan.tasks), initial=summary.tasks_skipped, desc="search",
                    unit="task", disable=not show_progress, file=sys.stderr, dynamic_ncols=True,
                    smoothing=0.1)
-        new_counts: Counter = Counter()
         try:
             for outcomes in ex.as_completed(execute_group, group_tasks(todo)):
                 _commit(st, outcomes, cfg, run_id, summary, new_counts)
@@ -268,6 +281,12 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
             log.error("executor failure, stopping: %s", summary.aborted)
         finally:
             bar.close()
+        summary.stage_seconds["search"] = time.perf_counter() - ts
+
+        if plan.scan and not summary.aborted:
+            ts = time.perf_counter()
+            _scan_stage(st, ex, cfg, plan, run_id, summary, show_progress)
+            summary.stage_seconds["scan"] = time.perf_counter() - ts
         summary.new_per_class = dict(new_counts)
         summary.forms_per_class = _count_forms(st, cfg, plan)
         summary.seconds = time.perf_counter() - t0
@@ -319,6 +338,63 @@ def _commit(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str, summary: 
                  o.task_id, len(out.forms), n_new, len(out.rejected), o.seconds, o.worker)
         for R, reason in out.rejected:
             log.debug("  rejected candidate R=%.12f: %s", R, reason)
+
+
+def _plan_keys(st, cfg: Config, plan: Plan) -> list[str]:
+    """Keys of the stored forms inside the plan's levels, classes and windows."""
+    keys = []
+    for N, labels in plan.classes.items():
+        for lab in labels:
+            for a, b in cfg.search.windows:
+                keys += st.select(level=N, symmetry=lab, R_min=a, R_max=b)
+    return keys
+
+
+def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummary,
+                show_progress: bool) -> None:
+    """Scan every form of the plan that has no scan yet; commit each scan with its mark."""
+    from tqdm import tqdm
+
+    from maasscomp.pipeline.tasks import ScanTask, execute, scanner
+
+    _, attachment = scanner()
+    keys = _plan_keys(st, cfg, plan)
+    todo = [k for k in keys if attachment not in st.attachments(k)]
+    summary.scans_total = len(keys)
+    summary.scans_skipped = len(keys) - len(todo)
+    sc = cfg.scan
+    tasks = [ScanTask(k, st.get(k), sc.Y_c, sc.rtol, sc.samples_per_wavelength) for k in todo]
+    log.info("scan stage: %d forms, %d already scanned", len(keys), summary.scans_skipped)
+    bar = tqdm(total=len(keys), initial=summary.scans_skipped, desc="scan", unit="form",
+               disable=not show_progress, file=sys.stderr, dynamic_ncols=True, smoothing=0.1)
+    regions: Counter = Counter()
+    try:
+        for o in ex.as_completed(execute, tasks):
+            summary.scans_run += 1
+            summary.task_seconds += o.seconds
+            if not o.ok:
+                summary.failures.append((o.task_id, o.error))
+                log.error("task %s failed after %.1f s on %s: %s\n%s", o.task_id, o.seconds,
+                          o.worker, o.error, o.detail)
+            else:
+                out = o.output
+                t = time.perf_counter()
+                with st.transaction():
+                    st.put_attachment(out.form_key, attachment, out.data)
+                    st.mark_task_done(o.task_id, [out.form_key], run_id=run_id)
+                summary.commit_seconds += time.perf_counter() - t
+                regions[out.region.split()[0]] += 1
+                log.info("task %s: global maximum %.6g in %s (cusp/compact %.4f), %.2f s on %s",
+                         o.task_id, out.value, out.region, out.ratio, o.seconds, o.worker)
+            bar.update(1)
+    except (KeyboardInterrupt, InputError, StoreError):
+        raise
+    except Exception as exc:
+        summary.aborted = f"{type(exc).__name__}: {exc}"
+        log.error("executor failure in the scan stage, stopping: %s", summary.aborted)
+    finally:
+        bar.close()
+    summary.scan_regions = dict(regions)
 
 
 def _count_forms(st, cfg: Config, plan: Plan) -> dict[tuple[int, str], int]:

@@ -12,8 +12,9 @@ Contents (file names fixed, so scripts can rely on them):
     For every level whose searched R range covers all symmetry classes: forms found
     against Weyl's law (:func:`maasscomp.spectrum.weyl.completeness`) window by window,
     and a figure of N(T) and W(T) with the remainder N(T) - W(T).
-``peaks/``
-    Peak statistics of the sup-norm scans, when the store holds scans.
+``peaks.csv``, ``peaks_vs_lambda.png``, ``peak_ratio.png``
+    Peak statistics of the sup-norm scans (cusp and compact peaks against lambda, their
+    ratio), when the store holds scans.
 """
 
 from __future__ import annotations
@@ -195,21 +196,119 @@ def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[
     return rows, text
 
 
-def _peaks_section(store_path: Path, folder: Path, rep: Report) -> list[str]:
-    """Peak statistics of the sup-norm scans (when the scanner is available and scans exist)."""
-    try:
-        from maasscomp.supnorm import report_peaks  # type: ignore[attr-defined]
-    except ImportError:
-        return ["No sup-norm scan statistics: this version has no peak scanner report."]
-    peaks = folder / "peaks"
-    try:
-        files = report_peaks(store_path, peaks)
-    except MaasscompError as exc:
-        return [f"No sup-norm scan statistics: {exc}"]
-    if not files:
-        return ["No sup-norm scan statistics: the store holds no scans."]
-    rep.files += [f"peaks/{Path(f).name}" for f in files]
-    return [f"- [{Path(f).name}](peaks/{Path(f).name})" for f in files]
+PEAK_COLUMNS = ("key", "level", "class", "R", "eigenvalue", "cusp_peak", "cusp", "compact_peak",
+                "global_region", "ratio_cusp_compact", "exponent_cusp", "exponent_compact",
+                "grid_bound_rel")
+
+
+def peak_rows(st) -> list[dict[str, Any]]:
+    """One row per scanned form, from the scan attachments of the store."""
+    from maasscomp.pipeline.tasks import scanner
+
+    sc = scanner()
+    if sc is None:
+        return []
+    attachment = sc[1]
+    rows = []
+    for k in st.keys():
+        if attachment not in st.attachments(k):
+            continue
+        d = st.get_attachment(k, attachment)
+        cusps = d["cusp_peaks"]
+        best = max(cusps.values(), key=lambda p: p["value"])
+        rows.append({
+            "key": k, "level": int(d["level"]), "class": str(d["symmetry"]), "R": float(d["R"]),
+            "eigenvalue": float(d["eigenvalue"]), "cusp_peak": float(best["value"]),
+            "cusp": int(best["cusp"]), "compact_peak": float(d["compact_peak"]["value"]),
+            "global_region": str(d["global_region"]),
+            "ratio_cusp_compact": float(d["ratio_cusp_compact"]),
+            "exponent_cusp": float(d["exponent_cusp"]), "exponent_compact": float(d["exponent_compact"]),
+            "grid_bound_rel": float(d["grid_bound_rel"]),
+        })
+    return rows
+
+
+def _peak_figures(rows: list[dict], folder: Path) -> list[str]:
+    from matplotlib.figure import Figure
+
+    lam = np.array([r["eigenvalue"] for r in rows])
+    cusp = np.array([r["cusp_peak"] for r in rows])
+    comp = np.array([r["compact_peak"] for r in rows])
+    R = np.array([r["R"] for r in rows])
+    levels = sorted({r["level"] for r in rows})
+    names = []
+
+    fig = Figure(figsize=(7.5, 4.8), layout="constrained")
+    ax = fig.subplots()
+    for i, N in enumerate(levels):
+        m = np.array([r["level"] == N for r in rows])
+        ax.loglog(lam[m], cusp[m], "^", color=f"C{i % 10}", label=f"N={N} cusp peak")
+        ax.loglog(lam[m], comp[m], "o", mfc="none", color=f"C{i % 10}", label=f"N={N} compact peak")
+    lo, hi = lam.min(), lam.max()
+    if hi > lo:
+        g = np.geomspace(lo, hi, 50)
+        c0 = np.median(cusp / lam ** (1 / 12))
+        ax.loglog(g, c0 * g ** (1 / 12), "k--", lw=0.8, label="slope 1/12 (cusp transition growth)")
+    ax.set_xlabel("eigenvalue lambda = 1/4 + R^2")
+    ax.set_ylabel("max |f| / ||f||")
+    ax.set_title("Peaks of the L2-normalised forms: cusp regions and compact part")
+    ax.legend(fontsize=7, ncol=2)
+    fig.savefig(folder / "peaks_vs_lambda.png", dpi=110)
+    names.append("peaks_vs_lambda.png")
+
+    fig = Figure(figsize=(7.5, 4.0), layout="constrained")
+    ax = fig.subplots()
+    ratio = cusp / comp
+    for i, N in enumerate(levels):
+        m = np.array([r["level"] == N for r in rows])
+        ax.plot(R[m], ratio[m], "o", color=f"C{i % 10}", label=f"N={N}")
+    ax.axhline(1.0, color="0.5", lw=0.8)
+    ax.set_xlabel("R")
+    ax.set_ylabel("cusp peak / compact peak")
+    ax.set_title("Where the maximum sits: above 1 in a cusp, below 1 on the compact part")
+    ax.legend(fontsize=8)
+    fig.savefig(folder / "peak_ratio.png", dpi=110)
+    names.append("peak_ratio.png")
+    return names
+
+
+def _peaks_section(st, folder: Path, rep: Report) -> list[str]:
+    """Peak statistics of the sup-norm scans stored beside the forms."""
+    from maasscomp.pipeline.tasks import scanner
+
+    if scanner() is None:
+        return ["No sup-norm scan statistics: this version has no sup-norm scanner."]
+    rows = peak_rows(st)
+    if not rows:
+        return ["No sup-norm scan statistics: the store holds no scans (set `[scan] enabled = "
+                "true` in the config and rerun it)."]
+    _write_csv(folder / "peaks.csv", PEAK_COLUMNS, rows)
+    figs = _peak_figures(rows, folder)
+    rep.files += ["peaks.csv"] + figs
+    n_cusp = sum(r["global_region"].startswith("cusp") for r in rows)
+    lines = [
+        f"{len(rows)} forms scanned: the global maximum lies in a cusp region for {n_cusp} and on "
+        f"the compact part for {len(rows) - n_cusp}. Per form in [peaks.csv](peaks.csv) "
+        "(exponents are log(peak) / log(lambda)).",
+        "",
+    ]
+    by_level: dict[int, list[dict]] = defaultdict(list)
+    for r in rows:
+        by_level[r["level"]].append(r)
+    cols = ("level", "scanned", "max in cusp", "max on compact", "median ratio", "max cusp exponent",
+            "max compact exponent")
+    table = []
+    for N, rs in sorted(by_level.items()):
+        table.append({"level": N, "scanned": len(rs),
+                      "max in cusp": sum(r["global_region"].startswith("cusp") for r in rs),
+                      "max on compact": sum(not r["global_region"].startswith("cusp") for r in rs),
+                      "median ratio": float(np.median([r["ratio_cusp_compact"] for r in rs])),
+                      "max cusp exponent": max(r["exponent_cusp"] for r in rs),
+                      "max compact exponent": max(r["exponent_compact"] for r in rs)})
+    lines.append(_markdown_table(cols, table))
+    lines.append("")
+    lines += [f"![{f}]({f})" for f in figs]
+    return lines
 
 
 def make_report(store_path: str | Path, out_dir: str | Path) -> Report:
@@ -271,8 +370,7 @@ def make_report(store_path: str | Path, out_dir: str | Path) -> Report:
             cov_text = ["(no search tasks recorded)"]
         meta = st.metadata
         n_forms = len(st)
-
-    peaks_text = _peaks_section(store_path, folder, rep)
+        peaks_text = _peaks_section(st, folder, rep)
 
     md = [
         f"# Report on `{store_path.name}`",

@@ -140,6 +140,56 @@ class SearchTask:
 
 
 @dataclass(frozen=True)
+class ScanTask:
+    """Sup-norm scan of one stored form (the form travels with the task: workers never
+    open the store)."""
+
+    form_key: str
+    form: Any
+    Y_c: float
+    rtol: float
+    samples_per_wavelength: float
+
+    stage = "scan"
+
+    @property
+    def task_id(self) -> str:
+        return f"scan:{self.form_key}"
+
+    def run(self) -> "ScanOutput":
+        from maasscomp.supnorm.scan import ScanSettings, scan_form
+
+        settings = ScanSettings(Y_c=self.Y_c, rtol=self.rtol,
+                                samples_per_wavelength=self.samples_per_wavelength)
+        res = scan_form(self.form, settings=settings, form_key=self.form_key)
+        data = res.as_dict()
+        # the store keeps numeric arrays and scalars; text lists become one string
+        data = {k: ("\n".join(map(str, v)) if isinstance(v, (list, tuple)) and v
+                    and all(isinstance(t, str) for t in v) else ("" if isinstance(v, list) and not v else v))
+                for k, v in data.items()}
+        return ScanOutput(form_key=self.form_key, data=data, region=res.global_region,
+                          value=float(res.global_value), ratio=float(res.ratio_cusp_compact))
+
+
+@dataclass(frozen=True)
+class ScanOutput:
+    form_key: str
+    data: dict
+    region: str
+    value: float
+    ratio: float
+
+
+def scanner():
+    """(scan_form, attachment name) of the sup-norm scanner, or None if this version lacks it."""
+    try:
+        from maasscomp.supnorm.scan import SCAN_ATTACHMENT, scan_form
+    except ImportError:
+        return None
+    return scan_form, SCAN_ATTACHMENT
+
+
+@dataclass(frozen=True)
 class SearchOutput:
     forms: tuple
     rejected: tuple[tuple[float, str], ...]
@@ -274,10 +324,12 @@ class Plan:
     tasks: tuple[SearchTask, ...]
     classes: dict[int, tuple[str, ...]] = field(default_factory=dict)
     memory_gb: dict[int, float] = field(default_factory=dict)
+    scan: bool = False
 
     def describe(self) -> str:
         nl = len(self.classes)
-        lines = [f"{len(self.tasks)} search tasks over {nl} level{'s' if nl != 1 else ''}"]
+        lines = [f"{len(self.tasks)} search tasks over {nl} level{'s' if nl != 1 else ''}"
+                 + (", then a sup-norm scan of every form found" if self.scan else "")]
         for N, labels in self.classes.items():
             n = sum(t.level == N for t in self.tasks)
             lines.append(f"  level {N:>4}: {len(labels)} classes ({', '.join(labels)}), {n} tasks, "
@@ -327,9 +379,12 @@ def build_plan(cfg: Config) -> Plan:
         for lab in labels:
             for c in chunks:
                 tasks.append(SearchTask(N, lab, c, s.eps, s.n_coeffs, s.step, general))
+    if cfg.scan.enabled and scanner() is None:
+        problems.append("[scan] enabled = true, but this version has no sup-norm scanner; "
+                        "set enabled = false")
     if problems:
         where = f"{cfg.source_path}: " if cfg.source_path else ""
         if len(problems) == 1:
             raise InputError(where + problems[0])
         raise InputError(where + f"{len(problems)} problems in the config:\n  - " + "\n  - ".join(problems))
-    return Plan(tasks=tuple(tasks), classes=classes, memory_gb=mem)
+    return Plan(tasks=tuple(tasks), classes=classes, memory_gb=mem, scan=cfg.scan.enabled)
