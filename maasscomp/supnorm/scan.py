@@ -692,6 +692,34 @@ def _newton_refine(ev: FormEvaluator, cusp: int, x0: float, y0: float, y_lo: flo
     return x, y, best
 
 
+def _refine_candidates(ev: FormEvaluator, cands, U: float, ybounds, accept=None, with_cusp: bool = False):
+    """Newton-refine every horocycle maximum that could lie in the basin of the true maximum.
+
+    A sample with value below best - 2 (U - best) cannot be within (U - best) of the global
+    maximum's nearest sample, so only the others are refined; results closer than a wavelength
+    to an earlier one are skipped. Returns (x, y, |F|[, cusp]) of the best point found (a grid
+    sample when no refinement improves on it or leaves the region).
+    """
+    best_h = max(cands, key=lambda sh: sh[1].vmax)
+    top = best_h[1].vmax
+    floor = top - 2.0 * max(U - top, 0.0) - 1e-12 * top
+    pool = sorted((c for c in cands if c[1].vmax >= floor), key=lambda sh: -sh[1].vmax)[:12]
+    sl0, h0 = best_h
+    res = (h0.xmax, h0.y, h0.vmax, sl0.cusp)
+    done: list[tuple[int, float, float]] = []
+    for sl, h in pool:
+        wl = TWO_PI * h.y / max(ev.R, 1.0)
+        if any(j == sl.cusp and abs(x - h.xmax) < wl and abs(y - h.y) < wl for j, x, y in done):
+            continue
+        lo, hi = ybounds(sl)
+        x, y, v = _newton_refine(ev, sl.cusp, h.xmax, h.y, lo, hi, step_scale=sl.dy_for(h.y))
+        x = (x + 0.5) % 1.0 - 0.5
+        done.append((sl.cusp, x, y))
+        if v > res[2] and (accept is None or accept(sl.cusp, x, y)):
+            res = (x, y, v, sl.cusp)
+    return res if with_cusp else res[:3]
+
+
 # ------------------------------------------------------------------------------------------
 
 
@@ -756,10 +784,7 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
         slab = _Slab(rs, j, st.Y_c, y_top, compact=False)
         out = rs.run([slab])
         cusp_slabs.append(slab)
-        h = max(slab.horos, key=lambda hh: hh.vmax)
-        x, y, v = _newton_refine(ev, j, h.xmax, h.y, st.Y_c, y_top, step_scale=slab.dy_for(h.y))
-        if v < h.vmax:
-            x, y, v = h.xmax, h.y, h.vmax
+        x, y, v = _refine_candidates(ev, [(slab, hh) for hh in slab.horos], out["U"], lambda sl: (st.Y_c, y_top))
         zx, zy = G.cusps[j].apply_scaling([x], [y])
         U = max(out["U"], tail)
         cusp_peaks.append(RegionPeak(
@@ -796,15 +821,15 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
              for j in range(G.n_cusps)]
     out = rs.run(slabs, boundary=[(sl, 0) for sl in cusp_slabs])
     cands = [(s_, h_) for s_ in slabs for h_ in s_.horos] + [(sl, sl.horos[0]) for sl in cusp_slabs]
-    s_best, h = max(cands, key=lambda sh: sh[1].vmax)
-    y_lo = slabs[s_best.cusp].y_lo
-    x, y, v = _newton_refine(ev, s_best.cusp, h.xmax, h.y, y_lo, st.Y_c, step_scale=slabs[0].dy_for(h.y))
-    zx, zy = G.cusps[s_best.cusp].apply_scaling([x], [y])
+
+    def in_compact(j: int, x: float, y: float) -> bool:
+        zx, zy = G.cusps[j].apply_scaling([x], [y])
+        return float(G.pullback(zx, zy).y[0]) <= st.Y_c * (1 + 1e-9)
+
+    x, y, v, jb = _refine_candidates(ev, cands, out["U"], lambda sl: (slabs[sl.cusp].y_lo, st.Y_c),
+                                     accept=in_compact, with_cusp=True)
+    zx, zy = G.cusps[jb].apply_scaling([x], [y])
     pb = G.pullback(zx, zy)
-    if v < h.vmax or float(pb.y[0]) > st.Y_c * (1 + 1e-9):
-        x, y, v = h.xmax, h.y, h.vmax
-        zx, zy = G.cusps[s_best.cusp].apply_scaling([x], [y])
-        pb = G.pullback(zx, zy)
     compact_peak = RegionPeak(
         region="compact", cusp=int(pb.cusp[0]), value=v * scale, x=float(pb.x[0]), y=float(pb.y[0]),
         z_re=float(zx[0]), z_im=float(zy[0]), grid_bound=max(out["U"] - v, 0.0) * scale,
