@@ -31,6 +31,18 @@ def sweep_stores(tmp_path_factory):
         cfg = load(cfg_path)
         summary = run_job(cfg, quiet=True)
         out[backend] = (cfg, summary)
+    # an existing scheduler, reached by its address: the one line a user changes to move
+    # a sweep onto a cluster (here a cluster of this process's threads)
+    from distributed import LocalCluster
+
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+                      dashboard_address=None) as cluster:
+        cfg_path = write_config(d / "address.toml", output=str(d / "address.h5"),
+                                levels="[1, 2]", parities='["even", "odd"]', R=(9.3, 9.8),
+                                backend="dask", workers=1, name="sweep",
+                                extra=f'address = "{cluster.scheduler_address}"')
+        cfg = load(cfg_path)
+        out["dask-address"] = (cfg, run_job(cfg, quiet=True))
     return out
 
 
@@ -38,10 +50,10 @@ def test_every_backend_gives_the_same_store(sweep_stores):
     ref = store_content(sweep_stores["serial"][0].job.output)
     # level 1: R = 9.5337 (odd); level 2: its two oldforms (Atkin-Lehner signs + and -)
     assert [(d["level"], d["label"]) for d in ref] == [(1, "odd"), (2, "odd,2+"), (2, "odd,2-")]
-    for backend in ("joblib", "dask"):
+    for backend in ("joblib", "dask", "dask-address"):
         cfg, summary = sweep_stores[backend]
         assert summary.ok, summary.as_text()
-        assert summary.backend == backend and summary.workers == 2
+        assert summary.backend == backend.split("-")[0] and summary.workers == 2
         assert_same_content(ref, store_content(cfg.job.output))
 
 
