@@ -453,10 +453,6 @@ def search_window_general(
     )
 
 
-def _multiplicity(sv: np.ndarray, tol: float) -> int:
-    return int(np.sum(sv < tol))
-
-
 def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: float, classify: bool):
     """Independent confirmation of a candidate found with ``sys1`` (the scan height), using
     ``sys2`` (the other height); returns (ok, reason, forms)."""
@@ -502,6 +498,8 @@ def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: 
     if K < max(2 * m + 4, 8):
         return False, f"only {K} well-determined coefficients at infinity", []
     clusters = _hecke_clusters(B, group.level)
+    if not clusters[0].eigenvalues:
+        return False, f"no Hecke operator T_p could be fitted on {K} coefficients at infinity", []
     members: list[tuple[np.ndarray, bool, dict[int, float]]] = []  # (weights, is_eigenform, lambda)
     for cl in clusters:
         Bc = B @ cl.weights
@@ -541,6 +539,7 @@ def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: 
         extra = {
             "hecke_eigenform": bool(eig),
             "hecke_eigenvalues": {str(p): v for p, v in lam.items()},
+            "well_determined_at_infinity": K,
             "hecke_residual_kind": "multiplicative+eigen" if eig else "eigen (T_p, p not dividing N)",
             "singular_values_scan": [float(v) for v in sv1[: m + 1]],
             "singular_values_store": [float(v) for v in sva[: m + 1]],
