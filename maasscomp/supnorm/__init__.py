@@ -11,14 +11,20 @@ l2_norm, NormResult, compact_quadrature, kt2_tail, rankin_selberg_norm2
     ||F||^2 by quadrature over a fundamental domain, with the Rankin--Selberg cross-check.
 scan_form, ScanSettings, ScanResult, RegionPeak, leading_profile_peak
     Peaks of |f|/||f|| in each cusp region and on the compact part, with a grid bound.
+scan_store, load_scans, load_norm
+    Normalise and scan the forms of a store file; results are kept as attachments.
+table_rows, cusp_share, write_csv, write_markdown (module ``stats``), make_figures and the
+plot functions (module ``figures``), add_commands (module ``commands``: ``scan``, ``figures``).
 """
 
 from maasscomp.supnorm.evaluate import Evaluation, FormEvaluator, evaluate
 from maasscomp.supnorm.norm import NormResult, compact_quadrature, kt2_tail, l2_norm, rankin_selberg_norm2
 from maasscomp.supnorm.scan import RegionPeak, ScanResult, ScanSettings, leading_profile_peak, scan_form
+from maasscomp.supnorm.batch import load_norm, load_scans, scan_store
 
 __all__ = [
     "evaluate", "FormEvaluator", "Evaluation",
     "l2_norm", "NormResult", "compact_quadrature", "kt2_tail", "rankin_selberg_norm2",
     "scan_form", "ScanSettings", "ScanResult", "RegionPeak", "leading_profile_peak",
+    "scan_store", "load_scans", "load_norm",
 ]

@@ -129,14 +129,15 @@ class NormResult:
     def as_dict(self) -> dict:
         d = asdict(self)
         d["cusp_parts"] = np.asarray(self.cusp_parts, dtype=float)
-        d["notes"] = list(self.notes)
+        d["notes"] = "\n".join(self.notes)  # the store keeps strings, not lists of strings
         return d
 
     @classmethod
     def from_dict(cls, d: dict) -> "NormResult":
         kw = dict(d)
         kw["cusp_parts"] = tuple(float(v) for v in np.atleast_1d(kw["cusp_parts"]))
-        kw["notes"] = tuple(kw.get("notes") or ())
+        n = kw.get("notes") or ()
+        kw["notes"] = tuple(n.split("\n")) if isinstance(n, str) else tuple(n)
         return cls(**kw)
 
 

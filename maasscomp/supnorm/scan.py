@@ -286,7 +286,7 @@ class ScanResult:
             elif f.name == "compact_peak":
                 d[f.name] = asdict(v)
             elif f.name == "notes":
-                d[f.name] = list(v)
+                d[f.name] = "\n".join(v)  # the store keeps strings, not lists of strings
             elif isinstance(v, tuple):
                 d[f.name] = np.asarray(v, dtype=float)
             else:
@@ -303,7 +303,7 @@ class ScanResult:
             elif f.name == "compact_peak":
                 kw[f.name] = RegionPeak(**v)
             elif f.name == "notes":
-                kw[f.name] = tuple(v or ())
+                kw[f.name] = tuple(v.split("\n")) if isinstance(v, str) and v else tuple(v or ())
             elif isinstance(v, np.ndarray):
                 kw[f.name] = tuple(float(t) for t in np.atleast_1d(v))
             else:
