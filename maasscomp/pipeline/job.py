@@ -357,12 +357,20 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
 
     from maasscomp.pipeline.tasks import ScanTask, execute, scanner
 
-    _, attachment = scanner()
+    attachment, norm_attachment = scanner()
     keys = _plan_keys(st, cfg, plan)
-    todo = [k for k in keys if attachment not in st.attachments(k)]
+    sc = cfg.scan
+
+    def scanned(k: str) -> bool:
+        # a scan made with other grid settings (e.g. by `maasscomp scan`) is redone
+        if attachment not in st.attachments(k):
+            return False
+        old = st.get_attachment(k, attachment)
+        return old.get("Y_c") == sc.Y_c and old.get("rtol") == sc.rtol
+
+    todo = [k for k in keys if not scanned(k)]
     summary.scans_total = len(keys)
     summary.scans_skipped = len(keys) - len(todo)
-    sc = cfg.scan
     tasks = [ScanTask(k, st.get(k), sc.Y_c, sc.rtol, sc.samples_per_wavelength) for k in todo]
     log.info("scan stage: %d forms, %d already scanned", len(keys), summary.scans_skipped)
     bar = tqdm(total=len(keys), initial=summary.scans_skipped, desc="scan", unit="form",
@@ -380,6 +388,7 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
                 out = o.output
                 t = time.perf_counter()
                 with st.transaction():
+                    st.put_attachment(out.form_key, norm_attachment, out.norm)
                     st.put_attachment(out.form_key, attachment, out.data)
                     st.mark_task_done(o.task_id, [out.form_key], run_id=run_id)
                 summary.commit_seconds += time.perf_counter() - t

@@ -208,7 +208,7 @@ def peak_rows(st) -> list[dict[str, Any]]:
     sc = scanner()
     if sc is None:
         return []
-    attachment = sc[1]
+    attachment = sc[0]
     rows = []
     for k in st.keys():
         if attachment not in st.attachments(k):
@@ -283,7 +283,14 @@ def _peaks_section(st, folder: Path, rep: Report) -> list[str]:
         return ["No sup-norm scan statistics: the store holds no scans (set `[scan] enabled = "
                 "true` in the config and rerun it)."]
     _write_csv(folder / "peaks.csv", PEAK_COLUMNS, rows)
-    figs = _peak_figures(rows, folder)
+    try:
+        from maasscomp.supnorm.figures import make_figures
+    except ImportError:
+        figs = _peak_figures(rows, folder)
+    else:  # the scanner's own figures and tables, in peaks/
+        made = make_figures(st.path, folder / "peaks")
+        figs = [f"peaks/{Path(p).name}" for p in made if str(p).endswith(".png")]
+        rep.files += [f"peaks/{Path(p).name}" for p in made if not str(p).endswith(".png")]
     rep.files += ["peaks.csv"] + figs
     n_cusp = sum(r["global_region"].startswith("cusp") for r in rows)
     lines = [
@@ -307,6 +314,8 @@ def _peaks_section(st, folder: Path, rep: Report) -> list[str]:
                       "max compact exponent": max(r["exponent_compact"] for r in rs)})
     lines.append(_markdown_table(cols, table))
     lines.append("")
+    if (folder / "peaks" / "supnorm_report.md").exists():
+        lines += ["The scanner's own tables: [peaks/supnorm_report.md](peaks/supnorm_report.md).", ""]
     lines += [f"![{f}]({f})" for f in figs]
     return lines
 

@@ -157,36 +157,46 @@ class ScanTask:
         return f"scan:{self.form_key}"
 
     def run(self) -> "ScanOutput":
+        from maasscomp.supnorm.evaluate import FormEvaluator
+        from maasscomp.supnorm.norm import l2_norm
         from maasscomp.supnorm.scan import ScanSettings, scan_form
 
         settings = ScanSettings(Y_c=self.Y_c, rtol=self.rtol,
                                 samples_per_wavelength=self.samples_per_wavelength)
-        res = scan_form(self.form, settings=settings, form_key=self.form_key)
-        data = res.as_dict()
-        # the store keeps numeric arrays and scalars; text lists become one string
-        data = {k: ("\n".join(map(str, v)) if isinstance(v, (list, tuple)) and v
-                    and all(isinstance(t, str) for t in v) else ("" if isinstance(v, list) and not v else v))
-                for k, v in data.items()}
-        return ScanOutput(form_key=self.form_key, data=data, region=res.global_region,
+        ev = FormEvaluator(self.form, tol=settings.eval_tol)
+        norm = l2_norm(self.form, evaluator=ev)
+        res = scan_form(self.form, settings=settings, norm=norm, form_key=self.form_key, evaluator=ev)
+        return ScanOutput(form_key=self.form_key, data=_plain(res.as_dict()),
+                          norm=_plain(norm.as_dict()), region=res.global_region,
                           value=float(res.global_value), ratio=float(res.ratio_cusp_compact))
+
+
+def _plain(d: dict) -> dict:
+    # the store keeps numbers, arrays of numbers and strings: a list of strings becomes one
+    # newline-separated string (the scanner's own encoding of its notes)
+    return {k: ("\n".join(v) if isinstance(v, (list, tuple)) and all(isinstance(t, str) for t in v)
+                else v) for k, v in d.items()}
 
 
 @dataclass(frozen=True)
 class ScanOutput:
     form_key: str
     data: dict
+    norm: dict
     region: str
     value: float
     ratio: float
 
 
 def scanner():
-    """(scan_form, attachment name) of the sup-norm scanner, or None if this version lacks it."""
+    """(scan attachment name, norm attachment name) of the sup-norm scanner, or None if
+    this version lacks it."""
     try:
-        from maasscomp.supnorm.scan import SCAN_ATTACHMENT, scan_form
+        from maasscomp.supnorm.norm import l2_norm  # noqa: F401
+        from maasscomp.supnorm.scan import NORM_ATTACHMENT, SCAN_ATTACHMENT, scan_form  # noqa: F401
     except ImportError:
         return None
-    return scan_form, SCAN_ATTACHMENT
+    return SCAN_ATTACHMENT, NORM_ATTACHMENT
 
 
 @dataclass(frozen=True)
