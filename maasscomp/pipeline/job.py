@@ -181,6 +181,7 @@ class _LogFile:
             sh = logging.StreamHandler(sys.stderr)
             sh.setFormatter(logging.Formatter("%(message)s"))
             sh.setLevel(logging.DEBUG)
+            sh.addFilter(lambda rec: not getattr(rec, "file_only", False))
             self.handlers.append(sh)
         self._old_level = log.level
         log.setLevel(logging.DEBUG)
@@ -290,7 +291,7 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
         summary.new_per_class = dict(new_counts)
         summary.forms_per_class = _count_forms(st, cfg, plan)
         summary.seconds = time.perf_counter() - t0
-        log.info("summary:\n%s", summary.as_text())
+        log.info("summary:\n%s", summary.as_text(), extra={"file_only": True})
         return summary
     except KeyboardInterrupt:
         log.warning("interrupted; finished tasks are stored, rerun the same config to resume")
