@@ -72,8 +72,10 @@ def _cmd_check(args: argparse.Namespace) -> int:
 
     cfg = _load_config(args)
     plan = preflight(cfg)
-    print(f"{cfg.source_path}: valid; output {cfg.job.output}, backend {cfg.executor.backend} "
-          f"with {cfg.executor.workers} worker(s)")
+    ex = cfg.executor
+    where = (f"the Dask scheduler at {ex.address}" if ex.address else
+             "this process" if ex.backend == "serial" else f"{ex.workers} {ex.backend} worker(s)")
+    print(f"{cfg.source_path}: valid; output {cfg.job.output}; tasks run on {where}")
     print(plan.describe())
     return 0
 
