@@ -116,7 +116,7 @@ class ScanSettings:
     top_rel: float = 1e-8
     eval_tol: float = 1e-12
     hist_bins: int = 60
-    moment_nodes: float = 0.7
+    moment_nodes: float = 0.5
 
     def __post_init__(self) -> None:
         if not (isinstance(self.Y_c, (int, float)) and math.isfinite(self.Y_c) and self.Y_c >= 1.0):
@@ -366,6 +366,7 @@ class _Horo:
     n2max: float = 0.0
     eta: float = 0.0
     touch: bool = False  # some near samples were left out because they lie in a cusp region
+    band: tuple | None = None  # (upper neighbour, cached U-independent band data)
 
 
 class _Slab:
@@ -393,19 +394,37 @@ class _Slab:
         if len(ys) < 3:
             ys = list(np.linspace(self.y_lo, self.y_hi, 3))
         ys = np.array(ys)
-        self.horos = []
+        specs = []
         for i, y in enumerate(ys):
             nt = self.scan.nterms(float(y))
             dyn = max(ys[min(i + 1, ys.size - 1)] - y, y - ys[max(i - 1, 0)])
-            self.horos.append(self.make(float(y), self.L_for(nt), dyn))
+            specs.append((float(y), self.L_for(nt), dyn))
+        self.horos = self.make_many(specs)
 
     def make(self, y: float, L: int, dy_adj: float) -> _Horo:
+        return self.make_many([(y, L, dy_adj)])[0]
+
+    def make_many(self, specs: list[tuple[float, int, float]]) -> list[_Horo]:
+        """Horocycles for (y, L, spacing to the neighbours); the K-Bessel values of all of them
+        are computed in one call (the per-call cost of the tables dominates small calls)."""
         sc = self.scan
         ev = sc.ev
-        nt = sc.nterms(y)
+        nts = [sc.nterms(y) for y, _, _ in specs]
+        t = np.concatenate([TWO_PI * y * np.arange(1, nt + 1) for (y, _, _), nt in zip(specs, nts)])
+        K_all, Kp_all = ktilde_and_derivative(ev.R, t)
+        out = []
+        pos = 0
+        for (y, L, dy_adj), nt in zip(specs, nts):
+            K, Kp = K_all[pos:pos + nt], Kp_all[pos:pos + nt]
+            pos += nt
+            out.append(self._finish(y, L, dy_adj, nt, K, Kp))
+        return out
+
+    def _finish(self, y: float, L: int, dy_adj: float, nt: int, K: np.ndarray, Kp: np.ndarray) -> _Horo:
+        sc = self.scan
+        ev = sc.ev
         L = max(L, 2 * nt + 2)
         n = np.arange(1, nt + 1, dtype=float)
-        K, Kp = ktilde_and_derivative(ev.R, TWO_PI * y * n)
         sy = math.sqrt(y)
         A = sy * K
         Ap = K / (2 * sy) + sy * TWO_PI * n * Kp
@@ -436,42 +455,52 @@ class _Slab:
         return h
 
     # bounds -----------------------------------------------------------------------------
-    def band_bounds(self, U: float) -> list[tuple[float, float, float, float]]:
+    def _static(self, h0: _Horo, h1: _Horo) -> tuple:
+        """U-independent part of a band's bound (cached on the lower horocycle)."""
+        if h0.band is not None and h0.band[0] is h1:
+            return h0.band[1]
+        sc = self.scan
+        nt = max(h0.nt, h1.nt)
+        A0, A1 = _pad(h0.A, nt), _pad(h1.A, nt)
+        P0, P1 = _pad(h0.Ap, nt), _pad(h1.Ap, nt)
+        D = h1.y - h0.y
+        n = np.arange(1, nt + 1, dtype=float)
+        w2 = (TWO_PI * n) ** 2
+        k = np.maximum(np.abs(w2 - sc.lam / h0.y**2), np.abs(w2 - sc.lam / h1.y**2))
+        a0 = np.maximum(np.abs(A0), np.abs(A1))
+        p0 = np.maximum(np.abs(P0), np.abs(P1))
+        den = 1.0 - D * D * k / 4.0
+        cell = math.hypot(0.5 / min(h0.L, h1.L), 0.5 * D) / h0.y
+        touch = h0.touch or h1.touch
+        m = max(h0.vmax, h1.vmax)
+        if np.any(den <= 0.25):
+            st = (m, math.inf, math.inf, math.inf, math.inf, nt, 0.5 / min(h0.L, h1.L), 0.5 * D, h0.y, cell, touch)
+        else:
+            a = (a0 + 0.5 * D * p0) / den
+            p = p0 + 0.5 * D * k * a
+            c = sc.cabs(self.cusp, nt)
+            td2 = sc.tail_d2(h0.y)
+            st = (m, float(np.dot(c, a)) + sc.tail, float(np.dot(c, w2 * a)) + td2,
+                  float(np.dot(c, TWO_PI * n * p)) + td2, (TWO_PI * nt) ** 2, nt, 0.5 / min(h0.L, h1.L),
+                  0.5 * D, h0.y, cell, touch)
+        h0.band = (h1, st)
+        return st
+
+    def band_bounds(self, U: float) -> list[tuple]:
         """For each band: (largest kept sample, x-part, y-and-mixed part, termwise sup bound,
         hyperbolic size of the nearest-sample displacement, touches a cusp region)."""
         sc = self.scan
         out = []
         for h0, h1 in zip(self.horos[:-1], self.horos[1:]):
-            nt = max(h0.nt, h1.nt)
-            A0 = _pad(h0.A, nt)
-            A1 = _pad(h1.A, nt)
-            P0 = _pad(h0.Ap, nt)
-            P1 = _pad(h1.Ap, nt)
-            D = h1.y - h0.y
-            n = np.arange(1, nt + 1, dtype=float)
-            w2 = (TWO_PI * n) ** 2
-            k = np.maximum(np.abs(w2 - sc.lam / h0.y**2), np.abs(w2 - sc.lam / h1.y**2))
-            a0 = np.maximum(np.abs(A0), np.abs(A1))
-            p0 = np.maximum(np.abs(P0), np.abs(P1))
-            den = 1.0 - D * D * k / 4.0
-            den = np.where(den > 0.25, den, np.nan)
-            a = (a0 + 0.5 * D * p0) / den
-            p = p0 + 0.5 * D * k * a
-            c = sc.cabs(self.cusp, nt)
-            cell = math.hypot(0.5 / min(h0.L, h1.L), 0.5 * D) / h0.y
-            touch = h0.touch or h1.touch
-            if np.isnan(a).any():
-                out.append((max(h0.vmax, h1.vmax), math.inf, math.inf, math.inf, cell, touch))
+            m, termsup, Hxx_t, Hxy, bern, nt, hx, hy, y0, cell, touch = self._static(h0, h1)
+            if not math.isfinite(termsup):
+                out.append((m, math.inf, math.inf, math.inf, cell, touch))
                 continue
-            termsup = float(np.dot(c, a)) + sc.tail
-            Hxx = min(float(np.dot(c, w2 * a)), (TWO_PI * nt) ** 2 * U) + sc.tail_d2(h0.y)
-            Hyy = sc.lam * U / h0.y**2 + Hxx
-            Hxy = float(np.dot(c, TWO_PI * n * p)) + sc.tail_d2(h0.y)
-            hx = 0.5 / min(h0.L, h1.L)
-            hy = 0.5 * D
+            Hxx = min(Hxx_t, bern * U + sc.tail_d2(y0))
+            Hyy = sc.lam * U / y0**2 + Hxx
             dx_part = 0.5 * hx * hx * Hxx
             dy_part = 0.5 * (2 * hx * hy * Hxy + hy * hy * Hyy)
-            out.append((max(h0.vmax, h1.vmax), dx_part, dy_part, termsup, cell, touch))
+            out.append((m, dx_part, dy_part, termsup, cell, touch))
         return out
 
 
@@ -492,7 +521,7 @@ class _RegionScan:
         self.rho = float(settings.samples_per_wavelength)
         self.points = 0
         self.tail = 2.0 * ev.tol
-        self._nt: dict[float, int] = {}
+        self._cabs: dict[tuple[int, int], np.ndarray] = {}
 
     def nterms(self, y: float) -> int:
         return self.ev.terms_needed(y)
@@ -504,6 +533,12 @@ class _RegionScan:
         return (TWO_PI * n) ** 2 * self.ev.tol * 4.0 + self.lam * self.ev.tol / y**2
 
     def cabs(self, cusp: int, nt: int) -> np.ndarray:
+        key = (cusp, nt)
+        if key not in self._cabs:
+            self._cabs[key] = self._cabs_uncached(cusp, nt)
+        return self._cabs[key]
+
+    def _cabs_uncached(self, cusp: int, nt: int) -> np.ndarray:
         tab = self.ev.ensure_terms(nt)
         alpha, beta = tab.cos_sin(cusp, nt)
         c = np.hypot(alpha, beta)
@@ -622,18 +657,24 @@ class _RegionScan:
         if not Lup and not inserts:
             return
         horos = s.horos
-        out: list[_Horo] = []
+        specs: list[tuple[float, int, float]] = []
+        plan: list = []  # an existing horocycle, or the index of a new one in specs
         for i, h in enumerate(horos):
             if i in Lup and Lup[i] > h.L:
                 dyn = max(horos[min(i + 1, len(horos) - 1)].y - h.y, h.y - horos[max(i - 1, 0)].y)
                 if i in inserts or (i - 1) in inserts:
                     dyn *= 0.5
-                h = s.make(h.y, Lup[i], dyn)
-            out.append(h)
+                plan.append(len(specs))
+                specs.append((h.y, Lup[i], dyn))
+            else:
+                plan.append(h)
             if i in inserts:
                 ym = inserts[i]
                 L = max(Lup.get(i, horos[i].L), Lup.get(i + 1, horos[i + 1].L), s.L_for(self.nterms(ym)))
-                out.append(s.make(ym, L, 0.5 * (horos[i + 1].y - horos[i].y)))
+                plan.append(len(specs))
+                specs.append((ym, L, 0.5 * (horos[i + 1].y - horos[i].y)))
+        made = s.make_many(specs)
+        out = [made[p] if isinstance(p, int) else p for p in plan]
         s.horos = out
 
 
@@ -663,9 +704,9 @@ def _newton_refine(ev: FormEvaluator, cusp: int, x0: float, y0: float, y_lo: flo
             # on the boundary horocycle: 1-D Newton in x
             step = np.array([-g[0] / H[0, 0] if H[0, 0] < 0 else g[0] * step_scale / (abs(g[0]) + 1e-300), 0.0])
         else:
-            ev_ = np.linalg.eigvalsh(H)
-            if ev_.max() < 0:
-                step = -np.linalg.solve(H, g)
+            det = H[0, 0] * H[1, 1] - H[0, 1] * H[1, 0]
+            if H[0, 0] < 0 and det > 0:  # negative definite
+                step = -np.array([H[1, 1] * g[0] - H[0, 1] * g[1], H[0, 0] * g[1] - H[1, 0] * g[0]]) / det
             else:
                 gn = np.linalg.norm(g)
                 step = g * (step_scale / gn) if gn > 0 else np.zeros(2)
