@@ -63,6 +63,10 @@ MULTIPLICITY_TOL = 1e-8
 #: (column scaling over its best value, i.e. roughly the error amplification).
 _GOOD_AMPLIFICATION = 1e6
 
+#: A candidate whose m-th relative singular value at the other height exceeds this is
+#: rejected without a root search there (true eigenvalues give ~1e-13).
+_QUICK_REJECT = 1e-6
+
 #: T_p eigenvalues closer than this are treated as equal (one Hecke cluster).
 _CLUSTER_TOL = 1e-5
 
@@ -361,7 +365,7 @@ def search_window_general(
         Grid step override (default: mean spacing of the class / steps_per_spacing,
         capped by max_step; Weyl's law leading term for the two parity classes).
     progress : callable(done, total), optional
-        Called after each grid point (two scans: at Y1 and at Y2).
+        Called after each grid point (both heights are evaluated at each point).
     mult_tol : float
         Relative singular value below which a direction counts as null
         (:data:`MULTIPLICITY_TOL`).
@@ -406,18 +410,21 @@ def search_window_general(
     # depend on Y) can hide a true eigenvalue in the same grid interval, which the other
     # height then still shows.
     systems = (sys1, sys2)
+    signs = np.empty((2, grid.size))
+    logs = np.empty((2, grid.size))
+    # both heights at the same R back to back: the per-R K-Bessel table is built once
+    for i, R in enumerate(grid):
+        for k, sysk in enumerate(systems):
+            signs[k, i], logs[k, i] = sysk.log_det(float(R))
+        if progress is not None:
+            progress(i + 1, grid.size)
     raw: list[tuple[float, str, int]] = []
     for k, sysk in enumerate(systems):
-        signs = np.empty(grid.size)
-        logs = np.empty(grid.size)
-        for i, R in enumerate(grid):
-            signs[i], logs[i] = sysk.log_det(float(R))
-            if progress is not None:
-                progress(k * grid.size + i + 1, 2 * grid.size)
-        for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
+        sg, lg = signs[k], logs[k]
+        for i in np.nonzero(sg[:-1] * sg[1:] < 0)[0]:
             raw.append((_refine_sign_change(sysk, float(grid[i]), float(grid[i + 1])), "sign change", k))
         for i in range(1, grid.size - 1):
-            if logs[i] < logs[i - 1] and logs[i] < logs[i + 1] and signs[i - 1] == signs[i] == signs[i + 1]:
+            if lg[i] < lg[i - 1] and lg[i] < lg[i + 1] and sg[i - 1] == sg[i] == sg[i + 1]:
                 Rm = _refine_minimum(sysk, float(grid[i - 1]), float(grid[i + 1]), float(grid[i]))
                 raw.append((Rm, "log|det| minimum", k))
     raw.sort()
@@ -460,6 +467,11 @@ def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: 
     m = U1.shape[1]
     if m == 0:
         return False, f"no null direction (smallest relative singular value {sv1[0]:.1e})", []
+    # quick test first: at a true eigenvalue the other height is singular at Rc too (up to
+    # |Rc - R| ~ 1e-13); spurious roots of the truncated system depend on Y and are not
+    sv_other = sys2.null_space(Rc, mult_tol)[0]
+    if sv_other[m - 1] > _QUICK_REJECT:
+        return False, f"the other height is regular here (singular value {sv_other[m - 1]:.1e})", []
     R2 = _root_near(sys2, Rc, max(1e-7, 1e3 * settings.R_tol), odd=bool(m % 2))
     if R2 is None:
         return False, f"multiplicity {m} at the scan height but no matching root at the other height", []
