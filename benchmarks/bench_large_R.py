@@ -57,7 +57,7 @@ def solve_cost() -> None:
     from maasscomp.hejhal.types import SymmetryClass
 
     g = gamma0(1)
-    Rs = np.array([250.0, 500.0, 1000.0, 2000.0, 4000.0])
+    Rs = np.array([250.0, 500.0, 1000.0, 2000.0, 4000.0, 8000.0])
     ts, m0 = [], []
     for R in Rs:
         p = choose_params(R, 0.92 * g.fundamental_domain_height)
