@@ -18,6 +18,7 @@ machine lower the speed-up, so compare numbers taken on an idle machine.
 from __future__ import annotations
 
 import argparse
+import math
 import os
 import subprocess
 import sys
@@ -74,6 +75,9 @@ def main() -> None:
     ap.add_argument("--chunk", type=float, default=0.5)
     ap.add_argument("--backends", default="joblib,dask")
     ap.add_argument("--noop-tasks", type=int, default=400)
+    ap.add_argument("--repeat", type=int, default=1,
+                    help="run every configuration this many times and keep the fastest "
+                         "(helps on a machine shared with other work)")
     args = ap.parse_args()
     backends = [b.strip() for b in args.backends.split(",") if b.strip()]
 
@@ -89,12 +93,17 @@ def main() -> None:
                                          args.rmax, args.chunk, backend, w)
                 cfg = load(cfg_path)
                 n_tasks = len(build_plan(cfg).tasks)
-                # a fresh process per measurement: no K-Bessel table survives from the last one
-                t = time.perf_counter()
-                r = subprocess.run([sys.executable, "-m", "maasscomp", "run", str(cfg_path), "-q"],
-                                   capture_output=True, text=True)
-                times[(backend, w)] = time.perf_counter() - t
-                assert r.returncode == 0, r.stderr
+                best = math.inf
+                for _ in range(args.repeat):
+                    if cfg.job.output.exists():
+                        cfg.job.output.unlink()
+                    # a fresh process per measurement: no K-Bessel table survives from the last one
+                    t = time.perf_counter()
+                    r = subprocess.run([sys.executable, "-m", "maasscomp", "run", str(cfg_path), "-q"],
+                                       capture_output=True, text=True)
+                    best = min(best, time.perf_counter() - t)
+                    assert r.returncode == 0, r.stderr
+                times[(backend, w)] = best
                 with Store.open(cfg.job.output, "r") as st:
                     nf = len(st)
                 assert forms is None or nf == forms, "executors found different numbers of forms"
