@@ -9,6 +9,7 @@ import pytest
 DATA = Path(__file__).resolve().parent / "data"
 FORMS = DATA / "supnorm_forms.h5"
 FORMS_RS = DATA / "supnorm_forms_rs.h5"
+FORMS_GENERAL = DATA / "supnorm_forms_general.h5"
 
 
 def _load(path: Path) -> dict[str, object]:
@@ -40,6 +41,12 @@ def forms_by_level(supnorm_forms) -> dict[int, list]:
 def rs_forms() -> dict[str, object]:
     """Level 2, 5, 11 newforms with 900 coefficients (tests/supnorm/data/supnorm_forms_rs.h5)."""
     return _load(FORMS_RS)
+
+
+@pytest.fixture(scope="session")
+def general_forms() -> dict[str, object]:
+    """Odd forms of the non-squarefree levels 4 and 9 (tests/supnorm/data/supnorm_forms_general.h5)."""
+    return _load(FORMS_GENERAL)
 
 
 @pytest.fixture(scope="session")

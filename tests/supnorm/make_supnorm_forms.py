@@ -9,10 +9,13 @@ writes every confirmed form to ``tests/supnorm/data/supnorm_forms.h5``:
   (enough for the expansions at the lowest pulled-back heights, e.g. Y0 ~ 0.09 for N = 11);
 * the first form of one class at levels 2, 5 and 11 again with 900 coefficients (enough for
   L(1, sym^2 f) of conductor N^2), stored under basis_index 0 of a separate file
-  ``supnorm_forms_rs.h5`` so that keys do not clash.
+  ``supnorm_forms_rs.h5`` so that keys do not clash;
+* odd forms of the non-squarefree levels 4 (3 <= R <= 6.5, including a two-dimensional
+  oldform space) and 9 (2 <= R <= 4) from the multi-cusp search, in ``supnorm_forms_general.h5``.
 
 Run from the repository root: ``python tests/supnorm/make_supnorm_forms.py`` (about 10
-minutes on 2 cores) and ``python tests/supnorm/make_supnorm_forms.py rs`` (under a minute).
+minutes on 2 cores), ``python tests/supnorm/make_supnorm_forms.py rs`` and
+``python tests/supnorm/make_supnorm_forms.py general`` (under a minute each).
 The tests skip with a message when a file is missing.
 """
 
@@ -30,6 +33,8 @@ from maasscomp.store import Store
 
 OUT = Path(__file__).resolve().parent / "data" / "supnorm_forms.h5"
 OUT_RS = Path(__file__).resolve().parent / "data" / "supnorm_forms_rs.h5"
+OUT_GENERAL = Path(__file__).resolve().parent / "data" / "supnorm_forms_general.h5"
+PLAN_GENERAL = [(4, "odd", 3.0, 6.5), (9, "odd", 2.0, 4.0)]
 PLAN = [(1, 20.0, 400), (2, 10.0, 200), (5, 10.0, 200), (6, 10.0, 200), (11, 10.0, 200)]
 # (level, parity, Atkin-Lehner signs, R window): windows around the first newform of the class
 PLAN_RS = [(2, "odd", ((2, -1),), 5.3, 5.5), (5, "odd", ((5, -1),), 3.0, 3.1), (11, "odd", ((11, -1),), 2.0, 2.1)]
@@ -48,7 +53,20 @@ def _task_rs(N: int, parity: str, signs, lo: float, hi: float):
     return list(res.forms)
 
 
+def _task_general(N: int, parity: str, lo: float, hi: float):
+    from maasscomp.spectrum.general import search_window_general
+
+    return list(search_window_general(gamma0(N), parity, lo, hi).forms)
+
+
 def main() -> int:
+    if sys.argv[1:] == ["general"]:
+        out = Parallel(n_jobs=2)(delayed(_task_general)(*t) for t in PLAN_GENERAL)
+        forms = [f for fs in out for f in fs]
+        with Store.open(OUT_GENERAL, "w") as st:
+            st.add_forms(forms, config_text="tests/supnorm/make_supnorm_forms.py general")
+        print(f"wrote {len(forms)} forms to {OUT_GENERAL}")
+        return 0
     if sys.argv[1:] == ["rs"]:
         out = Parallel(n_jobs=2)(delayed(_task_rs)(*t) for t in PLAN_RS)
         forms = [f for fs in out for f in fs]

@@ -85,6 +85,17 @@ def test_automorphy_more_levels(forms_by_level, level):
         _check_form(f, rng)
 
 
+def test_automorphy_non_squarefree_levels(general_forms):
+    """Levels 4 and 9: coefficient rows of every cusp from the multi-cusp search."""
+    levels = set()
+    rng = np.random.default_rng(49)
+    for f in general_forms.values():
+        assert f.coeffs.shape[0] == FormEvaluator(f).group.n_cusps > 2
+        _check_form(f, rng)
+        levels.add(f.level)
+    assert levels == {4, 9}
+
+
 def test_hecke_extension_matches_stored(level1_form):
     """Coefficients filled in by Hecke multiplicativity reproduce the stored ones."""
     from dataclasses import replace

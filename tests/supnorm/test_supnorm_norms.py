@@ -64,9 +64,10 @@ def test_kt2_tail_against_mpmath():
     assert abs((got[0] - got[1]) - float(part)) <= 1e-11 * float(ref)
 
 
-def test_compact_quadrature_closes_the_norm(forms_by_level):
-    """int_compact |F|^2 + Parseval over the cusp regions above Y_c = ||F||^2 (levels 1, 11)."""
-    for f in (forms_by_level[1][2], forms_by_level[11][5]):
+def test_compact_quadrature_closes_the_norm(forms_by_level, general_forms):
+    """int_compact |F|^2 + Parseval over the cusp regions above Y_c = ||F||^2 (levels 1, 11, 9)."""
+    level9 = [f for f in general_forms.values() if f.level == 9]
+    for f in (forms_by_level[1][2], forms_by_level[11][5], level9[0]):
         ev = FormEvaluator(f)
         norm = l2_norm(f, evaluator=ev, rankin_selberg=False)
         for Yc in (1.0, 1.5):

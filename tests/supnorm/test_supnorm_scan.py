@@ -182,6 +182,21 @@ def test_scanner_never_below_random_evaluations(scans, seed):
         assert vmax <= r.compact_peak.value + 1e-9, (key, vmax, r.compact_peak.value)
 
 
+def test_scan_non_squarefree_level(general_forms):
+    """Level 4 (three cusps, one of width 1 besides infinity): bound, bookkeeping, samples."""
+    f = min((g for g in general_forms.values() if g.level == 4), key=lambda g: g.R)
+    r = scan_form(f)
+    ev = FormEvaluator(f)
+    G = ev.group
+    assert len(r.cusp_peaks) == G.n_cusps == 3
+    assert r.grid_bound_rel <= r.rtol * (1 + 1e-9)
+    assert abs(r.compact_area - (G.area - 3 / r.Y_c)) < 1e-9
+    rng = np.random.default_rng(4)
+    for j, p in enumerate(r.cusp_peaks):
+        x, y = _cusp_samples(rng, 20_000, r.y_top[j])
+        assert np.abs(ev.expansion(j, x, y)[0]).max() * r.scale <= p.value + 1e-9
+
+
 def test_scan_result_round_trip(scans):
     f, r = _get(scans, 1, 9.5337)
     d = r.as_dict()
