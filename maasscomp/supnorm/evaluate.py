@@ -239,13 +239,14 @@ class FormEvaluator:
             vals[sel] = v
             errs[sel] = e
             n_used = max(n_used, self.terms_needed(float(wy[sel].min())))
+        used = sorted(int(j) for j in np.unique(cus))
         return self._result(vals.reshape(shape), errs.reshape(shape), cus.reshape(shape),
-                            wx.reshape(shape), wy.reshape(shape), n_used)
+                            wx.reshape(shape), wy.reshape(shape), n_used, used)
 
-    def _result(self, vals, errs, cus, wx, wy, n_used) -> Evaluation:
+    def _result(self, vals, errs, cus, wx, wy, n_used, used_cusps) -> Evaluation:
         tab = self._table
         notes = []
-        complete = not bool(np.any(tab.missing_mask(0, n_used))) if n_used else True
+        complete = not any(tab.missing_mask(j, n_used).any() for j in used_cusps) if n_used else True
         if tab.extended and n_used > tab.n_stored:
             notes.append(
                 f"coefficients n = {tab.n_stored + 1}..{n_used} were filled in from the stored "

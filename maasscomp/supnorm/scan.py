@@ -48,10 +48,17 @@ which only raises the reported value. The reported value v is a true value of |F
 region and satisfies v <= sup <= v + grid_bound.
 
 Compact slabs keep every sample whose own height is at least exp(-eta) times the largest
-height of its orbit, eta twice the hyperbolic size of the adjacent grid cells, and whose
-largest height is below Y_c. These are genuine points of the compact part (moved by the
-group), and every cell containing a point of the fundamental domain has its nearest samples
-in the kept set, so the bound above remains valid.
+height of its orbit (eta twice the hyperbolic size of the adjacent grid cells; heights change
+by at most a factor e^d over a hyperbolic distance d) and whose largest height is at most Y_c.
+These are genuine points of the compact part (moved by the group), and a cell containing a
+point of the fundamental domain has its nearest samples in the kept set unless some of them
+lie in a cusp region. The compact part is closed: its boundary horocycles Im w = Y_c are the
+bottom horocycles of the cusp scans and enter its maximum with the 1-D bound
+(1/2)(h/2)^2 H_xx. For a band that drops samples because they lie in a cusp region, a
+maximiser z* (where grad F = 0) within the cell size d of a cusp region is at most Y_c d below
+the boundary horocycle of that cusp in its coordinate, so
+|F(z*)| <= (boundary maximum) + (1/2) (Y_c d)^2 U (lambda / y^2 + (2 pi n_t)^2) (the eigen-
+equation and Bernstein's inequality bound F_yy); that term is added to such bands.
 
 Cusp regions are scanned up to y_top, where sum_n |c_n| A_n(y) (which bounds |F| above
 y_top because every A_n decreases beyond its turning point, DLMF 10.40.2) is below 1e-8 of
