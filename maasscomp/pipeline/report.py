@@ -369,7 +369,9 @@ def make_report(store_path: str | Path, out_dir: str | Path) -> Report:
                                      f"{k} = {v!r}" for k, v in _fp(rec).items()) + ")")
                 if rec.get("source_path"):
                     runs_text.append(f"- config file: `{rec['source_path']}`")
-                runs_text.append("\nConfig as given:\n\n```toml\n" + rec.get("toml", "").rstrip() + "\n```\n")
+                runs_text.append("\nConfig as given when the run was first started (later runs of the "
+                                 "same name may have changed levels, windows or the executor):"
+                                 "\n\n```toml\n" + rec.get("toml", "").rstrip() + "\n```\n")
             elif info["config"]:
                 runs_text.append("\nConfig text:\n\n```\n" + info["config"].rstrip() + "\n```\n")
         if cov:
