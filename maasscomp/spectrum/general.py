@@ -89,8 +89,9 @@ def _divisors(n: int) -> list[int]:
 # ----------------------------------------------------------------------------------------
 
 
-def _refine_sign_change(system: MultiCuspSystem, a: float, b: float) -> float:
-    """Root of det A(R) in [a, b] (a sign change) to ~1e-15 relative.
+def _refine_sign_change(system: MultiCuspSystem, a: float, b: float) -> tuple[float, int]:
+    """Root of det A(R) in [a, b] (a sign change) to ~1e-15 relative, and the estimated
+    multiplicity used for the final iteration (1 when Brent's method converged at once).
 
     Near a root of multiplicity m, |det| ~ |R - R0|^m, on which Brent's method converges
     only linearly for m > 1. After a few Brent steps on sign * |det| the multiplicity is
@@ -115,7 +116,7 @@ def _refine_sign_change(system: MultiCuspSystem, a: float, b: float) -> float:
 
     tol = dict(xtol=1e-15, rtol=4 * np.finfo(float).eps)
     try:
-        return float(brentq(make(1), a, b, maxiter=12, **tol))
+        return float(brentq(make(1), a, b, maxiter=12, **tol)), 1
     except RuntimeError:
         pass
     pts = sorted(seen.items())
@@ -132,17 +133,24 @@ def _refine_sign_change(system: MultiCuspSystem, a: float, b: float) -> float:
         slope = float(np.linalg.lstsq(X, np.array([ld for _, ld in far]), rcond=None)[0][0])
         m = int(min(12, max(1, round(slope))))
     ref = max(ev(lo)[1], ev(hi)[1])
-    return float(brentq(make(m), lo, hi, maxiter=200, **tol))
+    return float(brentq(make(m), lo, hi, maxiter=200, **tol)), m
 
 
-def _refine_minimum(system: MultiCuspSystem, a: float, b: float, mid: float | None = None) -> float:
+def _refine_minimum(system: MultiCuspSystem, a: float, b: float, mid: float | None = None, deflate=()) -> float:
     """Minimum of log|det| in [a, b] by golden-section search to ~1e-14 relative.
 
     Near an eigenvalue of multiplicity m, log|det A| ~ m log|R - R0| + smooth, a
     logarithmic spike that parabolic steps fit badly (and library minimisers stop at a
     relative tolerance of sqrt(machine eps)); golden section only needs unimodality.
+    ``deflate`` lists known roots (r, m) whose spikes m log|R - r| are removed first.
     """
-    f = lambda R: system.log_det(R)[1]  # noqa: E731
+
+    def f(R: float) -> float:
+        v = system.log_det(R)[1]
+        for r, m in deflate:
+            v -= m * math.log(max(abs(R - r), 1e-300))
+        return v
+
     g = 0.5 * (3.0 - math.sqrt(5.0))
     x = mid if mid is not None and a < mid < b else a + g * (b - a)
     fx = f(x)
@@ -176,7 +184,7 @@ def _root_near(system: MultiCuspSystem, R: float, width: float, odd: bool) -> fl
         a, b = R - w, R + w
         if odd:
             if system.log_det(a)[0] * system.log_det(b)[0] < 0:
-                return _refine_sign_change(system, a, b)
+                return _refine_sign_change(system, a, b)[0]
         else:
             r = _refine_minimum(system, a, b, R)
             if a + 1e-3 * w < r < b - 1e-3 * w:
@@ -421,11 +429,23 @@ def search_window_general(
     raw: list[tuple[float, str, int]] = []
     for k, sysk in enumerate(systems):
         sg, lg = signs[k], logs[k]
+        roots: list[tuple[float, int]] = []
         for i in np.nonzero(sg[:-1] * sg[1:] < 0)[0]:
-            raw.append((_refine_sign_change(sysk, float(grid[i]), float(grid[i + 1])), "sign change", k))
+            r, mr = _refine_sign_change(sysk, float(grid[i]), float(grid[i + 1]))
+            roots.append((r, mr))
+            raw.append((r, "sign change", k))
+        # log|det| with the spikes of the sign-change roots removed: its interior local
+        # minima mark roots of even multiplicity, also one hiding next to a sign change
+        D = lg.copy()
+        for r, mr in roots:
+            D -= mr * np.log(np.maximum(np.abs(grid - r), 1e-300))
         for i in range(1, grid.size - 1):
-            if lg[i] < lg[i - 1] and lg[i] < lg[i + 1] and sg[i - 1] == sg[i] == sg[i + 1]:
-                Rm = _refine_minimum(sysk, float(grid[i - 1]), float(grid[i + 1]), float(grid[i]))
+            if not (D[i] < D[i - 1] and D[i] < D[i + 1]):
+                continue
+            a, b = float(grid[i - 1]), float(grid[i + 1])
+            near = [(r, mr) for r, mr in roots if grid[max(i - 2, 0)] <= r <= grid[min(i + 2, grid.size - 1)]]
+            Rm = _refine_minimum(sysk, a, b, float(grid[i]), deflate=near)
+            if all(abs(Rm - r) > 1e-9 * max(1.0, r) for r, _ in near):
                 raw.append((Rm, "log|det| minimum", k))
     raw.sort()
     clusters: list[list[tuple[float, str, int]]] = []
