@@ -113,6 +113,10 @@ class ScanSettings:
     moment_nodes : float
         Node factor of the compact quadrature used for moments and histogram (1.0 = the
         norm's resolution).
+    allow_incomplete : bool
+        Scan a form whose stored coefficients do not cover the expansions at the lowest
+        heights (the missing terms then enter every bound through the coefficient envelope
+        and the guarantee is usually much weaker); by default such a form is refused.
     """
 
     Y_c: float = 1.0
@@ -124,6 +128,7 @@ class ScanSettings:
     eval_tol: float = 1e-12
     hist_bins: int = 60
     moment_nodes: float = 0.5
+    allow_incomplete: bool = False
 
     def __post_init__(self) -> None:
         if not (isinstance(self.Y_c, (int, float)) and math.isfinite(self.Y_c) and self.Y_c >= 1.0):
@@ -818,6 +823,18 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
     notes: list[str] = list(norm.notes)
     if st.Y_c <= Y0:
         raise InputError(f"Y_c={st.Y_c} must exceed the fundamental-domain height {Y0:.4g}")
+    # the grid guarantee needs every coefficient the expansions use at the lowest heights
+    n_need = ev.terms_needed(Y0 * math.exp(-0.05 / max(1.0, math.sqrt(ev.lam))))
+    tab = ev.ensure_terms(n_need)
+    gaps = [j for j in range(G.n_cusps) if tab.missing_mask(j, n_need).any()]
+    if gaps:
+        first = int(np.nonzero(tab.missing_mask(gaps[0], n_need))[0][0]) + 1
+        msg = (f"form at level {form.level}, R={form.R:.10g} stores {tab.n_stored} coefficients per cusp; the scan "
+               f"needs c(n) for n <= {n_need} and c({first}) (cusp {gaps[0]}) is neither stored nor given by "
+               f"the Hecke relations; store at least {n_need} coefficients")
+        if not st.allow_incomplete:
+            raise InputError(msg + " (or pass allow_incomplete=True to bound the missing terms instead)")
+        notes.append(msg + "; missing terms are bounded by the coefficient envelope")
 
     # ---- cusp regions
     pmax, py = leading_profile_peak(ev.R, st.Y_c)

@@ -204,6 +204,16 @@ def test_scan_result_round_trip(scans):
     assert back == r
 
 
+def test_scan_refuses_too_few_coefficients(level1_form):
+    from dataclasses import replace
+
+    f = level1_form(19.42)
+    # c(5) and c(7) cannot be obtained from c(1..3)
+    short = replace(f, coeffs=f.coeffs[:, :3].copy(), coeff_errors=f.coeff_errors[:, :3].copy())
+    with pytest.raises(InputError, match="store at least"):
+        scan_form(short)
+
+
 def test_bad_scan_settings():
     with pytest.raises(InputError):
         ScanSettings(Y_c=0.9)
