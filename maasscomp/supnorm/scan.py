@@ -815,12 +815,9 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
     st = settings or ScanSettings()
     t0 = time.perf_counter()
     ev = evaluator if evaluator is not None else FormEvaluator(form, tol=st.eval_tol)
-    if norm is None:
-        norm = l2_norm(form, evaluator=ev)
-    scale = norm.scale
     G = ev.group
     Y0 = G.fundamental_domain_height
-    notes: list[str] = list(norm.notes)
+    notes: list[str] = []
     if st.Y_c <= Y0:
         raise InputError(f"Y_c={st.Y_c} must exceed the fundamental-domain height {Y0:.4g}")
     # the grid guarantee needs every coefficient the expansions use at the lowest heights
@@ -835,6 +832,10 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
         if not st.allow_incomplete:
             raise InputError(msg + " (or pass allow_incomplete=True to bound the missing terms instead)")
         notes.append(msg + "; missing terms are bounded by the coefficient envelope")
+    if norm is None:
+        norm = l2_norm(form, evaluator=ev)
+    scale = norm.scale
+    notes = list(norm.notes) + notes
 
     # ---- cusp regions
     pmax, py = leading_profile_peak(ev.R, st.Y_c)
