@@ -19,12 +19,13 @@ plot functions (module ``figures``), add_commands (module ``commands``: ``scan``
 
 from maasscomp.supnorm.evaluate import Evaluation, FormEvaluator, evaluate
 from maasscomp.supnorm.norm import NormResult, compact_quadrature, kt2_tail, l2_norm, rankin_selberg_norm2
-from maasscomp.supnorm.scan import RegionPeak, ScanResult, ScanSettings, leading_profile_peak, scan_form
+from maasscomp.supnorm.scan import (RegionPeak, ScanResult, ScanSettings, check_coefficients, leading_profile_peak,
+                                    scan_form)
 from maasscomp.supnorm.batch import load_norm, load_scans, scan_store
 
 __all__ = [
     "evaluate", "FormEvaluator", "Evaluation",
     "l2_norm", "NormResult", "compact_quadrature", "kt2_tail", "rankin_selberg_norm2",
-    "scan_form", "ScanSettings", "ScanResult", "RegionPeak", "leading_profile_peak",
+    "scan_form", "ScanSettings", "ScanResult", "RegionPeak", "leading_profile_peak", "check_coefficients",
     "scan_store", "load_scans", "load_norm",
 ]

@@ -17,7 +17,8 @@ from typing import Callable, Iterable
 from maasscomp.errors import InputError, StoreError
 from maasscomp.supnorm.evaluate import FormEvaluator
 from maasscomp.supnorm.norm import NormResult, l2_norm
-from maasscomp.supnorm.scan import NORM_ATTACHMENT, SCAN_ATTACHMENT, ScanResult, ScanSettings, scan_form
+from maasscomp.supnorm.scan import (NORM_ATTACHMENT, SCAN_ATTACHMENT, ScanResult, ScanSettings,
+                                    check_coefficients, scan_form)
 
 
 def select_keys(store, keys: Iterable[str] | None = None, level: int | None = None,
@@ -42,7 +43,8 @@ def select_keys(store, keys: Iterable[str] | None = None, level: int | None = No
 def scan_store(path: str | os.PathLike, *, keys: Iterable[str] | None = None, level: int | None = None,
                R_min: float | None = None, R_max: float | None = None,
                settings: ScanSettings | None = None, overwrite: bool = False,
-               progress: Callable[[str, ScanResult, bool], None] | None = None) -> list[ScanResult]:
+               progress: Callable[[str, ScanResult, bool], None] | None = None,
+               skipped: list[tuple[str, str]] | None = None) -> list[ScanResult]:
     """Normalise and scan the selected forms of a store; write the results into the store.
 
     Parameters
@@ -57,6 +59,10 @@ def scan_store(path: str | os.PathLike, *, keys: Iterable[str] | None = None, le
         stored result is returned).
     progress : callable(key, result, reused), optional
         Called after each form.
+    skipped : list, optional
+        When given, forms that cannot be scanned (InputError, e.g. too few stored
+        coefficients) are appended as (key, message) and the batch goes on; otherwise the
+        error is raised.
 
     Returns
     -------
@@ -77,9 +83,16 @@ def scan_store(path: str | os.PathLike, *, keys: Iterable[str] | None = None, le
                         progress(key, old, True)
                     continue
             form = store.get(key)
-            ev = FormEvaluator(form, tol=st.eval_tol)
-            norm = l2_norm(form, evaluator=ev)
-            res = scan_form(form, settings=st, norm=norm, form_key=key, evaluator=ev)
+            try:
+                ev = FormEvaluator(form, tol=st.eval_tol)
+                check_coefficients(ev, st)
+                norm = l2_norm(form, evaluator=ev)
+                res = scan_form(form, settings=st, norm=norm, form_key=key, evaluator=ev)
+            except InputError as exc:
+                if skipped is None:
+                    raise
+                skipped.append((key, str(exc)))
+                continue
             with store.transaction():
                 store.put_attachment(key, NORM_ATTACHMENT, norm.as_dict())
                 store.put_attachment(key, SCAN_ATTACHMENT, res.as_dict())

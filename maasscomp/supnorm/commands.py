@@ -48,16 +48,22 @@ def cmd_scan(args: argparse.Namespace) -> int:
         print(f"{key:<34} R={res.R:<14.10g} cusp {cp.value:9.5f}  compact {res.compact_peak.value:9.5f}  "
               f"max in {res.global_region:<8} {'(stored)' if reused else f'{res.elapsed:6.1f} s'}", flush=True)
 
+    skipped: list[tuple[str, str]] = []
     results = scan_store(args.store, keys=args.key or None, level=args.level, R_min=args.R_min, R_max=args.R_max,
-                         settings=settings, overwrite=args.overwrite, progress=show)
-    if not results:
+                         settings=settings, overwrite=args.overwrite, progress=show, skipped=skipped)
+    for key, msg in skipped:
+        print(f"maasscomp: skipped {key}: {msg}", file=sys.stderr)
+    if not results and not skipped:
         raise InputError(f"no forms in {args.store} match the selection")
-    if args.table:
+    if args.table and results:
         write_csv(table_rows(results), args.table)
     if not args.quiet:
         n_cusp = sum(r.global_region != "compact" for r in results)
         print(f"{len(results)} forms scanned; global maximum in a cusp for {n_cusp}; results stored in {args.store}"
               + (f"; table {args.table}" if args.table else ""))
+    if skipped:
+        print(f"maasscomp: {len(skipped)} form(s) could not be scanned (see above)", file=sys.stderr)
+        return 1
     return 0
 
 

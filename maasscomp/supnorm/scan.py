@@ -794,6 +794,30 @@ def _cusp_top(ev: FormEvaluator, cusp: int, Y_c: float, peak_guess: float, top_r
         y *= 1.1
 
 
+def check_coefficients(ev: FormEvaluator, settings: ScanSettings) -> list[str]:
+    """Check that the stored coefficients cover the expansions at the lowest heights.
+
+    The grid guarantee needs every c_j(n) up to the number of terms used at the bottom of the
+    compact slabs (stored or given by the Hecke relations). Raises InputError naming how many
+    coefficients to store, unless ``settings.allow_incomplete``; then returns a note.
+    """
+    G = ev.group
+    Y0 = G.fundamental_domain_height
+    n_need = ev.terms_needed(Y0 * math.exp(-0.05 / max(1.0, math.sqrt(ev.lam))))
+    tab = ev.ensure_terms(n_need)
+    gaps = [j for j in range(G.n_cusps) if tab.missing_mask(j, n_need).any()]
+    if not gaps:
+        return []
+    form = ev.form
+    first = int(np.nonzero(tab.missing_mask(gaps[0], n_need))[0][0]) + 1
+    msg = (f"form at level {form.level}, R={form.R:.10g} stores {tab.n_stored} coefficients per cusp; the scan "
+           f"needs c(n) for n <= {n_need} and c({first}) (cusp {gaps[0]}) is neither stored nor given by "
+           f"the Hecke relations; store at least {n_need} coefficients")
+    if not settings.allow_incomplete:
+        raise InputError(msg + " (or pass allow_incomplete=True to bound the missing terms instead)")
+    return [msg + "; missing terms are bounded by the coefficient envelope"]
+
+
 def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | None = None,
               form_key: str = "", evaluator: FormEvaluator | None = None) -> ScanResult:
     """Scan one form: peaks of |f|/||f|| in every cusp region and on the compact part.
@@ -820,18 +844,7 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
     notes: list[str] = []
     if st.Y_c <= Y0:
         raise InputError(f"Y_c={st.Y_c} must exceed the fundamental-domain height {Y0:.4g}")
-    # the grid guarantee needs every coefficient the expansions use at the lowest heights
-    n_need = ev.terms_needed(Y0 * math.exp(-0.05 / max(1.0, math.sqrt(ev.lam))))
-    tab = ev.ensure_terms(n_need)
-    gaps = [j for j in range(G.n_cusps) if tab.missing_mask(j, n_need).any()]
-    if gaps:
-        first = int(np.nonzero(tab.missing_mask(gaps[0], n_need))[0][0]) + 1
-        msg = (f"form at level {form.level}, R={form.R:.10g} stores {tab.n_stored} coefficients per cusp; the scan "
-               f"needs c(n) for n <= {n_need} and c({first}) (cusp {gaps[0]}) is neither stored nor given by "
-               f"the Hecke relations; store at least {n_need} coefficients")
-        if not st.allow_incomplete:
-            raise InputError(msg + " (or pass allow_incomplete=True to bound the missing terms instead)")
-        notes.append(msg + "; missing terms are bounded by the coefficient envelope")
+    notes += check_coefficients(ev, st)
     if norm is None:
         norm = l2_norm(form, evaluator=ev)
     scale = norm.scale

@@ -71,6 +71,22 @@ def test_scan_user_errors(small_store, capsys, argv_tail, needle):
     assert len(err) == 1 and needle in err[0]
 
 
+def test_scan_skips_forms_with_too_few_coefficients(tmp_path, forms_by_level, capsys):
+    """A form that cannot be scanned is reported and skipped; the exit code is 1."""
+    from dataclasses import replace
+
+    good = forms_by_level[1][0]
+    bad = replace(forms_by_level[1][1], coeffs=forms_by_level[1][1].coeffs[:, :3].copy(),
+                  coeff_errors=forms_by_level[1][1].coeff_errors[:, :3].copy())
+    path = tmp_path / "mixed.h5"
+    with Store.open(path, "w") as st:
+        st.add_forms([good, bad])
+    assert main(["scan", str(path)]) == 1
+    cap = capsys.readouterr()
+    assert "1 forms scanned" in cap.out and "store at least" in cap.err
+    assert len(load_scans(path)) == 1
+
+
 def test_figures_need_a_scan(small_store, tmp_path, capsys):
     assert main(["figures", str(small_store), str(tmp_path / "f")]) == 2
     assert "scan" in capsys.readouterr().err
