@@ -7,18 +7,22 @@ d | N/M, of a newform g of level M share R and parity (Atkin & Lehner, Math. Ann
 multiplicity does not change sign, so the scan of the multi-cusp system
 (:class:`maasscomp.hejhal.multicusp.MultiCuspSystem`) looks at both
 
-* sign changes of det A(R) (refined by Brent's method), and
-* interior local minima of log|det A(R)| without a sign change (refined by golden-section
-  search),
+* sign changes of det A(R) (refined by Brent's method, restarted on |det|^(1/m) once the
+  multiplicity m of a slowly converging root has been estimated), and
+* interior local minima of log|det A(R)| after the spikes of the sign-change roots are
+  removed (an even-multiplicity root next to an odd one), refined by golden-section search,
 
-at two heights Y1 and Y2 (a spurious root of the truncated system depends on Y and can
-mask a true eigenvalue in the same grid interval at one height only), on a grid whose step is a fraction of the mean spacing from Weyl's law (formulas ref. §2).
-Each candidate R is then tested with the singular value decomposition:
+at two heights Y1 and Y2 evaluated at the same grid points (a spurious root of the
+truncated system depends on Y and can mask a true eigenvalue in the same grid interval at
+one height only), on a grid whose step is a fraction of the mean spacing from Weyl's law
+(formulas ref. §2). Each candidate R is then tested with the singular value decomposition
+of the equilibrated matrix (:meth:`MultiCuspSystem.null_space`):
 
 1. multiplicity m = number of relative singular values below ``mult_tol`` (at an
    eigenvalue the m smallest ones are at the truncation level ~1e-15 and grow like
    |R - R_true|; the next one is of the order of the distance to the next eigenvalue);
-2. the root (or minimum) at the other height agrees and has the same multiplicity;
+2. the other height is singular at R as well (a quick test that removes most spurious
+   roots), its own root (or minimum) agrees within ``R_tol`` and has the same multiplicity;
 3. the null spaces at both heights span the same coefficient subspace (principal angles of
    the well-determined coefficients, Björck & Golub, Math. Comp. 27 (1973) 579-594);
 4. at a low storage height the eigenspace is recomputed and a basis chosen: Hecke
@@ -54,9 +58,10 @@ from maasscomp.spectrum.hecke import hecke_residual
 from maasscomp.spectrum.search import Candidate, SearchResult, SearchSettings, mean_spacing
 
 #: Relative singular values (equilibrated matrix, over the largest) below this count as
-#: zero. Measured: at eigenvalues the small singular values are 1e-17..3e-15 for levels
-#: 1, 4, 8, 9, 12; they grow like |dR| (about 1e-10..5e-9 at dR = 1e-9), and the first
-#: non-zero one is above 1e-4 in every scanned window (see the report of issue 3).
+#: zero. Measured on levels 1, 4, 8, 9, 12, 25 (all eigenspaces with R <= 10): at the
+#: refined eigenvalue the m small ones lie between 1e-17 and 3e-13; they grow like |dR|
+#: (1e-10..5e-9 at dR = 1e-9); the first non-null one is above 1e-3 (smallest seen
+#: 9.6e-4, at two eigenvalues 0.0036 apart).
 MULTIPLICITY_TOL = 1e-8
 
 #: Relative coefficient accuracy below which an entry counts as well determined
