@@ -31,7 +31,7 @@ from scipy.optimize import brentq, minimize_scalar
 
 from maasscomp.errors import InputError
 from maasscomp.hejhal.kinterp import KInterpolator
-from maasscomp.hejhal.params import choose_params
+from maasscomp.hejhal.params import choose_params, truncation_M0
 from maasscomp.hejhal.system import HejhalSystem, SampleSet, normalised_solution, slogdet
 from maasscomp.hejhal.types import SolverParams, SymmetryClass
 from maasscomp.spectrum.classify import classify
@@ -64,8 +64,9 @@ class SearchSettings:
     R_tol : float
         Largest accepted secant step of the two-height difference at the refined root.
     n_coeffs : int
-        Number of coefficients stored per form (the final solve uses a height low enough
-        for these to be accurate).
+        Least number of coefficients stored per form; more are stored when evaluating the
+        form anywhere in the fundamental domain needs them (the final solve uses a height
+        low enough for all of them to be accurate).
     hecke_nmax : int
         Range of the Hecke check stored with each form.
     """
@@ -193,13 +194,20 @@ def _hidden_pairs(det: Callable[[float], tuple[float, float]], grid: np.ndarray,
     return out
 
 
-def _store_height(n_coeffs: int, p1: SolverParams) -> float:
-    """A height whose truncation M0 is about 3 n_coeffs.
+def _store_count(group, R: float, settings: SearchSettings) -> int:
+    """Coefficients to store: at least ``n_coeffs``, and enough to evaluate the form to the
+    truncation target anywhere in the fundamental domain (heights >= Y0 in every cusp)."""
+    return max(settings.n_coeffs, truncation_M0(R, group.fundamental_domain_height, settings.eps))
 
-    Coefficients up to about M0/3 are accurate to near the truncation target in double
-    precision (formulas ref. §1.3); M0 grows like 1/Y at fixed R.
+
+def _store_height(R: float, m: int, p1: SolverParams) -> float:
+    """A height at which a(1..m) are all determined accurately.
+
+    Row n of the system divides by Kt(2 pi n Y), which decays exponentially beyond the
+    turning point 2 pi n Y = R (DLMF 10.40.2 / formulas ref. §3.2); a(n) stays accurate
+    while 2 pi n Y <= R + 2 R^{1/3} + 6 (measured on PSL(2,Z) at R = 10, 300, 1000).
     """
-    return min(p1.Y, p1.Y * p1.M0 / (3.0 * n_coeffs))
+    return min(p1.Y, (R + 2.0 * R ** (1.0 / 3.0) + 6.0) / (2.0 * math.pi * m))
 
 
 def _check_window(R_min: float, R_max: float) -> None:
@@ -356,12 +364,13 @@ def _confirm(group, symmetry: SymmetryClass, Rc: float, sys1: HejhalSystem, sys2
 
     # final solve at a height giving n_coeffs accurate coefficients, and a second height
     # for their error estimate
-    Ys = _store_height(settings.n_coeffs, sys1.params)
+    m = _store_count(group, Rc, settings)
+    Ys = _store_height(Rc, m, sys1.params)
     ps_a = choose_params(Rc + 0.5, Ys, settings.eps)
     ps_b = choose_params(Rc + 0.5, 0.9 * Ys, settings.eps)
     ca = HejhalSystem(group, symmetry, ps_a).solve(Rc)
     cb = HejhalSystem(group, symmetry, ps_b).solve(Rc)
-    m = min(settings.n_coeffs, ca.size, cb.size)
+    m = min(m, ca.size, cb.size)
     coeffs = ca[:m]
     errs = np.abs(ca[:m] - cb[:m])
     hres = hecke_residual(coeffs, group.level, min(settings.hecke_nmax, m))
