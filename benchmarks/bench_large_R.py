@@ -6,7 +6,8 @@ solve cost growing like R^3 once M0 is large. Each locate runs in a fresh subpro
 that its peak resident memory (ru_maxrss) is its own; the scan of the form found is timed
 too when the sup-norm scanner is available.
 
-Run: ``python benchmarks/bench_large_R.py [R0 ...]`` (default 1000; add 10000 explicitly).
+Run: ``python benchmarks/bench_large_R.py [R0 ...]`` (default 1000; add 9999 explicitly: the
+K-Bessel routine covers R <= 10^4 and the search window reaches a little above R0).
 """
 
 from __future__ import annotations
