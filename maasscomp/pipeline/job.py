@@ -211,8 +211,8 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
     show_progress : bool, optional
         Progress bar on stderr (default: not quiet).
     executor : optional
-        An executor to use instead of the one named in the config (already entered or
-        not; it is entered here if it has not been).
+        An entered executor to use instead of the one named in the config (the caller
+        starts and stops it, e.g. to share one cluster between jobs).
     echo : callable(str), optional
         Where messages go (default: print to stdout unless quiet).
 
