@@ -193,7 +193,7 @@ def test_functional_equation_newforms_level_N(level):
     g = gamma0(level)
     primes = [p for p in (2, 3, 5, 7, 11) if level % p == 0]
     n_checked = 0
-    settings = SearchSettings(n_coeffs=500)
+    settings = SearchSettings(n_coeffs=700)
     for parity in ("even", "odd"):
         for signs in np.ndindex(*([2] * len(primes))):
             al = tuple((p, 1 if s == 0 else -1) for p, s in zip(primes, signs))
@@ -206,8 +206,14 @@ def test_functional_equation_newforms_level_N(level):
                 assert chk.residual <= 1e-8, (level, parity, al, f.R, chk)
                 assert chk.sign == chk.predicted_sign, (level, parity, al, f.R, chk)
                 bad = functional_equation_check(f.R + 1e-6, a, parity, level)
-                assert bad.residual > 1e-6
-                r_plus, _ = sym2_functional_equation_residual(f.R, a, level)
-                assert r_plus < 1e-8
+                # small R reacts less to a shift of R (measured 3e-7 at R = 2.5, level 5)
+                assert bad.residual > max(1e-7, 1e3 * chk.residual)
+                # sym^2: conductor N^2, root number +1 (derived, formulas ref. §5.2)
+                s2 = (0.7 + 0j, 0.3 + 2j)
+                # larger smoothing parameters: conductor N^2 makes A = (8, 16) need ~800 terms
+                r_plus, r_minus = sym2_functional_equation_residual(f.R, a, level, s2, A=(16.0, 30.0))
+                assert r_plus < 1e-8 and r_minus > 1e-3
+                print(f"level {level} {parity} {al} R={f.R:.10f}: FE residual {chk.residual:.1e} "
+                      f"sign {chk.sign:+d}; R+1e-6: {bad.residual:.1e}; sym2 {r_plus:.1e}")
                 n_checked += 1
     assert n_checked >= 1
