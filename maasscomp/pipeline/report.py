@@ -283,12 +283,14 @@ def _peaks_section(st, folder: Path, rep: Report) -> list[str]:
         return ["No sup-norm scan statistics: the store holds no scans (set `[scan] enabled = "
                 "true` in the config and rerun it)."]
     _write_csv(folder / "peaks.csv", PEAK_COLUMNS, rows)
-    try:
+    try:  # the scanner's own figures and tables, in peaks/
         from maasscomp.supnorm.figures import make_figures
-    except ImportError:
-        figs = _peak_figures(rows, folder)
-    else:  # the scanner's own figures and tables, in peaks/
+
         made = make_figures(st.path, folder / "peaks")
+    except (ImportError, MaasscompError) as exc:
+        rep.notes.append(f"scanner figures not drawn ({exc}); drew the report's own")
+        figs = _peak_figures(rows, folder)
+    else:
         figs = [f"peaks/{Path(p).name}" for p in made if str(p).endswith(".png")]
         rep.files += [f"peaks/{Path(p).name}" for p in made if not str(p).endswith(".png")]
     rep.files += ["peaks.csv"] + figs
