@@ -197,7 +197,9 @@ def _hidden_pairs(det: Callable[[float], tuple[float, float]], grid: np.ndarray,
 def _store_count(group, R: float, settings: SearchSettings) -> int:
     """Coefficients to store: at least ``n_coeffs``, and enough to evaluate the form to the
     truncation target anywhere in the fundamental domain (heights >= Y0 in every cusp)."""
-    return max(settings.n_coeffs, truncation_M0(R, group.fundamental_domain_height, settings.eps))
+    # a few per cent of margin: the evaluator rounds heights down and bounds whole tails
+    need = truncation_M0(R, 0.97 * group.fundamental_domain_height, settings.eps)
+    return max(settings.n_coeffs, int(math.ceil(1.03 * need)))
 
 
 def _store_height(R: float, m: int, p1: SolverParams) -> float:
