@@ -19,7 +19,8 @@ from maasscomp.store import Store
 from tests.pipeline.pipeline_helpers import (REPO, assert_same_content, published_level1_R,
                                              store_content, write_config)
 
-WINDOW = (9.3, 12.4)  # 7 chunks: [9.3, 9.5], [9.5, 10], ..., [12, 12.4]
+WINDOW = (9.3, 12.4)  # 13 chunks: [9.3, 9.5], [9.5, 9.75], ..., [12.25, 12.4]
+N_TASKS = 13
 
 
 def _done(path) -> int:
@@ -34,11 +35,11 @@ def test_sigkill_then_rerun_gives_the_uninterrupted_store(tmp_path, monkeypatch)
     ref_dir = tmp_path / "ref"
     ref_dir.mkdir()
     ref_cfg = load(write_config(ref_dir / "c.toml", output=str(ref_dir / "s.h5"), R=WINDOW,
-                                chunk_width=0.5, name="killme"))
+                                chunk_width=0.25, name="killme"))
     ref = run_job(ref_cfg, quiet=True)
-    assert ref.ok and ref.tasks_total == 7
+    assert ref.ok and ref.tasks_total == N_TASKS
 
-    cfg_path = write_config(tmp_path / "c.toml", output="s.h5", R=WINDOW, chunk_width=0.5,
+    cfg_path = write_config(tmp_path / "c.toml", output="s.h5", R=WINDOW, chunk_width=0.25,
                             name="killme")
     store = tmp_path / "s.h5"
     env = dict(os.environ, PYTHONPATH=str(REPO) + os.pathsep + os.environ.get("PYTHONPATH", ""))
@@ -50,13 +51,13 @@ def test_sigkill_then_rerun_gives_the_uninterrupted_store(tmp_path, monkeypatch)
             assert proc.poll() is None, proc.communicate()
             assert time.monotonic() < deadline, "the sweep made no progress"
             time.sleep(0.02)
-        time.sleep(random.uniform(0.0, 0.3))  # kill at an arbitrary point of the next task
+        time.sleep(random.uniform(0.0, 0.2))  # kill at an arbitrary point of the next task
         os.kill(proc.pid, signal.SIGKILL)
     finally:
         proc.wait()
     assert proc.returncode == -signal.SIGKILL
     n_before = _done(store)
-    assert 2 <= n_before < 7, "the kill came after the sweep had finished"
+    assert 2 <= n_before < N_TASKS, "the kill came after the sweep had finished"
 
     with h5py.File(store, "r") as h:  # a plain HDF5 reader opens it cleanly
         assert h.attrs["format"] == "maasscomp-store"
@@ -64,13 +65,13 @@ def test_sigkill_then_rerun_gives_the_uninterrupted_store(tmp_path, monkeypatch)
     monkeypatch.chdir(tmp_path)  # the config's output path is relative to the working directory
     resumed = run_job(load(cfg_path), quiet=True)
     assert resumed.ok
-    assert resumed.tasks_skipped == n_before and resumed.tasks_run == 7 - n_before
+    assert resumed.tasks_skipped == n_before and resumed.tasks_run == N_TASKS - n_before
 
     assert_same_content(store_content(ref_cfg.job.output), store_content(store))
     with Store.open(ref_cfg.job.output, "r") as st:
         ref_done = set(st.done_tasks("killme"))
     with Store.open(store, "r") as st:
-        assert set(st.done_tasks("killme")) == ref_done and len(ref_done) == 7
+        assert set(st.done_tasks("killme")) == ref_done and len(ref_done) == N_TASKS
         Rs = sorted(st.get(k).R for k in st.keys())
     # the published odd forms of the window, each exactly once
     # (data/reference/maass_level1_published.csv: F. Chamizo's table; see the file header)
