@@ -560,6 +560,9 @@ def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: 
     Xb = _real_rows(Cb, good_a)
     for idx, (w, eig, lam) in enumerate(members):
         coeffs = np.tensordot(w, Ca, axes=(0, 0))
+        # exact normalisation: c_inf(1) = 1 (eigenforms) or 1 at the echelon pivot
+        piv = int(np.argmax(np.abs(coeffs[0].real) > 1e-8 * np.max(np.abs(coeffs[0].real))))
+        coeffs = coeffs / coeffs[0, piv].real
         target = _real_rows(coeffs[None], good_a)[:, 0]
         x, *_ = np.linalg.lstsq(Xb, target, rcond=None)
         coeffs_b = np.tensordot(x, Cb, axes=(0, 0))

@@ -87,6 +87,22 @@ def test_level8_old_spectrum_is_the_level4_spectrum(spectra, parity):
             assert all(f.is_new for f in spectra[(8, parity)].forms if f.R == R)
 
 
+@pytest.mark.parametrize("parity", ["even", "odd"])
+def test_level12_old_spectrum_from_levels_4_and_3(spectra, parity):
+    """d(12/M) = 2 d(4/M) for M | 4, so an eigenvalue of multiplicity m at level 4 has
+    multiplicity 2m at level 12; a level-3 newform (multiplicity d(3) = 2 at level 9) has
+    d(4) = 3 oldforms at level 12 (Atkin & Lehner 1970)."""
+    twelve = _eigenvalues(search_window_general(gamma0(12), parity, *WINDOW))
+    four = _eigenvalues(spectra[(4, parity)])
+    nine = _eigenvalues(spectra[(9, parity)])
+    for R, m in four.items():
+        assert _lookup(twelve, R) == 2 * m, (R, m)
+    level3 = [R for R, m in nine.items() if m == 2]
+    assert level3
+    for R in level3:
+        assert _lookup(twelve, R) == 3, R
+
+
 def test_level9_spectrum_is_symmetric_under_the_twist_mod_3(spectra):
     even = _eigenvalues(spectra[(9, "even")])
     odd = _eigenvalues(spectra[(9, "odd")])
