@@ -76,6 +76,7 @@ class Form:
         """lambda = 1/4 + R^2."""
         return 0.25 + self.R * self.R
 
-    def coefficient(self, n: int, cusp: int = 0) -> float:
-        """c_cusp(n) for 1 <= n <= M."""
-        return float(self.coeffs[cusp, n - 1])
+    def coefficient(self, n: int, cusp: int = 0) -> float | complex:
+        """c_cusp(n) for 1 <= n <= M (complex when the stored array is complex)."""
+        v = self.coeffs[cusp, n - 1]
+        return complex(v) if np.iscomplexobj(self.coeffs) else float(v)

@@ -56,7 +56,9 @@ def hecke_residual(a: np.ndarray, level: int = 1, nmax: int = 30) -> float:
         max |a(mn) - a(m) a(n)| over coprime m, n >= 2 with mn <= nmax, and
         max |a(p^{k+1}) - a(p) a(p^k) + a(p^{k-1})| over p not dividing N, p^{k+1} <= nmax.
     """
-    a = np.asarray(a, dtype=float)
+    # at infinity the coefficients are real (parity-aligned expansion); a complex array
+    # from the multi-cusp solver carries them in its real part
+    a = np.real(np.asarray(a)).astype(float)
     nmax = min(int(nmax), a.size)
     A = lambda n: a[n - 1]  # noqa: E731
     worst = 0.0
@@ -82,7 +84,7 @@ def atkin_lehner_residual(a: np.ndarray, level: int, al_signs: dict[int, int], n
     a(p) = -eps_p / sqrt(p) (Atkin & Lehner, Math. Ann. 185 (1970), Thm 3, holomorphic
     analogue; the Maass version is common practice) and a(p^k) = a(p)^k.
     """
-    a = np.asarray(a, dtype=float)
+    a = np.real(np.asarray(a)).astype(float)
     nmax = min(int(nmax), a.size)
     worst = 0.0
     for p in _prime_factors(level):
