@@ -69,6 +69,10 @@ class SearchSettings:
         low enough for all of them to be accurate).
     hecke_nmax : int
         Range of the Hecke check stored with each form.
+    lfunction_check : bool
+        Check the functional equation of the standard L-function of every newform and store
+        the outcome in ``Form.extra["lfunction"]`` (skipped, with the reason, where it would
+        need too many coefficients; see :mod:`maasscomp.spectrum.extend`).
     """
 
     eps: float = 1e-14
@@ -81,6 +85,7 @@ class SearchSettings:
     R_tol: float = 1e-8
     n_coeffs: int = 60
     hecke_nmax: int = 30
+    lfunction_check: bool = True
 
     def __post_init__(self) -> None:
         if not (0 < self.eps < 1e-3):
@@ -411,6 +416,10 @@ def _confirm(group, symmetry: SymmetryClass, Rc: float, sys1: HejhalSystem, sys2
         is_new=is_new,
         extra=extra,
     )
+    if settings.lfunction_check and is_new:
+        from maasscomp.spectrum.extend import lfunction_label
+
+        extra["lfunction"] = lfunction_label(group, form)
     return True, "confirmed", form
 
 

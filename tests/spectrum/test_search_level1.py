@@ -64,3 +64,15 @@ def test_rejected_candidates_carry_reasons(level1_window_9_14):
         assert len(accepted) == len(res.forms)
         for c in res.candidates:
             assert c.reason
+
+
+def test_every_newform_passes_its_functional_equation(level1_window_9_14):
+    """Lambda(s) = eps Lambda(1 - s) for the standard L-function (common practice; the gamma
+    factors Gamma_R(s + delta +- iR) are the standard ones for Maass forms), with
+    eps = +1 for even and -1 for odd level-1 forms."""
+    for parity, res in level1_window_9_14.items():
+        for f in res.forms:
+            lab = f.extra["lfunction"]
+            assert lab["passed"], lab
+            assert lab["residual"] <= 1e-8
+            assert lab["sign"] == (1 if parity == "even" else -1)
