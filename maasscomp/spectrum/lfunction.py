@@ -156,10 +156,19 @@ class _Kernel:
     def weights(self, logn: np.ndarray) -> np.ndarray:
         """I(s, n)/gamma(s_ref) for n = exp(logn)."""
         out = np.empty(logn.size, dtype=complex)
+        nt = self.t.size
+        B = 32  # t is an arithmetic progression: exp(-i t_j ln) = exp(-i t_{32k} ln) exp(-i h r ln)
+        h = float(self.t[1] - self.t[0]) if nt > 1 else 0.0
+        nb = -(-nt // B)
+        g = np.zeros(nb * B, dtype=complex)
+        g[:nt] = self.g
+        g = g.reshape(nb, B)
         for i0 in range(0, logn.size, 2048):
             ln = logn[i0 : i0 + 2048]
-            E = np.exp(-np.outer(ln, 1j * self.t))
-            out[i0 : i0 + 2048] = np.exp(-self.base * ln) * (E @ self.g)
+            coarse = np.exp(-1j * np.outer(ln, self.t[0] + h * B * np.arange(nb)))  # (n, nb)
+            fine = np.exp(-1j * np.outer(ln, h * np.arange(B)))  # (n, B)
+            # sum_k coarse[:, k] * sum_r fine[:, r] g[k, r]
+            out[i0 : i0 + 2048] = np.exp(-self.base * ln) * np.sum(coarse * (fine @ g.T), axis=1)
         return out
 
 
