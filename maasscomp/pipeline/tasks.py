@@ -133,6 +133,11 @@ class SearchTask:
             from maasscomp.spectrum.search import search_window
 
             res = search_window(group, sym, c.search_lo, c.search_hi, settings, step=self.step)
+        return self.output_from(res)
+
+    def output_from(self, res) -> "SearchOutput":
+        """The forms and rejected candidates of a search result that belong to this chunk."""
+        c = self.chunk
         kept = tuple(f for f in res.forms if c.keeps(f.R))
         rejected = tuple((cand.R, cand.reason) for cand in res.candidates
                          if not cand.accepted and c.keeps(cand.R))
@@ -238,11 +243,10 @@ def execute(task) -> TaskOutcome:
 class TaskGroup:
     """Tasks run one after the other by one worker: the classes of one level and R chunk.
 
-    The classes of a level are searched on the same R grid, and the K-Bessel tables of
-    :mod:`maasscomp.special` are cached per R in each process, so a worker that searches
-    all classes of a chunk builds each table once (several times less work at levels
-    with many classes than spreading the classes over workers). Every task keeps its
-    own id, result and done mark.
+    The classes of a level are searched on the same R grid and share the sample points
+    and K-Bessel values (:func:`execute_group`), so one worker searching all classes of a
+    chunk does several times less work at levels with many classes than workers that
+    search one class each. Every task keeps its own id, result and done mark.
     """
 
     tasks: tuple
@@ -262,8 +266,41 @@ def group_tasks(tasks) -> list[TaskGroup]:
 
 
 def execute_group(group: TaskGroup) -> list[TaskOutcome]:
-    """Run the tasks of a group in this process (see :class:`TaskGroup`)."""
-    return [execute(t) for t in group.tasks]
+    """Run the tasks of a group in this process (see :class:`TaskGroup`).
+
+    The classes of a squarefree level are searched together by
+    :func:`maasscomp.spectrum.search.search_classes`, which shares the sample points and
+    K-Bessel values between them (its grid step depends on the level, not on the classes
+    searched, so the result of each class is the one a search of that class alone gives);
+    the time of the joint search is shared equally among the tasks.
+    """
+    import os
+    import socket
+
+    tasks = group.tasks
+    first = tasks[0]
+    joint = (len(tasks) > 1 and all(isinstance(t, SearchTask) and not t.general for t in tasks)
+             and len({(t.level, t.chunk, t.eps, t.n_coeffs, t.step) for t in tasks}) == 1)
+    if not joint:
+        return [execute(t) for t in tasks]
+    from maasscomp.groups import gamma0
+    from maasscomp.hejhal.types import SymmetryClass
+    from maasscomp.spectrum.search import SearchSettings, search_classes
+
+    t0 = time.perf_counter()
+    where = f"{socket.gethostname()}:{os.getpid()}"
+    syms = [SymmetryClass.from_label(t.label) for t in tasks]
+    c = first.chunk
+    try:
+        res = search_classes(gamma0(first.level), syms, c.search_lo, c.search_hi,
+                             SearchSettings(eps=first.eps, n_coeffs=first.n_coeffs), step=first.step)
+        outs = [t.output_from(res[sym]) for t, sym in zip(tasks, syms)]
+    except Exception as exc:  # noqa: BLE001 - reported per task, the sweep goes on
+        dt = (time.perf_counter() - t0) / len(tasks)
+        err, detail = f"{type(exc).__name__}: {exc}", traceback.format_exc()
+        return [TaskOutcome(t.task_id, False, None, err, detail, dt, where) for t in tasks]
+    dt = (time.perf_counter() - t0) / len(tasks)
+    return [TaskOutcome(t.task_id, True, o, "", "", dt, where) for t, o in zip(tasks, outs)]
 
 
 def parse_task_id(task_id: str) -> dict[str, Any] | None:

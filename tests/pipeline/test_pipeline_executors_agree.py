@@ -78,3 +78,23 @@ def test_results_arrive_as_completed(make):
         if ex.workers > 1:
             assert got == [0.0, 0.8]  # the slow task does not hold back the fast ones
         assert ex.map(_sleep_then_return, [0.0, 0.1, 0.0]) == [0.0, 0.1, 0.0]
+
+
+def test_joint_search_of_a_group_equals_searching_each_class():
+    from maasscomp.pipeline.tasks import SearchTask, TaskGroup, chunk_window, execute, execute_group
+    from maasscomp.spectrum.search import symmetry_classes
+    from maasscomp.groups import gamma0
+
+    (chunk,) = chunk_window(9.4, 9.7, 1.0)
+    tasks = tuple(SearchTask(2, s.label, chunk, 1e-14, 20, 0.05) for s in symmetry_classes(gamma0(2)))
+    joint = execute_group(TaskGroup(tasks))
+    alone = [execute(t) for t in tasks]
+    assert [o.task_id for o in joint] == [o.task_id for o in alone]
+    found = 0
+    for a, b in zip(joint, alone):
+        assert a.ok and b.ok
+        assert len(a.output.forms) == len(b.output.forms)
+        for f, g in zip(a.output.forms, b.output.forms):
+            assert abs(f.R - g.R) < 1e-10 and f.symmetry == g.symmetry
+            found += 1
+    assert found == 2  # the oldforms of R = 9.5337 from level 1, one per Atkin-Lehner sign
