@@ -169,7 +169,9 @@ def _refine(det: Callable[[float], tuple[float, float]], a: float, b: float) -> 
         s, ld = det(R)
         return s * math.exp(max(ld - ref, -700.0))
 
-    return float(brentq(g, a, b, xtol=1e-15, rtol=4 * np.finfo(float).eps, maxiter=200))
+    # the confirmation polishes the root with two-height secant steps on exact K values, so
+    # a relative 1e-12 here is plenty (and saves determinant evaluations at large R)
+    return float(brentq(g, a, b, xtol=1e-15, rtol=1e-12, maxiter=200))
 
 
 def _hidden_pairs(det: Callable[[float], tuple[float, float]], grid: np.ndarray, signs: np.ndarray,
@@ -190,7 +192,7 @@ def _hidden_pairs(det: Callable[[float], tuple[float, float]], grid: np.ndarray,
             continue
         a, b = float(grid[i - 1]), float(grid[i + 1])
         res = minimize_scalar(lambda R: det(R)[1], bounds=(a, b), method="bounded",
-                              options={"xatol": 1e-12 * max(1.0, b)})
+                              options={"xatol": 1e-6 * (b - a), "maxiter": 40})
         m = float(res.x)
         for p in (m, m - 1e-9 * (b - a), m + 1e-9 * (b - a)):
             if a < p < b and det(p)[0] != signs[i]:
