@@ -11,7 +11,8 @@ Each configuration runs the whole sweep into a fresh store (search, commits, all
 wall-clock. The reference for each speed-up is the same executor with one worker,
 measured in the same run. The overhead per task comes from running many no-op tasks
 (returning a result of the size of a search outcome) through each executor. Goal: a
-speed-up >= 1.7 on two cores. Fixed costs (starting Python and the workers, about two
+speed-up >= 1.7 on two cores. Every run uses one BLAS thread per process, so one worker
+means one core. Fixed costs (starting Python and the workers, about two
 seconds each) are included, so small sweeps show less. The load average and the CPU time
 of each run are printed: other processes on the machine lower the speed-up (CPU time /
 wall time shows how many cores a run really got), so compare numbers taken on an idle
@@ -87,6 +88,9 @@ def main() -> None:
 
     print(f"cores: {os.cpu_count()}, load average at start: {os.getloadavg()}")
     print(f"sweep: levels {args.levels!r}, R in [{args.rmin}, {args.rmax}], chunk width {args.chunk}")
+    # one BLAS thread per process, so that "1 worker" means one core (the matrices are
+    # small; loky gives each of two workers one thread on two cores anyway)
+    env = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
     times: dict[tuple[str, int], float] = {}
     n_tasks = 0
     forms = None
@@ -105,7 +109,7 @@ def main() -> None:
                     ru0 = resource.getrusage(resource.RUSAGE_CHILDREN)
                     t = time.perf_counter()
                     r = subprocess.run([sys.executable, "-m", "maasscomp", "run", str(cfg_path), "-q"],
-                                       capture_output=True, text=True)
+                                       capture_output=True, text=True, env=env)
                     wall = time.perf_counter() - t
                     ru1 = resource.getrusage(resource.RUSAGE_CHILDREN)
                     assert r.returncode == 0, r.stderr
