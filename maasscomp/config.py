@@ -77,6 +77,10 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
     ("search", "chunk_width", "float", 1.0,
      "Width in R of one search task. Chunk edges sit at multiples of this width, so "
      "changing a window keeps the finished chunks it shares with the old one."),
+    ("search", "recheck", "bool", True,
+     "After the search, compare the forms of every squarefree level searched in all its "
+     "classes with Weyl's law, window by window, and search each window flagged as "
+     "incomplete again with a 4x finer grid and other sample heights."),
     ("scan", "enabled", "bool", False,
      "After the search, scan every form of the config for the maximum of |f|/||f|| in each "
      "cusp region and on the compact part (one task per form; results stored beside the "
@@ -129,6 +133,7 @@ class SearchConfig:
     n_coeffs: int = 60
     step: float | None = None
     chunk_width: float = 1.0
+    recheck: bool = True
 
     @property
     def R_min(self) -> float:
@@ -464,6 +469,10 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     if not _is_real(chunk) or not math.isfinite(chunk) or chunk < 0.01:
         problems.append(f"[search] chunk_width={chunk!r} is not allowed; it must be a number >= 0.01")
 
+    recheck = srch.get("recheck", True)
+    if not isinstance(recheck, bool):
+        problems.append(f"[search] recheck={recheck!r} must be true or false")
+
     # [scan]
     scn = body["scan"]
     enabled = scn.get("enabled", False)
@@ -531,6 +540,7 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
             n_coeffs=int(n_coeffs),
             step=None if step is None else float(step),
             chunk_width=float(chunk),
+            recheck=bool(recheck),
         ),
         scan=ScanConfig(enabled=bool(enabled), Y_c=float(Y_c), rtol=float(rtol),
                         samples_per_wavelength=float(spw)),
@@ -615,8 +625,8 @@ def keys_markdown() -> str:
         "ones it was written with: "
         + ", ".join(f"`[{s}] {k}`" for s, k in sorted(_RESULT_KEYS)) + "; and, when both runs "
         "scan, " + ", ".join(f"`[{s}] {k}`" for s, k in sorted(_SCAN_RESULT_KEYS)) + ".",
-        "Everything else (levels, windows, classes, chunk width, executor, paths, turning",
-        "scans on) may change;",
+        "Everything else (levels, windows, classes, chunk width, recheck, executor, paths,",
+        "turning scans on) may change;",
         "new tasks are computed and forms already stored are not duplicated.",
         "",
     ]

@@ -54,6 +54,9 @@ class JobSummary:
     forms_per_class: dict[tuple[int, str], int] = field(default_factory=dict)
     new_per_class: dict[tuple[int, str], int] = field(default_factory=dict)
     rejected: int = 0
+    rechecks_run: int = 0
+    recheck_new: int = 0
+    weyl: list[str] = field(default_factory=list)
     scans_total: int = 0
     scans_skipped: int = 0
     scans_run: int = 0
@@ -81,6 +84,11 @@ class JobSummary:
         ]
         for (N, lab), n in sorted(self.forms_per_class.items()):
             lines.append(f"  {N:>5}  {lab:<14} {n:>6} {self.new_per_class.get((N, lab), 0):>5}")
+        if self.rechecks_run:
+            lines.append(f"windows searched again after Weyl's law flagged them: {self.rechecks_run} "
+                         f"({self.recheck_new} new forms)")
+        for w in self.weyl:
+            lines.append("  " + w)
         if self.scans_total:
             where = ", ".join(f"{n} {'in a cusp' if r == 'cusp' else 'on the compact part'}"
                               for r, n in sorted(self.scan_regions.items()))
@@ -284,6 +292,12 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
             bar.close()
         summary.stage_seconds["search"] = time.perf_counter() - ts
 
+        if cfg.search.recheck and not summary.aborted:
+            ts = time.perf_counter()
+            _recheck_stage(st, ex, cfg, plan, run_id, summary, show_progress, new_counts)
+            summary.stage_seconds["recheck"] = time.perf_counter() - ts
+        summary.weyl = _weyl_summary(st, cfg, plan, summary)
+
         if plan.scan and not summary.aborted:
             ts = time.perf_counter()
             _scan_stage(st, ex, cfg, plan, run_id, summary, show_progress)
@@ -305,40 +319,139 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
             logf.close()
 
 
+def _store_outputs(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str,
+                   new_counts: Counter) -> dict[str, int]:
+    """Store the forms of every successful outcome with its done mark, all in ONE
+    transaction; return the number of new forms per task id."""
+    good = [o for o in outcomes if o.ok]
+    added: dict[str, int] = {}
+    if not good:
+        return added
+    with st.transaction():
+        before = set(st.keys())
+        for o in good:
+            forms = o.output.forms
+            keys = st.add_forms(forms, on_duplicate="skip", config_text=cfg.source_text, run_id=run_id)
+            st.mark_task_done(o.task_id, keys, run_id=run_id)
+            n = 0
+            for f, k in zip(forms, keys):
+                if k not in before:
+                    before.add(k)
+                    new_counts[(f.level, f.symmetry.label)] += 1
+                    n += 1
+            added[o.task_id] = n
+    return added
+
+
+def _log_outcome(o: TaskOutcome, n_new: int) -> None:
+    if not o.ok:
+        log.error("task %s failed after %.1f s on %s: %s\n%s", o.task_id, o.seconds, o.worker,
+                  o.error, o.detail)
+        return
+    out = o.output
+    log.info("task %s: %d forms (%d new), %d rejected candidates, %.2f s on %s",
+             o.task_id, len(out.forms), n_new, len(out.rejected), o.seconds, o.worker)
+    for R, reason in out.rejected:
+        log.debug("  rejected candidate R=%.12f: %s", R, reason)
+
+
 def _commit(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str, summary: JobSummary,
             new_counts: Counter) -> None:
     """Store the forms of every finished task of a group with its done mark, in ONE
     transaction (a failed task gets no mark and is retried by the next run)."""
     t = time.perf_counter()
-    good = [o for o in outcomes if o.ok]
-    added: dict[str, int] = {}
-    if good:
-        with st.transaction():
-            for o in good:
-                before = len(st)
-                keys = st.add_forms(o.output.forms, on_duplicate="skip",
-                                    config_text=cfg.source_text, run_id=run_id)
-                st.mark_task_done(o.task_id, keys, run_id=run_id)
-                added[o.task_id] = len(st) - before
+    added = _store_outputs(st, outcomes, cfg, run_id, new_counts)
     summary.commit_seconds += time.perf_counter() - t
     for o in outcomes:
         summary.tasks_run += 1
         summary.task_seconds += o.seconds
         if not o.ok:
             summary.failures.append((o.task_id, o.error))
-            log.error("task %s failed after %.1f s on %s: %s\n%s", o.task_id, o.seconds,
-                      o.worker, o.error, o.detail)
+        else:
+            summary.forms_new += added[o.task_id]
+            summary.rejected += len(o.output.rejected)
+        _log_outcome(o, added.get(o.task_id, 0))
+
+
+def _weyl_windows(st, cfg: Config, plan: Plan, summary: JobSummary):
+    """(level, labels, window, completeness report) for every squarefree level of the plan
+    searched in all its classes without failed tasks."""
+    from maasscomp.config import is_squarefree
+    from maasscomp.groups import gamma0
+    from maasscomp.spectrum.search import symmetry_classes
+    from maasscomp.spectrum.weyl import completeness
+
+    failed = {int(tid.split(":")[1][2:]) for tid, _ in summary.failures if tid.startswith("search:")}
+    out = []
+    for N, labels in plan.classes.items():
+        if not is_squarefree(N):
             continue
-        out = o.output
-        n_new = added[o.task_id]
-        summary.forms_new += n_new
-        summary.rejected += len(out.rejected)
-        if out.forms:
-            new_counts[(out.forms[0].level, out.forms[0].symmetry.label)] += n_new
-        log.info("task %s: %d forms (%d new), %d rejected candidates, %.2f s on %s",
-                 o.task_id, len(out.forms), n_new, len(out.rejected), o.seconds, o.worker)
-        for R, reason in out.rejected:
-            log.debug("  rejected candidate R=%.12f: %s", R, reason)
+        if set(labels) != {c.label for c in symmetry_classes(gamma0(N), ("even", "odd"))}:
+            continue
+        if N in failed:
+            continue
+        for a, b in cfg.search.windows:
+            keys = st.select(level=N, R_min=a, R_max=b)
+            Rs = [r["R"] for r in st.summary_rows(n_coeffs=0, keys=keys)]
+            # no cusp form of these levels has R below 1 (Weyl's law gives W(1) < 0)
+            rep = completeness(N, Rs, a, b, count_below=0 if a <= 1.0 else None)
+            out.append((N, labels, (a, b), rep))
+    return out
+
+
+def _recheck_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummary,
+                   show_progress: bool, new_counts: Counter) -> None:
+    """Search the windows that Weyl's law flags again (finer grid, other heights)."""
+    from tqdm import tqdm
+
+    from maasscomp.pipeline.tasks import RecheckTask, execute
+
+    s = cfg.search
+    done = st.done_tasks(run_id)
+    tasks = []
+    for N, labels, _, rep in _weyl_windows(st, cfg, plan, summary):
+        for w in rep.flagged:
+            t = RecheckTask(N, tuple(labels), w.T_lo, w.T_hi, s.eps, s.n_coeffs, s.step)
+            log.info("level %d: window (%.4f, %.4f] flagged by Weyl's law (found %d, expected %.2f)%s",
+                     N, w.T_lo, w.T_hi, w.found, w.expected,
+                     "; searched again before" if t.task_id in done else "; searching it again")
+            if t.task_id not in done:
+                tasks.append(t)
+    if not tasks:
+        return
+    bar = tqdm(total=len(tasks), desc="recheck", unit="window", disable=not show_progress,
+               file=sys.stderr, dynamic_ncols=True)
+    try:
+        for o in ex.as_completed(execute, tasks):
+            t = time.perf_counter()
+            added = _store_outputs(st, [o], cfg, run_id, new_counts)
+            summary.commit_seconds += time.perf_counter() - t
+            summary.task_seconds += o.seconds
+            summary.rechecks_run += 1
+            if not o.ok:
+                summary.failures.append((o.task_id, o.error))
+            else:
+                summary.forms_new += added[o.task_id]
+                summary.recheck_new += added[o.task_id]
+            _log_outcome(o, added.get(o.task_id, 0))
+            bar.update(1)
+    except (KeyboardInterrupt, InputError, StoreError):
+        raise
+    except Exception as exc:
+        summary.aborted = f"{type(exc).__name__}: {exc}"
+        log.error("executor failure in the recheck stage, stopping: %s", summary.aborted)
+    finally:
+        bar.close()
+
+
+def _weyl_summary(st, cfg: Config, plan: Plan, summary: JobSummary) -> list[str]:
+    lines = []
+    for N, _, (a, b), rep in _weyl_windows(st, cfg, plan, summary):
+        state = ("no window flagged" if not rep.flagged else "still flagged: " + ", ".join(
+            f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in rep.flagged))
+        lines.append(f"level {N}, R in [{a:g}, {b:g}]: {rep.total_found} forms, "
+                     f"{rep.total_expected:.2f} expected by Weyl's law; {state}")
+    return lines
 
 
 def _plan_keys(st, cfg: Config, plan: Plan) -> list[str]:

@@ -145,6 +145,47 @@ class SearchTask:
 
 
 @dataclass(frozen=True)
+class RecheckTask:
+    """Search a window flagged by Weyl's law again, in every class of a squarefree level,
+    with a 4x finer grid and lower sample heights (as
+    :func:`maasscomp.spectrum.complete.complete_search` does): a spurious root of the
+    truncated system moves with the heights, so a true eigenvalue hidden next to one
+    shows at the other heights."""
+
+    level: int
+    labels: tuple[str, ...]
+    lo: float
+    hi: float
+    eps: float
+    n_coeffs: int
+    step: float | None
+
+    stage = "recheck"
+
+    @property
+    def task_id(self) -> str:
+        return f"recheck:N={self.level}:[{_fmt(self.lo)},{_fmt(self.hi)}]"
+
+    def run(self) -> "SearchOutput":
+        from dataclasses import replace
+
+        from maasscomp.groups import gamma0
+        from maasscomp.hejhal.types import SymmetryClass
+        from maasscomp.spectrum.search import SearchSettings, search_classes
+
+        base = SearchSettings(eps=self.eps, n_coeffs=self.n_coeffs)
+        finer = replace(base, steps_per_spacing=4 * base.steps_per_spacing, Y1_frac=0.86, Y2_frac=0.74)
+        syms = [SymmetryClass.from_label(lab) for lab in self.labels]
+        res = search_classes(gamma0(self.level), syms, max(self.lo - OVERLAP, 0.5 * self.lo),
+                             self.hi + OVERLAP, finer,
+                             step=None if self.step is None else self.step / 4)
+        forms = tuple(f for r in res.values() for f in r.forms if self.lo <= f.R <= self.hi)
+        rejected = tuple((c.R, c.reason) for r in res.values() for c in r.candidates
+                         if not c.accepted and self.lo <= c.R <= self.hi)
+        return SearchOutput(forms=forms, rejected=rejected, grid_step=0.0)
+
+
+@dataclass(frozen=True)
 class ScanTask:
     """Sup-norm scan of one stored form (the form travels with the task: workers never
     open the store)."""

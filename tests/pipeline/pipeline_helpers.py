@@ -27,7 +27,7 @@ def write_config(path: Path, *, output: str, levels="[1]", windows=None, R=(9.3,
                  parities='["odd"]', backend="serial", workers=1, chunk_width=0.25,
                  step=0.05, name="t", extra_search="", extra="") -> Path:
     """A small job config (step 0.05 is ample for level 1 and 2 near R = 10, where the
-    mean spacing per class is about 1)."""
+    mean spacing per class is about 1; step=None leaves the search's default)."""
     win = (f"windows = {windows}" if windows is not None else f"R_min = {R[0]!r}\nR_max = {R[1]!r}")
     text = f"""[job]
 name = "{name}"
@@ -38,7 +38,7 @@ levels = {levels}
 {win}
 parities = {parities}
 chunk_width = {chunk_width!r}
-step = {step!r}
+{"" if step is None else f"step = {step!r}"}
 n_coeffs = 20
 {extra_search}
 
