@@ -105,18 +105,22 @@ class DaskExecutor:
         Memory limit of each local worker.
     processes : bool
         Local workers as processes (default) or as threads of this process.
+    connect_timeout : float
+        Seconds to wait for the scheduler at ``address``.
     """
 
     name = "dask"
 
     def __init__(self, workers: int, address: str | None = None,
-                 memory_limit_gb: float | None = None, processes: bool = True) -> None:
+                 memory_limit_gb: float | None = None, processes: bool = True,
+                 connect_timeout: float = 15.0) -> None:
         if workers < 1:
             raise InputError(f"workers={workers!r} is not allowed; use an integer >= 1")
         self.workers = workers
         self.address = address
         self.memory_limit_gb = memory_limit_gb
         self.processes = processes
+        self.connect_timeout = connect_timeout
         self.client = None
         self.cluster = None
 
@@ -125,7 +129,7 @@ class DaskExecutor:
 
         if self.address:
             try:
-                self.client = Client(self.address, timeout="15s")
+                self.client = Client(self.address, timeout=f"{self.connect_timeout}s")
             except (OSError, TimeoutError) as exc:
                 raise InputError(
                     f"[executor] address={self.address!r}: cannot reach a Dask scheduler there "

@@ -98,3 +98,12 @@ def test_joint_search_of_a_group_equals_searching_each_class():
             assert abs(f.R - g.R) < 1e-10 and f.symmetry == g.symmetry
             found += 1
     assert found == 2  # the oldforms of R = 9.5337 from level 1, one per Atkin-Lehner sign
+
+
+def test_unreachable_scheduler_is_a_clear_input_error():
+    from maasscomp.errors import InputError
+
+    ex = DaskExecutor(1, address="tcp://127.0.0.1:9", connect_timeout=1.0)
+    with pytest.raises(InputError, match="cannot reach a Dask scheduler there"):
+        with ex:
+            pass
