@@ -179,7 +179,8 @@ def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[
         R_all = np.array(sorted(r["R"] for r in st.summary_rows(n_coeffs=0) if r["level"] == N))
         for T_lo, T_hi in full:
             R = R_all[(R_all >= T_lo) & (R_all <= T_hi)]
-            c = completeness(N, R, T_lo, T_hi)
+            # no cusp form of these levels has R below 1 (as in the run summary)
+            c = completeness(N, R, T_lo, T_hi, count_below=0 if T_lo <= 1.0 else None)
             for w in c.windows:
                 rows.append({"level": N, "T_lo": w.T_lo, "T_hi": w.T_hi, "found": w.found,
                              "expected": w.expected, "deficit": w.deficit,
