@@ -135,7 +135,7 @@ def _weyl_figure(level: int, R: np.ndarray, T_lo: float, T_hi: float, path: Path
     T = np.linspace(T_lo, T_hi, 800)
     T = np.union1d(T, R)
     W = np.asarray(weyl_count(level, T), dtype=float)
-    base = float(weyl_count(level, T_lo))
+    base = 0.0 if T_lo <= 1.0 else float(weyl_count(level, T_lo))
     N = base + np.searchsorted(np.sort(R), T, side="right")
     fig = Figure(figsize=(7.5, 5.2), layout="constrained")
     ax1, ax2 = fig.subplots(2, 1, sharex=True, height_ratios=(2, 1))
