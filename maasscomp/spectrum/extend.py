@@ -23,7 +23,7 @@ from maasscomp.special import ktilde
 from maasscomp.spectrum.form import Form
 
 
-def extend_form_coefficients(group, form: Form, n_max: int, *, eps: float = 1e-15,
+def extend_form_coefficients(group, form: Form, n_max: int, *, eps: float = 1e-14,
                              heights: tuple[float, ...] = (0.95, 0.82, 0.7)) -> tuple[np.ndarray, np.ndarray]:
     """a(1..n_max) at infinity of a form of squarefree level, with error estimates.
 

@@ -497,11 +497,12 @@ def _confirm(group, parity, Rc, sys1, sys2, settings: SearchSettings, mult_tol: 
     sv_other = sys2.null_space(Rc, mult_tol)[0]
     if sv_other[m - 1] > _QUICK_REJECT:
         return False, f"the other height is regular here (singular value {sv_other[m - 1]:.1e})", []
-    R2 = _root_near(sys2, Rc, max(1e-7, 1e3 * settings.R_tol), odd=bool(m % 2))
+    R_tol = max(1e-8, settings.R_tol * max(1.0, Rc))
+    R2 = _root_near(sys2, Rc, max(1e-7, 1e3 * R_tol), odd=bool(m % 2))
     if R2 is None:
         return False, f"multiplicity {m} at the scan height but no matching root at the other height", []
     dR = abs(R2 - Rc)
-    if dR > settings.R_tol:
+    if dR > R_tol:
         return False, f"roots at the two heights differ by {dR:.2e}", []
     sv2, U2 = sys2.null_space(R2, mult_tol)
     if U2.shape[1] != m:

@@ -62,7 +62,8 @@ class SearchSettings:
     hecke_tol : float
         Largest accepted Hecke residual at confirmation.
     R_tol : float
-        Largest accepted secant step of the two-height difference at the refined root.
+        Largest accepted distance (relative to max(1, R)) between the root of det A at Y1
+        and the root of the two-height difference it is polished to.
     n_coeffs : int
         Least number of coefficients stored per form; more are stored when evaluating the
         form anywhere in the fundamental domain needs them (the final solve uses a height
@@ -82,7 +83,7 @@ class SearchSettings:
     max_step: float = 0.02
     coeff_tol: float = 1e-6
     hecke_tol: float = 1e-6
-    R_tol: float = 1e-8
+    R_tol: float = 1e-9
     n_coeffs: int = 60
     hecke_nmax: int = 30
     lfunction_check: bool = True
@@ -341,35 +342,44 @@ def search_window(
 
 def _confirm(group, symmetry: SymmetryClass, Rc: float, sys1: HejhalSystem, sys2: HejhalSystem,
              settings: SearchSettings):
-    """Independent confirmation of a det root; returns (ok, reason, Form | None)."""
+    """Independent confirmation of a det root; returns (ok, reason, Form | None).
+
+    The root Rc of det A at Y1 is first polished by the secant method on the two-height
+    difference H(R) = a(2..k; Y1) - a(2..k; Y2) (least squares over its components), with
+    exact K values; an eigenvalue makes H vanish and the iteration converges within a few
+    steps close to Rc, while at a spurious root H stays large and the iteration wanders.
+    """
     k = min(8, sys1.params.M0 // 2, sys2.params.M0 // 2)
+    scale = max(1.0, Rc)
+    R_start = Rc
 
-    def two_heights(R: float) -> tuple[np.ndarray, np.ndarray]:
-        return sys1.solve(R), sys2.solve(R)
+    def H(R: float) -> np.ndarray:
+        return sys1.solve(R)[1:k] - sys2.solve(R)[1:k]
 
-    a1, a2 = two_heights(Rc)
-    H0 = a1[1:k] - a2[1:k]
+    H0 = H(Rc)
+    if not np.all(np.isfinite(H0)):
+        return False, "singular system at the candidate", None
+    R_prev, H_prev = Rc + 1e-9 * scale, None
+    H_prev = H(R_prev)
+    step = math.inf
+    for _ in range(8):
+        dH = H0 - H_prev
+        denom = float(dH @ dH)
+        if denom == 0.0:
+            break
+        step = -float(H0 @ dH) / denom * (Rc - R_prev)
+        R_prev, H_prev = Rc, H0
+        Rc += step
+        if abs(Rc - R_start) > settings.R_tol * scale:
+            return False, (f"two-height secant iteration left the root by {abs(Rc - R_start):.2e} "
+                           f"(more than R_tol x max(1, R))"), None
+        H0 = H(Rc)
+        if abs(step) <= 8 * np.finfo(float).eps * scale:
+            break
     dcoef = float(np.max(np.abs(H0)))
     if not np.isfinite(dcoef) or dcoef > settings.coeff_tol:
         return False, f"coefficients at Y1 and Y2 differ by {dcoef:.2e}", None
-    # secant steps of the two-height difference H(R) (least squares over a(2..k)); they
-    # polish the root found on interpolated K values with exact ones
-    dR = math.inf
-    for _ in range(3):
-        h = 1e-7 * max(1.0, Rc)
-        b1, b2 = two_heights(Rc + h)
-        dH = (b1[1:k] - b2[1:k]) - H0
-        denom = float(dH @ dH)
-        step = -float(H0 @ dH) / denom * h if denom > 0 else math.inf
-        if not abs(step) <= settings.R_tol:
-            return False, f"two-height secant step {abs(step):.2e} above R_tol {settings.R_tol:.0e}", None
-        Rc += step
-        a1, a2 = two_heights(Rc)
-        H0 = a1[1:k] - a2[1:k]
-        if abs(step) <= 1e-13 * max(1.0, Rc) or abs(step) >= 0.5 * dR:
-            dR = abs(step)
-            break
-        dR = abs(step)
+    dR = abs(step)
 
     # final solve at a height giving n_coeffs accurate coefficients, and a second height
     # for their error estimate
