@@ -15,4 +15,4 @@ Pullback
 
 from .gamma0 import Cusp, Gamma0, Pullback, gamma0
 
-__all__ = ["Cusp", "Gamma0", "Pullback", "gamma0"]
+__all__ = ["divisors", "factorint", "Cusp", "Gamma0", "Pullback", "gamma0"]

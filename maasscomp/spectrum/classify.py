@@ -17,6 +17,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from maasscomp.groups import divisors
+
 from maasscomp.hejhal.params import choose_params
 from maasscomp.hejhal.system import HejhalSystem
 from maasscomp.hejhal.types import SymmetryClass
@@ -30,10 +32,6 @@ class Classification:
     old_from_level: int | None  # smallest level M < N at which R is an eigenvalue
     old_relation_residual: float | None  # max_p |c(p) - a_g(p) - eps_p sqrt p| over p | N/M
     newform_residual: float  # max_p |c(p) + eps_p / sqrt p| over p | N
-
-
-def _divisors(n: int) -> list[int]:
-    return [d for d in range(1, n + 1) if n % d == 0]
 
 
 def eigen_at_level(M: int, parity: str, al_signs: dict[int, int], R: float, *, tol: float = 1e-7,
@@ -73,7 +71,7 @@ def classify(level: int, symmetry: SymmetryClass, R: float, coeffs: np.ndarray) 
     signs = dict(symmetry.al_signs)
     primes = sorted(signs)
     new_res = max((abs(coeffs[p - 1] + signs[p] / math.sqrt(p)) for p in primes if p <= coeffs.size), default=0.0)
-    for M in _divisors(level)[:-1]:
+    for M in divisors(level)[:-1]:
         ag = eigen_at_level(M, symmetry.parity, signs, R)
         if ag is None:
             continue

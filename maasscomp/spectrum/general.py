@@ -46,6 +46,8 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
+
+from maasscomp.groups import divisors
 from scipy.linalg import subspace_angles
 from scipy.optimize import brentq
 
@@ -83,10 +85,6 @@ def _small_primes(level: int, count: int = 4) -> list[int]:
             out.append(p)
         p += 1
     return out
-
-
-def _divisors(n: int) -> list[int]:
-    return [d for d in range(1, n + 1) if n % d == 0]
 
 
 # ----------------------------------------------------------------------------------------
@@ -621,7 +619,7 @@ def _old_dimension(group, parity, R, m, settings, mult_tol):
     N = group.level
     mult: dict[int, int] = {}
     lam_lower: list[dict[int, float]] = []
-    for M in _divisors(N)[:-1]:
+    for M in divisors(N)[:-1]:
         G = gamma0(M)
         Y = 0.9 * G.fundamental_domain_height
         ps = choose_params(R + 1.0, Y, settings.eps)
@@ -636,9 +634,9 @@ def _old_dimension(group, parity, R, m, settings, mult_tol):
                 for cl in _hecke_clusters(C[:, 0, :K].real.T, N):
                     lam_lower.append(cl.eigenvalues)
     new: dict[int, int] = {}
-    for M in _divisors(N)[:-1]:
-        new[M] = mult[M] - sum(new[Mp] * len(_divisors(M // Mp)) for Mp in _divisors(M)[:-1])
-    old = sum(new[M] * len(_divisors(N // M)) for M in new)
+    for M in divisors(N)[:-1]:
+        new[M] = mult[M] - sum(new[Mp] * len(divisors(M // Mp)) for Mp in divisors(M)[:-1])
+    old = sum(new[M] * len(divisors(N // M)) for M in new)
     return old, lam_lower
 
 

@@ -20,18 +20,7 @@ import math
 
 import numpy as np
 
-
-def _prime_factors(n: int) -> list[int]:
-    out, p = [], 2
-    while p * p <= n:
-        if n % p == 0:
-            out.append(p)
-            while n % p == 0:
-                n //= p
-        p += 1
-    if n > 1:
-        out.append(n)
-    return out
+from maasscomp.groups import factorint
 
 
 def _primes_upto(n: int) -> list[int]:
@@ -87,7 +76,7 @@ def atkin_lehner_residual(a: np.ndarray, level: int, al_signs: dict[int, int], n
     a = np.real(np.asarray(a)).astype(float)
     nmax = min(int(nmax), a.size)
     worst = 0.0
-    for p in _prime_factors(level):
+    for p in sorted(factorint(level)):
         if p > nmax:
             continue
         ap = a[p - 1]

@@ -56,6 +56,8 @@ from typing import Sequence
 import mpmath
 import numpy as np
 
+from maasscomp.groups import factorint
+
 from maasscomp.errors import InputError
 
 __all__ = [
@@ -80,19 +82,6 @@ class _LevelData:
     h: int  # number of cusps
     nu2: int
     nu3: int
-
-
-def _prime_factors(n: int) -> dict[int, int]:
-    out: dict[int, int] = {}
-    d = 2
-    while d * d <= n:
-        while n % d == 0:
-            out[d] = out.get(d, 0) + 1
-            n //= d
-        d += 1
-    if n > 1:
-        out[n] = out.get(n, 0) + 1
-    return out
 
 
 def _kronecker_minus4(p: int) -> int:
@@ -122,7 +111,7 @@ def _level_data(level: object) -> _LevelData:
     N = int(level)
     if N < 1:
         raise InputError(f"level {N} is not allowed; use a positive integer")
-    fac = _prime_factors(N)
+    fac = factorint(N)
     if any(e > 1 for e in fac.values()):
         raise InputError(
             f"Weyl's law for level {N} is not available: only squarefree levels are "
