@@ -13,6 +13,7 @@ Pullback
     Result of ``Gamma0.pullback``: gamma z = sigma_j w with w in the strip of cusp j.
 """
 
+from ._arith import divisors, factorint
 from .gamma0 import Cusp, Gamma0, Pullback, gamma0
 
 __all__ = ["divisors", "factorint", "Cusp", "Gamma0", "Pullback", "gamma0"]
