@@ -282,36 +282,47 @@ def search_classes(
 
     n = max(3, int(math.ceil((R_max - R_min) / step)) + 1)
     grid = np.linspace(R_min, R_max, n)
-    signs = {c: np.empty(n) for c in classes}
-    logs = {c: np.empty(n) for c in classes}
     roots: dict[SymmetryClass, list[float]] = {c: [] for c in classes}
+    # Both heights are scanned: a spurious root of the truncated system moves with Y, so a
+    # true eigenvalue that shares a grid cell with spurious roots at one height (three roots
+    # give one sign change) shows as a clean sign change at the other.
+    scans = [(s1, sys1), (s2, sys2)]
+    total = n * len(scans)
     done = 0
-    for i0, i1 in _chunks(grid, s1):
-        lo, hi = max(i0 - 1, 0), min(i1 + 1, n - 1)  # one cell of overlap for the minima test
-        ksrc = _KSource(s1, float(grid[lo]), float(grid[hi]))
-        for i in range(lo, hi + 1):
-            k = ksrc(float(grid[i]))
+    for samples, systems in scans:
+        signs = {c: np.empty(n) for c in classes}
+        logs = {c: np.empty(n) for c in classes}
+        for i0, i1 in _chunks(grid, samples):
+            lo, hi = max(i0 - 1, 0), min(i1 + 1, n - 1)  # one cell of overlap for the minima test
+            ksrc = _KSource(samples, float(grid[lo]), float(grid[hi]))
+            for i in range(lo, hi + 1):
+                k = ksrc(float(grid[i]))
+                for c in classes:
+                    signs[c][i], logs[c][i] = slogdet(systems[c].matrix_from_k(k))
+                if i0 <= i < i1 or i == n - 1:
+                    done += 1
+                    if progress is not None:
+                        progress(done, total)
             for c in classes:
-                signs[c][i], logs[c][i] = slogdet(sys1[c].matrix_from_k(k))
-            if i0 <= i < i1 or i == n - 1:
-                done += 1
-                if progress is not None:
-                    progress(done, n)
-        for c in classes:
-            det = lambda R, c=c: slogdet(sys1[c].matrix_from_k(ksrc(R)))  # noqa: E731
-            sg = signs[c]
-            for i in range(i0, i1):
-                if sg[i] * sg[i + 1] < 0:
-                    roots[c].append(_refine(det, float(grid[i]), float(grid[i + 1])))
-            for a, b in _hidden_pairs(det, grid, sg, logs[c], i0 if i0 > 0 else 1, i1):
-                roots[c].append(_refine(det, a, b))
+                det = lambda R, c=c: slogdet(systems[c].matrix_from_k(ksrc(R)))  # noqa: E731
+                sg = signs[c]
+                for i in range(i0, i1):
+                    if sg[i] * sg[i + 1] < 0:
+                        roots[c].append(_refine(det, float(grid[i]), float(grid[i + 1])))
+                for a, b in _hidden_pairs(det, grid, sg, logs[c], i0 if i0 > 0 else 1, i1):
+                    roots[c].append(_refine(det, a, b))
 
     results = {}
     for c in classes:
         candidates: list[Candidate] = []
         forms: list[Form] = []
         for Rc in sorted(roots[c]):
+            # the same eigenvalue is a root at both heights: confirm it once
+            if any(abs(f.R - Rc) <= 1e-9 * max(1.0, Rc) for f in forms):
+                continue
             ok, reason, form = _confirm(group, c, Rc, sys1[c], sys2[c], settings)
+            if ok and any(abs(f.R - form.R) <= 1e-9 * max(1.0, form.R) for f in forms):
+                ok, reason = False, "polished onto an eigenvalue confirmed already"
             candidates.append(Candidate(R=Rc, accepted=ok, reason=reason))
             if ok:
                 forms.append(form)
