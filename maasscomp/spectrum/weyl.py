@@ -56,7 +56,6 @@ from typing import Sequence
 import mpmath
 import numpy as np
 
-from maasscomp.groups import factorint
 
 from maasscomp.errors import InputError
 
@@ -84,49 +83,27 @@ class _LevelData:
     nu3: int
 
 
-def _kronecker_minus4(p: int) -> int:
-    # (-4/p) for a prime p: 0 at p = 2, +1 for p = 1 mod 4, -1 for p = 3 mod 4
-    if p == 2:
-        return 0
-    return 1 if p % 4 == 1 else -1
-
-
-def _kronecker_minus3(p: int) -> int:
-    # (-3/p) for a prime p: 0 at p = 3, +1 for p = 1 mod 3, -1 otherwise (incl. p = 2)
-    if p == 3:
-        return 0
-    return 1 if p % 3 == 1 else -1
-
-
 def _level_data(level: object) -> _LevelData:
     """Index, cusps and elliptic points of Gamma0(N), N squarefree.
 
-    Shimura, *Introduction to the Arithmetic Theory of Automorphic Functions* (1971),
-    Prop. 1.43; Diamond & Shurman, *A First Course in Modular Forms* (2005), §3.9.
-    Computed here (not taken from :mod:`maasscomp.groups`) because only the squarefree
-    case is needed and the formulas are one line each.
+    The invariants come from :func:`maasscomp.groups.gamma0` (Shimura 1971, Prop. 1.43;
+    Diamond & Shurman 2005, §3.9).
     """
+    from maasscomp.groups import gamma0
+
     if isinstance(level, bool) or not isinstance(level, (int, np.integer)):
         raise InputError(f"level {level!r} is not allowed; use a positive integer")
     N = int(level)
     if N < 1:
         raise InputError(f"level {N} is not allowed; use a positive integer")
-    fac = factorint(N)
-    if any(e > 1 for e in fac.values()):
+    g = gamma0(N)
+    if not g.is_squarefree:
         raise InputError(
             f"Weyl's law for level {N} is not available: only squarefree levels are "
             "supported (the scattering determinant of non-squarefree levels has no checked "
             "formula in this project)"
         )
-    primes = tuple(sorted(fac))
-    mu = 1
-    nu2 = 1
-    nu3 = 1
-    for p in primes:
-        mu *= p + 1
-        nu2 *= 1 + _kronecker_minus4(p)
-        nu3 *= 1 + _kronecker_minus3(p)
-    return _LevelData(N, primes, mu, 2 ** len(primes), nu2, nu3)
+    return _LevelData(N, tuple(sorted(g.primes)), g.index, g.n_cusps, g.nu2, g.nu3)
 
 
 def weyl_constant(level: int) -> float:
