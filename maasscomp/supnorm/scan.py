@@ -473,14 +473,7 @@ class _Slab:
             return h0.band[1]
         sc = self.scan
         nt = max(h0.nt, h1.nt)
-        A0, A1 = _pad(h0.A, nt), _pad(h1.A, nt)
-        P0, P1 = _pad(h0.Ap, nt), _pad(h1.Ap, nt)
-        D = h1.y - h0.y
-        n = np.arange(1, nt + 1, dtype=float)
-        w2 = (TWO_PI * n) ** 2
-        k = np.maximum(np.abs(w2 - sc.lam / h0.y**2), np.abs(w2 - sc.lam / h1.y**2))
-        a0 = np.maximum(np.abs(A0), np.abs(A1))
-        p0 = np.maximum(np.abs(P0), np.abs(P1))
+        D, n, w2, k, a0, p0 = _band_terms(h0, h1, sc.lam, nt)
         den = 1.0 - D * D * k / 4.0
         cell = math.hypot(0.5 / min(h0.L, h1.L), 0.5 * D) / h0.y
         touch = h0.touch or h1.touch
@@ -944,6 +937,21 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
     )
 
 
+def _band_terms(h0, h1, lam: float, nt: int):
+    """Termwise data of the band between two horocycles: the height difference D, the
+    frequencies w2 = (2 pi n)^2, the bound k of |w2 - lam/y^2| on the band, and the larger
+    of the two amplitudes and of their y-derivatives (n = 1..nt)."""
+    A0, A1 = _pad(h0.A, nt), _pad(h1.A, nt)
+    P0, P1 = _pad(h0.Ap, nt), _pad(h1.Ap, nt)
+    D = h1.y - h0.y
+    n = np.arange(1, nt + 1, dtype=float)
+    w2 = (TWO_PI * n) ** 2
+    k = np.maximum(np.abs(w2 - lam / h0.y**2), np.abs(w2 - lam / h1.y**2))
+    a0 = np.maximum(np.abs(A0), np.abs(A1))
+    p0 = np.maximum(np.abs(P0), np.abs(P1))
+    return D, n, w2, k, a0, p0
+
+
 def _rest_bound(rs: _RegionScan, slab: _Slab, cusp: int) -> float:
     """Termwise bound of sup |F - first term| over the cusp region (bands of the final grid)."""
     worst = 0.0
@@ -951,14 +959,7 @@ def _rest_bound(rs: _RegionScan, slab: _Slab, cusp: int) -> float:
         nt = max(h0.nt, h1.nt)
         if nt < 2:
             continue
-        A0, A1 = _pad(h0.A, nt), _pad(h1.A, nt)
-        P0, P1 = _pad(h0.Ap, nt), _pad(h1.Ap, nt)
-        D = h1.y - h0.y
-        n = np.arange(1, nt + 1, dtype=float)
-        w2 = (TWO_PI * n) ** 2
-        k = np.maximum(np.abs(w2 - rs.lam / h0.y**2), np.abs(w2 - rs.lam / h1.y**2))
-        a0 = np.maximum(np.abs(A0), np.abs(A1))
-        p0 = np.maximum(np.abs(P0), np.abs(P1))
+        D, _, _, k, a0, p0 = _band_terms(h0, h1, rs.lam, nt)
         a = (a0 + 0.5 * D * p0) / np.maximum(1.0 - D * D * k / 4.0, 0.25)
         c = rs.cabs(cusp, nt)
         worst = max(worst, float(np.dot(c[1:], a[1:])))
