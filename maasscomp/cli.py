@@ -13,32 +13,13 @@ from pathlib import Path
 from typing import Sequence
 
 from maasscomp import __version__
+from maasscomp.config import arg_int
 from maasscomp.errors import InputError, StoreError
 
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message: str) -> None:  # usage errors: one line, exit code 2
         raise InputError(f"{self.prog}: {message}")
-
-
-def _positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not an integer") from None
-    if v < 1:
-        raise argparse.ArgumentTypeError(f"{v} is not allowed; use an integer >= 1")
-    return v
-
-
-def _nonneg_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not an integer") from None
-    if v < 0:
-        raise argparse.ArgumentTypeError(f"{v} is not allowed; use an integer >= 0")
-    return v
 
 
 def _load_config(args: argparse.Namespace):
@@ -157,20 +138,20 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("-v", "--verbose", action="store_true", help="print every task as it finishes")
     r.add_argument("--backend", choices=("serial", "joblib", "dask"),
                    help="override [executor] backend (does not change results)")
-    r.add_argument("--workers", type=_positive_int, help="override [executor] workers")
+    r.add_argument("--workers", type=arg_int(1), help="override [executor] workers")
     r.set_defaults(func=_cmd_run)
 
     c = sub.add_parser("check", help="validate a job config and print its tasks without running")
     c.add_argument("config", help="path of the TOML job config")
     c.add_argument("--backend", choices=("serial", "joblib", "dask"), help="override [executor] backend")
-    c.add_argument("--workers", type=_positive_int, help="override [executor] workers")
+    c.add_argument("--workers", type=arg_int(1), help="override [executor] workers")
     c.set_defaults(func=_cmd_check)
 
     ls = sub.add_parser("list", help="list the forms in a store file")
     ls.add_argument("store", help="HDF5 store file")
-    ls.add_argument("--coeffs", type=_nonneg_int, default=3,
+    ls.add_argument("--coeffs", type=arg_int(0), default=3,
                     help="number of coefficients c(n) to show (default 3)")
-    ls.add_argument("--level", type=_positive_int, help="only forms of this level")
+    ls.add_argument("--level", type=arg_int(1), help="only forms of this level")
     ls.set_defaults(func=_cmd_list)
 
     ex = sub.add_parser("export", help="export a store file to JSON and/or CSV")
@@ -178,7 +159,7 @@ def build_parser() -> argparse.ArgumentParser:
     ex.add_argument("--json", metavar="PATH", help="write one JSON document with every field")
     ex.add_argument("--csv", metavar="PATH", help="write one CSV row per form")
     ex.add_argument("--coeffs-csv", metavar="PATH", help="also write all coefficients in long CSV format")
-    ex.add_argument("--coeffs", type=_nonneg_int, default=10,
+    ex.add_argument("--coeffs", type=arg_int(0), default=10,
                     help="coefficients per row in --csv (default 10)")
     ex.set_defaults(func=_cmd_export)
 

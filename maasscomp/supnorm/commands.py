@@ -10,27 +10,8 @@ from __future__ import annotations
 import argparse
 import sys
 
+from maasscomp.config import arg_int, arg_positive_float
 from maasscomp.errors import InputError
-
-
-def _positive_float(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not (v > 0 and v < float("inf")):
-        raise argparse.ArgumentTypeError(f"{v} is not allowed; use a positive number")
-    return v
-
-
-def _positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not an integer") from None
-    if v < 1:
-        raise argparse.ArgumentTypeError(f"{v} is not allowed; use an integer >= 1")
-    return v
 
 
 def cmd_scan(args: argparse.Namespace) -> int:
@@ -81,12 +62,12 @@ def add_commands(subparsers) -> None:
     s = subparsers.add_parser("scan", help="L2-normalise and scan stored forms for their maxima (cusp vs compact)")
     s.add_argument("store", help="HDF5 store file (results are written into it)")
     s.add_argument("--key", action="append", metavar="KEY", help="scan this form (repeatable; default: all)")
-    s.add_argument("--level", type=_positive_int, help="only forms of this level")
-    s.add_argument("--R-min", dest="R_min", type=_positive_float, help="only forms with R >= this")
-    s.add_argument("--R-max", dest="R_max", type=_positive_float, help="only forms with R <= this")
-    s.add_argument("--Y-cusp", dest="Y_cusp", type=_positive_float, default=1.0,
+    s.add_argument("--level", type=arg_int(1), help="only forms of this level")
+    s.add_argument("--R-min", dest="R_min", type=arg_positive_float, help="only forms with R >= this")
+    s.add_argument("--R-max", dest="R_max", type=arg_positive_float, help="only forms with R <= this")
+    s.add_argument("--Y-cusp", dest="Y_cusp", type=arg_positive_float, default=1.0,
                    help="height (>= 1, in each cusp's coordinate) where the cusp regions start (default 1)")
-    s.add_argument("--rtol", type=_positive_float, default=1e-3,
+    s.add_argument("--rtol", type=arg_positive_float, default=1e-3,
                    help="relative accuracy of each maximum guaranteed by the grid bound (default 1e-3)")
     s.add_argument("--overwrite", action="store_true", help="rescan forms that already carry a scan")
     s.add_argument("--table", metavar="CSV", help="also write the results table to this CSV file")
