@@ -16,6 +16,7 @@ from typing import Callable, Sequence
 
 from maasscomp.errors import InputError
 from maasscomp.hejhal.types import SymmetryClass
+from maasscomp.spectrum.complete import merge_forms
 from maasscomp.spectrum.form import Form
 from maasscomp.spectrum.search import SearchSettings, mean_spacing, search_classes, symmetry_classes
 
@@ -69,16 +70,6 @@ def _search(group, classes, a, b, settings, progress):
     return forms, rejected
 
 
-def _dedupe(forms: list[Form]) -> list[Form]:
-    """Drop a root found twice at the common end of two adjacent windows."""
-    out: list[Form] = []
-    for f in sorted(forms, key=lambda f: (f.symmetry.label, f.R)):
-        if out and out[-1].symmetry == f.symmetry and abs(out[-1].R - f.R) <= 1e-8 * max(1.0, f.R):
-            continue
-        out.append(f)
-    return out
-
-
 def forms_in_window(
     group,
     R_min: float,
@@ -91,7 +82,7 @@ def forms_in_window(
     """Every form of every symmetry class of the level with R in [R_min, R_max]."""
     classes = symmetry_classes(group, tuple(parities))
     forms, rejected = _search(group, classes, R_min, R_max, settings, progress)
-    forms = sorted(_dedupe(forms), key=lambda f: f.R)
+    forms = sorted(merge_forms(forms)[0], key=lambda f: f.R)
     return NearResult(tuple(forms), float(R_min), ((float(R_min), float(R_max)),),
                       _expected(group.level, R_min, R_max), len(forms), rejected)
 
@@ -122,7 +113,7 @@ def nearest_forms(
     forms, rejected = _search(group, classes, lo, hi, settings, progress)
     windows = [(lo, hi)]
     for _ in range(60):
-        forms = _dedupe(forms)
+        forms = merge_forms(forms)[0]
         near = sorted(forms, key=lambda f: abs(f.R - R0))
         if len(near) >= k and abs(near[k - 1].R - R0) <= min(R0 - lo if lo > 1e-3 else math.inf, hi - R0):
             break

@@ -463,17 +463,11 @@ def search_exceptional(group, symmetry: SymmetryClass, settings: SearchSettings 
     sys1 = HejhalSystem(group, symmetry, p1)
     sys2 = HejhalSystem(group, symmetry, p2)
     grid = np.linspace(0.002, 0.498, n_grid)
-    signs = np.array([sys1.log_det(float(t), exceptional=True)[0] for t in grid])
+    det = lambda t: sys1.log_det(t, exceptional=True)  # noqa: E731
+    signs = np.array([det(float(t))[0] for t in grid])
     candidates: list[Candidate] = []
     for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
-        ref = max(sys1.log_det(float(grid[i]), exceptional=True)[1],
-                  sys1.log_det(float(grid[i + 1]), exceptional=True)[1])
-
-        def g(t: float, ref: float = ref) -> float:
-            s, ld = sys1.log_det(t, exceptional=True)
-            return s * math.exp(max(ld - ref, -700.0))
-
-        tc = float(brentq(g, grid[i], grid[i + 1], xtol=1e-14))
+        tc = _refine(det, float(grid[i]), float(grid[i + 1]))
         a1 = sys1.solve(tc, exceptional=True)
         a2 = sys2.solve(tc, exceptional=True)
         d = float(np.max(np.abs(a1[1:6] - a2[1:6])))

@@ -56,7 +56,6 @@ from typing import Sequence
 import mpmath
 import numpy as np
 
-
 from maasscomp.errors import InputError
 
 __all__ = [
