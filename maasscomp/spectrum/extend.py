@@ -100,19 +100,13 @@ def lfunction_label(group, form: Form) -> dict:
     or ``{"skipped": reason}`` when the check would need more than
     :data:`LFUNCTION_MAX_COEFFS` coefficients.
     """
-    from maasscomp.spectrum.lfunction import functional_equation_check
+    from maasscomp.spectrum.lfunction import TooFewCoefficients, functional_equation_check
 
     try:
         chk = functional_equation_check(form.R, np.real(form.coeffs[0]), form.parity, group.level)
         used = int(form.coeffs.shape[1])
-    except InputError as exc:
-        msg = str(exc)
-        import re
-
-        m = re.search(r"n <= (\d+)", msg)
-        if not m:
-            raise
-        n_need = int(m.group(1)) + 8
+    except TooFewCoefficients as exc:
+        n_need = exc.needed + 8
         if n_need > LFUNCTION_MAX_COEFFS:
             return {"skipped": f"needs {n_need} coefficients (limit {LFUNCTION_MAX_COEFFS})"}
         a, _ = extend_form_coefficients(group, form, n_need)

@@ -73,6 +73,14 @@ __all__ = [
 DEFAULT_S_POINTS: tuple[complex, ...] = (0.5 + 0.3j, 0.7 + 0.0j, 0.2 + 1.0j)
 
 
+class TooFewCoefficients(InputError):
+    """A check needs more coefficients than were given; ``needed`` says how many."""
+
+    def __init__(self, message: str, needed: int) -> None:
+        super().__init__(message)
+        self.needed = int(needed)
+
+
 def default_s_points(R: float) -> tuple[complex, ...]:
     """The s points used by :func:`functional_equation_check` by default.
 
@@ -596,9 +604,10 @@ def functional_equation_check(
             row.append((k1, k0))
         kernels.append(row)
     if a.size < needed:
-        raise InputError(
+        raise TooFewCoefficients(
             f"the functional-equation check at R = {R:g} needs a(n) for n <= {needed} "
-            f"(truncation {tol:g}), but only a(1..{a.size}) were given"
+            f"(truncation {tol:g}), but only a(1..{a.size}) were given",
+            needed,
         )
     c = a[:needed]
     logn = np.log(np.arange(1, needed + 1, dtype=float))
