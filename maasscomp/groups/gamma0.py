@@ -152,7 +152,7 @@ class Pullback:
 
           f(z) = f(sigma_j w) = sum_{n != 0} rho_j(n) sqrt(y) K_{iR}(2 pi |n| y) e(n x),
 
-    the expansion of f at cusp j evaluated at w (formulas ref. §1.2 step 4, Hejhal 1999).
+    the expansion of f at cusp j evaluated at w (docs/theory.md §1.2 step 4, Hejhal 1999).
     """
 
     gamma: np.ndarray
@@ -257,7 +257,7 @@ class Gamma0:
 
     @property
     def area(self) -> float:
-        """Hyperbolic area of Gamma0(N)\\H: pi mu / 3 (formulas ref. §1.1)."""
+        """Hyperbolic area of Gamma0(N)\\H: pi mu / 3 (docs/theory.md §1.1)."""
         return math.pi * self.index / 3.0
 
     @functools.cached_property
@@ -266,7 +266,7 @@ class Gamma0:
 
         For every z in H, ``self.pullback(z).y >= Y0`` (up to rounding in the last bit
         for N = 1); hence sample points at height Y < Y0 in any cusp coordinate are
-        strictly raised by the pullback (formulas ref. §1.3). N = 1: Y0 = sqrt(3)/2
+        strictly raised by the pullback (docs/theory.md §1.3). N = 1: Y0 = sqrt(3)/2
         exactly (the corners of the standard domain). N > 1: the
         pulled-back height of a point is max over finitely many candidates
         y / (w |c z + d|^2) with z in the standard domain F1 (see
@@ -352,7 +352,7 @@ class Gamma0:
     def reflect(M: ArrayLike) -> np.ndarray:
         """J M J for J: z -> -conj(z), i.e. [[a, b], [c, d]] -> [[a, -b], [-c, d]].
 
-        J normalises Gamma0(N) (formulas ref. §1.1, common practice).
+        J normalises Gamma0(N) (docs/theory.md §1.1, common practice).
         """
         M = _as_int_matrices(M, "M").copy()
         M[..., 0, 1] *= -1
@@ -381,7 +381,7 @@ class Gamma0:
     def pullback(self, x: ArrayLike, y: ArrayLike) -> Pullback:
         """Map points z = x + i y into the fundamental domain, highest cusp first.
 
-        Method (formulas ref. §1.2 step 4 and §1.5): (1) reduce z into the standard
+        Method (docs/theory.md §1.2 step 4 and §1.5): (1) reduce z into the standard
         domain F1 = {|Re| <= 1/2, |z| >= 1} of SL2(Z) by z -> z - round(Re z),
         z -> -1/z, accumulating the reducing matrix A exactly (int64); (2) with
         B = A^{-1}, z = A z_in lies in the translate B F1 of the Gamma0(N) domain; every
@@ -588,7 +588,7 @@ class _Candidates:
 def _reduce_sl2z(x: np.ndarray, y: np.ndarray, maxit: int = 10_000):
     """Reduce points into F1; return the exact reducing matrix entries and A z.
 
-    The loop is the classical one (formulas ref. §1.2): translate by round(Re z), invert
+    The loop is the classical one (docs/theory.md §1.2): translate by round(Re z), invert
     when |z| < 1. The inversion test uses 1 - 1e-13 so that points on the unit circle,
     where rounding could make -1/z fall back inside, cannot cycle.
     """

@@ -4,7 +4,7 @@ A window scan evaluates the Hejhal matrix at hundreds of R values, always on the
 points x (the sample points and their pullbacks do not depend on R). As a function of R,
 Kt(R, x) = e^{pi R/2} K_{iR}(x) is entire and, for fixed x, oscillates with local
 frequency d/dR [R arccosh(R/x) - sqrt(R^2 - x^2)] = arccosh(R/x) on the oscillatory side
-(Liouville--Green form, DLMF 10.45.7 / formulas ref. §3.2) and is monotone beyond the
+(Liouville--Green form, DLMF 10.45.7 / docs/theory.md §3.2) and is monotone beyond the
 turning point. A Chebyshev interpolant in R on [Ra, Rb] with a few more nodes than
 omega (Rb - Ra)/2, omega = arccosh(Rb / x_min), therefore converges geometrically
 (Trefethen, *Approximation Theory and Approximation Practice*, SIAM 2013, Ch. 8). Each

@@ -3,8 +3,8 @@
 Sources: D. A. Hejhal, "On eigenfunctions of the Laplacian for Hecke triangle groups",
 IMA Vol. Math. Appl. 109 (1999) 291-315; F. Strömberg, *Computational aspects of Maass
 waveforms*, thesis, Uppsala 2005, Ch. 1 (one expansion per cusp, sample points on
-horocycles, pullback, discrete inversion: formulas ref. §1.2 items 1-5). The reduction
-by the reflection J: z -> -conj(z) below is derived for this module (formulas ref. §1.2
+horocycles, pullback, discrete inversion: docs/theory.md §1.2 items 1-5). The reduction
+by the reflection J: z -> -conj(z) below is derived for this module (docs/theory.md §1.2
 item 6 is its special case where J fixes every cusp with compatible scaling matrices).
 
 Reflection and cusps
@@ -32,7 +32,7 @@ Equations
 ---------
 Self-conjugate cusp j: Q points x_m = (m - 1/2)/(2Q), m = 1..Q, at height Y in G_j
 coordinates; f at the physical point sigma_j(z_m + t/2) is expressed through the unknowns
-after pulling back, and for 1 <= n <= M0 < Q (formulas ref. §1.2 item 6)
+after pulling back, and for 1 <= n <= M0 < Q (docs/theory.md §1.2 item 6)
 
     a_j(n) sqrt(Y) Kt_R(2 pi n Y) = (2/Q) sum_m f(.) cs(2 pi n x_m).
 

@@ -1,4 +1,4 @@
-"""Choice of the truncation M0 and sample count Q (formulas ref. §1.3).
+"""Choice of the truncation M0 and sample count Q (docs/theory.md §1.3).
 
 The expansion at a cusp is truncated at M0 where sqrt(Y) Kt_R(2 pi M0 Y) falls below the
 target eps (beyond the turning point 2 pi n Y > R the scaled K-Bessel function decays

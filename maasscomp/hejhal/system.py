@@ -2,9 +2,9 @@
 
 Source: D. A. Hejhal, "On eigenfunctions of the Laplacian for Hecke triangle groups",
 IMA Vol. Math. Appl. 109 (1999) 291-315, and F. Strömberg, *Computational aspects of Maass
-waveforms*, thesis, Uppsala 2005, Ch. 1; the real cos/sin form used here is formulas ref.
+waveforms*, thesis, Uppsala 2005, Ch. 1; the real cos/sin form used here is docs/theory.md
 §1.2 item 6, and the one-expansion reduction for squarefree levels via Atkin--Lehner
-involutions is formulas ref. §1.5.
+involutions is docs/theory.md §1.5.
 
 For a squarefree level N every cusp is W_Q(infinity) for an exact divisor Q of N, and
 with the scaling matrix sigma = W_Q / sqrt(Q) the expansion at that cusp is eps_Q times the
@@ -167,7 +167,7 @@ class HejhalSystem:
         return self.matrix_from_k(self.samples.k_values(R, exceptional=exceptional))
 
     def log_det(self, R: float, *, exceptional: bool = False) -> tuple[float, float]:
-        """Sign and log|det A(R)| (formulas ref. §1.4: the sign changes at eigenvalues)."""
+        """Sign and log|det A(R)| (docs/theory.md §1.4: the sign changes at eigenvalues)."""
         return slogdet(self.matrix(R, exceptional=exceptional))
 
     def solve(self, R: float, *, exceptional: bool = False) -> np.ndarray:

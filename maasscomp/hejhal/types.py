@@ -60,7 +60,7 @@ class SymmetryClass:
 
 @dataclass(frozen=True)
 class SolverParams:
-    """Parameters of one Hejhal linear system (formulas ref. §1.2-1.3).
+    """Parameters of one Hejhal linear system (docs/theory.md §1.2-1.3).
 
     Y is the horocycle height of the sample points in each cusp's coordinate, M0 the
     truncation of every cusp expansion, Q the number of sample points per cusp

@@ -1,6 +1,6 @@
 """More Fourier coefficients of a stored form, and the L-function label of a newform.
 
-Hejhal's inversion (formulas ref. §1.2 item 3, real version): on a horocycle of height Y,
+Hejhal's inversion (docs/theory.md §1.2 item 3, real version): on a horocycle of height Y,
 
     a(n) sqrt(Y) Kt_R(2 pi n Y) = (2/Q) sum_{m=1}^{Q} f(z_m) cs(2 pi n x_m),
 

@@ -14,7 +14,7 @@ from maasscomp.hejhal.types import SolverParams, SymmetryClass
 class Form:
     """A Maass cusp form on Gamma0(level) with its verification data.
 
-    Normalisation (formulas ref., conventions): at every cusp j, with sigma_j the group's
+    Normalisation (docs/theory.md, conventions): at every cusp j, with sigma_j the group's
     scaling matrix (``gamma0(N).cusps[j].scaling`` divided by the square root of its
     determinant),
 

@@ -15,7 +15,7 @@ multiplicity does not change sign, so the scan of the multi-cusp system
 at two heights Y1 and Y2 evaluated at the same grid points (a spurious root of the
 truncated system depends on Y and can mask a true eigenvalue in the same grid interval at
 one height only), on a grid whose step is a fraction of the mean spacing from Weyl's law
-(formulas ref. §2). Each candidate R is then tested with the singular value decomposition
+(docs/theory.md §2). Each candidate R is then tested with the singular value decomposition
 of the equilibrated matrix (:meth:`MultiCuspSystem.null_space`):
 
 1. multiplicity m = number of relative singular values below ``mult_tol`` (at an

@@ -1,7 +1,7 @@
 """High-precision refinement of a Maass cusp form by Hejhal's method in ball arithmetic.
 
 Given a double-precision eigenvalue R0 and the parity of a form, the real cos/sin version
-of Hejhal's linear system (D. A. Hejhal, Mem. AMS 97 (1992) no. 469; formulas ref. §1.2
+of Hejhal's linear system (D. A. Hejhal, Mem. AMS 97 (1992) no. 469; docs/theory.md §1.2
 item 6) is solved at two horocycle heights Y1 != Y2 in multiprecision (python-flint, i.e.
 arb), and R is refined by the secant method on
 
@@ -86,9 +86,9 @@ def _kt(R: arb, x: arb, prec: int) -> arb:
     """K~_R(x) = e^{pi R/2} K_{iR}(x) to absolute accuracy about 2^-prec (arb, DLMF 10.25).
 
     Absolute, not relative, accuracy is asked for: every entry of Hejhal's system is
-    compared with O(1) entries (max |K~_R| ~ 0.85 R^{1/6}, formulas ref. §3), and tiny
+    compared with O(1) entries (max |K~_R| ~ 0.85 R^{1/6}, docs/theory.md §3), and tiny
     values far beyond the turning point would otherwise need twice the precision.  The
-    cancellation inside K_{iR}(x) for x < R costs about pi R/(2 ln 2) bits (formulas ref.
+    cancellation inside K_{iR}(x) for x < R costs about pi R/(2 ln 2) bits (docs/theory.md
     §4.3); the working precision is raised until the radius is small enough.
     """
     # inputs are taken as exact midpoints: their own rounding is far below 2^-prec
@@ -122,7 +122,7 @@ def _truncation_M(R: arb, Y: arb, eps_log: float, prec: int) -> int:
     """Smallest M beyond the turning point with sqrt(Y) K~_R(2 pi m Y) m^{1/2} < eps for m >= M.
 
     The factor m^{1/2} is a safety margin for the coefficient size (|a(n)| <= d(n)
-    n^{7/64}; formulas ref. §1.3).  K~ decreases monotonically beyond the turning
+    n^{7/64}; docs/theory.md §1.3).  K~ decreases monotonically beyond the turning
     point x = R, so the first M that passes is the truncation.
     """
     Rf = float(R.mid())
@@ -141,7 +141,7 @@ def _truncation_M(R: arb, Y: arb, eps_log: float, prec: int) -> int:
 class _System:
     """Hejhal's real system at one height Y for fixed (level, parity, M0, Q, precision).
 
-    Sample points z_m = x_m + iY, x_m = (m - 1/2)/(2Q), m = 1..Q (formulas ref. §1.2
+    Sample points z_m = x_m + iY, x_m = (m - 1/2)/(2Q), m = 1..Q (docs/theory.md §1.2
     item 6); inversion a(n) sqrt(Y) K~(2 pi n Y) = (2/Q) sum_m f(z_m) cs(2 pi n x_m) for
     n <= M0 < Q, with f(z_m) = f(g z_m) expanded at the pulled-back point.
     """
@@ -503,7 +503,7 @@ def extend_coefficients(
 ) -> tuple[np.ndarray, np.ndarray]:
     """Many coefficients a(1..n_max) of a refined form, in double precision.
 
-    Hejhal's inversion (formulas ref. §1.2 item 3, real version) at low heights Y:
+    Hejhal's inversion (docs/theory.md §1.2 item 3, real version) at low heights Y:
 
         a(n) sqrt(Y) K~_R(2 pi n Y) = (2/Q) sum_{m=1}^{Q} f(z_m) cs(2 pi n x_m),
 

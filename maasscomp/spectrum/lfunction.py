@@ -18,7 +18,7 @@ by |gamma(s)| analytically (log-gamma differences), so nothing under- or overflo
 large R.
 
 Conventions: f(z) = sum a(n) sqrt(y) K_{iR}(2 pi n y) cs(2 pi n x), a(1) = 1, a(n) the
-Hecke eigenvalues of a newform (formulas ref., conventions).
+Hecke eigenvalues of a newform (docs/theory.md, conventions).
 
 Standard L-function (degree 2, level N squarefree, parity delta = 0 even / 1 odd):
 
@@ -29,7 +29,7 @@ with eps = (-1)^delta eta_N, eta_N the Fricke eigenvalue (eta_1 = 1).  [Derived 
 Mellin transform of f(iy) (even) and of d/dx f(iy) (odd) under z -> -1/(Nz); for level 1
 it gives eps = +1 for even and -1 for odd forms, which the check confirms numerically.]
 For squarefree N and a newform, eta_N = prod_{p|N} eps_p with eps_p = -sqrt(p) a(p)
-(Atkin-Lehner; formulas ref. §1.1, from memory for Maass forms), so the predicted sign is
+(Atkin-Lehner; docs/theory.md §1.1, from memory for Maass forms), so the predicted sign is
 eps = (-1)^delta prod_{p|N} (-sqrt(p) a(p)).  The check determines eps numerically and
 reports the prediction beside it.
 
@@ -38,10 +38,10 @@ Symmetric square (degree 3, conductor N^2 for squarefree N; root number +1):
     Lambda(s, sym^2 f) = N^s Gamma_R(s) Gamma_R(s + 2iR) Gamma_R(s - 2iR) L(s, sym^2 f),
 
 L(s, sym^2 f) = zeta^{(N)}(2s) sum_n a(n^2) n^{-s} (Gelbart-Jacquet 1978 for the
-analytic continuation; gamma factor and conductor as derived in formulas ref. §5.3;
+analytic continuation; gamma factor and conductor as derived in docs/theory.md §5.3;
 level 1 checked numerically there, squarefree level derived, not verified).
 
-Rankin-Selberg (formulas ref. §5.1-5.2): ||f||^2 = N L(1, sym^2 f) / (8 cosh(pi R)) in
+Rankin-Selberg (docs/theory.md §5.1-5.2): ||f||^2 = N L(1, sym^2 f) / (8 cosh(pi R)) in
 the cos/sin normalisation (level 1 checked numerically against quadrature; level N
 derived, not verified).
 """
@@ -229,7 +229,7 @@ def sym2_coefficients(
 
     b(p^k) = sum_{2i + j = k} a(p^{2j}) for p not dividing N, with
     a(p^{j+1}) = a(p) a(p^j) - a(p^{j-1}); b(p^k) = p^{-k} for p | N (local factor
-    (1 - p^{-1-s})^{-1}); b multiplicative (formulas ref. §5.2-5.3).
+    (1 - p^{-1-s})^{-1}); b multiplicative (docs/theory.md §5.2-5.3).
 
     Parameters
     ----------
@@ -309,7 +309,7 @@ def sym2_L1(
 
     Lambda(1) = sum_n b(n) [I(1, n) + I(0, n)] with gamma(s) = N^s Gamma_R(s)
     Gamma_R(s + 2iR) Gamma_R(s - 2iR), root number +1, conductor N^2 (squarefree
-    newform; level 1 checked numerically, level N derived: formulas ref. §5.2-5.3),
+    newform; level 1 checked numerically, level N derived: docs/theory.md §5.2-5.3),
     L(1, sym^2 f) = Lambda(1)/gamma(1), G(u) = exp(u^2/A) for the two values of A.
 
     Parameters
@@ -433,7 +433,7 @@ def rankin_selberg_norm2(
     """Scaled L2 norm e^{pi R} ||f||^2 from L(1, sym^2 f) (Rankin-Selberg).
 
     ||f||^2 = N L(1, sym^2 f) / (8 cosh(pi R)) over Gamma0(N)\\H with dmu = dx dy/y^2,
-    cos/sin normalisation a(1) = 1 (formulas ref. §5.1, level 1 checked numerically
+    cos/sin normalisation a(1) = 1 (docs/theory.md §5.1, level 1 checked numerically
     there; §5.2 for squarefree N, derived, not verified).  ||f||^2 itself underflows
     for R above about 220, so the function returns
 
@@ -515,7 +515,7 @@ def predicted_root_number(parity: str, coeffs: Sequence[float] | np.ndarray, lev
     """eps = (-1)^delta prod_{p|N} (-sqrt(p) a(p)) for a squarefree-level newform.
 
     Derived in the module docstring (Fricke sign from the Atkin-Lehner signs
-    eps_p = -sqrt(p) a(p), formulas ref. §1.1).  Returns None if some a(p), p | N, is
+    eps_p = -sqrt(p) a(p), docs/theory.md §1.1).  Returns None if some a(p), p | N, is
     not within 1e-6 of +-1/sqrt(p) (not a newform, or coefficients too inaccurate).
     """
     if parity not in ("even", "odd"):

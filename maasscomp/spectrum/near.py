@@ -1,7 +1,7 @@
 """Forms near a target R: every form in a window, or the k forms nearest to R0.
 
 At large R the eigenvalues are dense (mean spacing about 6/R on PSL(2,Z), shared by the
-symmetry classes; formulas ref. §2.2), so a user asks for forms *near* an R rather than for a
+symmetry classes; docs/theory.md §2.2), so a user asks for forms *near* an R rather than for a
 whole range. Both functions search all symmetry classes of the level together (they share
 the sample points and the K-Bessel values), tie the grid step to the local mean spacing
 (:func:`maasscomp.spectrum.search.search_classes`), confirm every candidate as the window

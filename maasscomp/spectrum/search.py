@@ -1,6 +1,6 @@
 """Locate, refine and confirm every eigenvalue of the symmetry classes of a level in an R window.
 
-Method (formulas ref. §1.4). With Y, M0 and Q held fixed over the window (M0 chosen for
+Method (docs/theory.md §1.4). With Y, M0 and Q held fixed over the window (M0 chosen for
 its top), the sign of det A(R) of the square Hejhal system is scanned on a grid whose step
 is a small fraction of the mean spacing of a class predicted by Weyl's law. det A(R) is
 continuous in R, so unlike the classical two-Y comparison (Hejhal 1999; Strömberg 2005)
@@ -126,7 +126,7 @@ class SearchResult:
 def mean_spacing(level: int, n_classes: int, R: float, index: int) -> float:
     """Mean eigenvalue spacing of one symmetry class near R (leading Weyl term).
 
-    N(T) ~ index T^2 / 12 (formulas ref. §2), shared among ``n_classes`` classes.
+    N(T) ~ index T^2 / 12 (docs/theory.md §2), shared among ``n_classes`` classes.
     """
     return 6.0 * n_classes / (index * max(R, 1.0))
 
@@ -214,7 +214,7 @@ def _store_height(R: float, m: int, p1: SolverParams) -> float:
     """A height at which a(1..m) are all determined accurately.
 
     Row n of the system divides by Kt(2 pi n Y), which decays exponentially beyond the
-    turning point 2 pi n Y = R (DLMF 10.40.2 / formulas ref. §3.2); a(n) stays accurate
+    turning point 2 pi n Y = R (DLMF 10.40.2 / docs/theory.md §3.2); a(n) stays accurate
     while 2 pi n Y <= R + 2 R^{1/3} + 6 (measured on PSL(2,Z) at R = 10, 300, 1000).
     """
     return min(p1.Y, (R + 2.0 * R ** (1.0 / 3.0) + 6.0) / (2.0 * math.pi * m))
@@ -425,7 +425,7 @@ def _confirm(group, symmetry: SymmetryClass, Rc: float, sys1: HejhalSystem, sys2
                 f"not an eigenvalue at a divisor level, yet c(p) = -eps_p/sqrt(p) fails by "
                 f"{cl.newform_residual:.2e}")
     # every cusp of a squarefree level is W_Q(infinity) with scaling W_Q/sqrt(Q), so its
-    # expansion is eps_Q times the one at infinity (formulas ref. §1.1)
+    # expansion is eps_Q times the one at infinity (docs/theory.md §1.1)
     cusp_sign = np.array([symmetry.al_sign(c.atkin_lehner_Q) for c in group.cusps], dtype=float)
     form = Form(
         level=group.level,

@@ -465,7 +465,7 @@ def completeness(
     Pure bookkeeping: no search is done.  The running remainder
     S(T) = N(T) - W(T) of a complete list is a mean-zero quantity of size O(1) for the
     heights this tool reaches (numerically |S| is a few tenths r.m.s. for T <= 25 on
-    SL2(Z); formulas ref. §2.2, and H. Then, arXiv:1212.3149, for its distribution at
+    SL2(Z); docs/theory.md §2.2, and H. Then, arXiv:1212.3149, for its distribution at
     large T).  A missing eigenvalue lowers S by 1 from its position on, and a window
     with a missing eigenvalue shows a deficit (expected - found) of about 1 on top of the
     remainder noise.

@@ -10,7 +10,7 @@ e^{pi R/2}; the physical form is e^{-pi R/2} F.
 
 Stored forms may carry fewer coefficients than an evaluation needs.  For a Hecke eigenform with
 c_0(1) = 1 the coefficients at infinity are the Hecke eigenvalues and (Iwaniec, *Topics in
-Classical Automorphic Forms* (1997) §6; formulas ref. §1.1, common practice)
+Classical Automorphic Forms* (1997) §6; docs/theory.md §1.1, common practice)
 
 * c(mn) = c(m) c(n) for gcd(m, n) = 1,
 * c(p^{k+1}) = c(p) c(p^k) - c(p^{k-1}) for p not dividing N,
@@ -155,7 +155,7 @@ def cusp_rows(form, group) -> np.ndarray:
     A form of squarefree level may be stored with the row at infinity only; the other rows are
     then eps_Q c_0 with eps_Q the Atkin--Lehner sign of the cusp W_Q(infinity), because the
     group's scaling matrix of that cusp is W_Q / sqrt(Q) and f(W_Q z) = eps_Q f(z) (Atkin &
-    Lehner, Math. Ann. 185 (1970); formulas ref. §1.1).
+    Lehner, Math. Ann. 185 (1970); docs/theory.md §1.1).
 
     Raises
     ------

@@ -1,6 +1,6 @@
 """Evaluation of a stored Maass form anywhere in the upper half plane.
 
-Everything here works with the **scaled form** F = e^{pi R/2} f (formulas ref., conventions):
+Everything here works with the **scaled form** F = e^{pi R/2} f (docs/theory.md, conventions):
 
     F(sigma_j z) = sum_{n>=1} A_n(y) [alpha_j(n) cos(2 pi n x) + beta_j(n) sin(2 pi n x)],
     A_n(y) = sqrt(y) Kt_R(2 pi n y),   Kt_R = e^{pi R/2} K_{iR},
@@ -294,7 +294,7 @@ class FormEvaluator:
         """F, F_x, F_y, F_xx, F_xy, F_yy at points of one cusp's coordinate (no pullback).
 
         A_n'' comes from the eigen-equation: -y^2 (u_xx + u_yy) = lambda u for each term gives
-        A_n'' = ((2 pi n)^2 - lambda / y^2) A_n (formulas ref., conventions).
+        A_n'' = ((2 pi n)^2 - lambda / y^2) A_n (docs/theory.md, conventions).
         """
         x = np.atleast_1d(np.asarray(x, dtype=float))
         y = np.atleast_1d(np.asarray(y, dtype=float))

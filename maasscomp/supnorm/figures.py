@@ -3,7 +3,7 @@
 * :func:`plot_form`: |f|/||f|| over the fundamental domain, one panel per cusp in that cusp's
   coordinate (points whose orbit has a higher representative are blank), peaks marked.
 * :func:`plot_peaks_vs_lambda`: log peak against log lambda for the cusp and compact peaks,
-  with a line of slope 1/12 (the cusp lower bound lambda^{1/12}, formulas ref. §6) and the
+  with a line of slope 1/12 (the cusp lower bound lambda^{1/12}, docs/theory.md §6) and the
   random-wave heuristic sqrt(2 ln(lambda) / area) for the compact part (ibid.).
 * :func:`plot_cusp_share`: share of forms whose global maximum lies in a cusp, by level and by
   R range.

@@ -7,7 +7,7 @@ All norms are of the scaled form F = e^{pi R/2} f:
 and ``scale = 1 / ||F||`` makes ``scale * F`` (equivalently the physical form divided by ||f||)
 L2-normalised.
 
-Quadrature (derived here; formulas ref. §5.1 reports the same approach agreeing with
+Quadrature (derived here; docs/theory.md §5.1 reports the same approach agreeing with
 Rankin--Selberg to 1e-9 at level 1). With right coset representatives R_k of
 Gamma0(N)\\SL2(Z) the union of the R_k F_1 is a fundamental domain (F_1 the standard domain of
 SL2(Z)). Split F_1 into its top {|x| <= 1/2, y >= 1} and bottom B = F_1 ∩ {y <= 1}:
@@ -35,7 +35,7 @@ SL2(Z)). Split F_1 into its top {|x| <= 1/2, y >= 1} and bottom B = F_1 ∩ {y <
   taken from the oscillation rate ~2R/y of |F|^2 and the whole sum is repeated with 1.5 times
   the nodes; the difference is the reported error estimate.
 
-Rankin--Selberg (formulas ref. §5.1, Iwaniec, *Spectral Methods* §8 and R. A. Smith, Proc. AMS
+Rankin--Selberg (docs/theory.md §5.1, Iwaniec, *Spectral Methods* §8 and R. A. Smith, Proc. AMS
 82 (1981), as cited there): for level 1 in the cos/sin normalisation with a(1) = 1,
 ||f||^2 = L(1, sym^2 f) / (8 cosh(pi R)), so ||F||^2 = L(1, sym^2 f) / (4 (1 + e^{-2 pi R})).
 For newforms of squarefree level N the notes derive (unverified there) the extra factor N;
@@ -383,7 +383,7 @@ def compact_quadrature(ev: FormEvaluator, Y_c: float = 1.0, factor: float = 1.0
 
 
 def rankin_selberg_norm2(L1: float, R: float, level: int) -> float:
-    """||F||^2 = level * L(1, sym^2 f) / (4 (1 + e^{-2 pi R})) (formulas ref. §5.1, §5.2)."""
+    """||F||^2 = level * L(1, sym^2 f) / (4 (1 + e^{-2 pi R})) (docs/theory.md §5.1, §5.2)."""
     return level * L1 / (4.0 * (1.0 + math.exp(-2.0 * math.pi * R)))
 
 

@@ -208,7 +208,7 @@ class ScanResult:
         The tolerance the grid was refined to.
     leading_profile_max, leading_profile_y : tuple of float
         Per cusp: max over y >= Y_c of A_1(y) = sqrt(y) Kt(2 pi y) and its location (the
-        transition-zone peak of the first Fourier term, formulas ref. §3.3).
+        transition-zone peak of the first Fourier term, docs/theory.md §3.3).
     leading_term_peak : tuple of float
         Per cusp: |c_j(1)| * scale * leading_profile_max, the peak of the n = 1 term of the
         normalised form (= 2 |rho_j(1)| max_y sqrt(y) K_{iR}(2 pi y) in the exponential
@@ -866,7 +866,7 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
         notes += [f"cusp {j}: {m}" for m in out["notes"]]
         # the transition-zone peak: the largest local maximum above the last zero of the first
         # term, at 2 pi y = R + a_1 (R/2)^{1/3} with a_1 = -2.33810741 the first zero of Ai
-        # (DLMF Table 9.9.1; leading order of the uniform expansion, formulas ref. §3.1)
+        # (DLMF Table 9.9.1; leading order of the uniform expansion, docs/theory.md §3.1)
         y_tr = max(st.Y_c, (ev.R - 2.33810741 * (ev.R / 2.0) ** (1 / 3)) / TWO_PI)
         cand = [hh for hh in slab.horos if hh.y >= y_tr] or slab.horos
         ht = max(cand, key=lambda hh: hh.vmax)

@@ -4,7 +4,7 @@ All peak values are those of the L2-normalised form f/||f|| (norm over Gamma0(N)
 dmu = dx dy / y^2, not divided by the area). Reference curves used by the report:
 
 * the cusp lower bound lambda^{1/12}: the first Fourier term of an L2-normalised Hecke--Maass
-  form peaks at ~ 2c R^{1/6} / sqrt(L(1, sym^2 f)) in the transition zone (formulas ref. §6,
+  form peaks at ~ 2c R^{1/6} / sqrt(L(1, sym^2 f)) in the transition zone (docs/theory.md §6,
   from the Airy asymptotics §3.3 and Rankin--Selberg §5.1);
 * the random wave model: values at a random point are approximately N(0, 1/area)
   (Hejhal & Rackner, Experimental Math. 1 (1992) 275-305; Berry 1977).

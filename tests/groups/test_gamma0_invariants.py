@@ -87,7 +87,7 @@ def test_invariants_match_brute_force(brute_all):
         assert sum(c.width for c in G.cusps) == G.index
         assert (G.nu2, G.nu3) == (B["nu2"], B["nu3"]), N
         assert G.genus == B["genus"], N
-        # closed forms (formulas ref. §1.1)
+        # closed forms (docs/theory.md §1.1)
         fac = [p for p in range(2, N + 1) if N % p == 0 and all(p % q for q in range(2, p))]
         assert G.primes == tuple(fac)
         assert G.index == round(N * math.prod(1 + 1 / p for p in fac))
@@ -98,7 +98,7 @@ def test_invariants_match_brute_force(brute_all):
 
 
 def test_squarefree_cusps_one_per_divisor():
-    # formulas ref. §1.1: squarefree N has 2^omega(N) cusps 1/c, width N/c
+    # docs/theory.md §1.1: squarefree N has 2^omega(N) cusps 1/c, width N/c
     for N in (1, 2, 3, 5, 6, 10, 15, 30, 105, 210):
         G = gamma0(N)
         assert G.is_squarefree

@@ -172,7 +172,7 @@ def test_y0_values():
     assert gamma0(2).Y0 == pytest.approx(0.5, rel=2e-6)
     assert gamma0(2).Y0 <= 0.5
     for N in (3, 6, 11, 12, 25, 49, 60):
-        assert gamma0(N).Y0 >= math.sqrt(3) / (2 * N)  # formulas ref. §1.3 elementary bound
+        assert gamma0(N).Y0 >= math.sqrt(3) / (2 * N)  # docs/theory.md §1.3 elementary bound
 
 
 @pytest.mark.parametrize("N", [2, 5, 6, 11, 12, 18, 25])

@@ -3,7 +3,7 @@
 Sources: scaling matrices, Iwaniec, Spectral Methods of Automorphic Forms (2002) §2.3;
 Atkin--Lehner matrices W_Q = [[Qx, y], [Nz, Qw]], det Q, normalise Gamma0(N) and
 W_Q^2 in Q Gamma0(N): Atkin & Lehner, Math. Ann. 185 (1970) 134-160; reflection
-J [[a,b],[c,d]] J = [[a,-b],[-c,d]] (formulas ref. §1.1, common practice).
+J [[a,b],[c,d]] J = [[a,-b],[-c,d]] (docs/theory.md §1.1, common practice).
 """
 
 from __future__ import annotations

@@ -28,7 +28,7 @@ def test_truncation_bounds_the_tail(R, Y):
 
 @pytest.mark.parametrize("N,label", [(1, "odd"), (1, "even"), (6, "even,2+,3-"), (10, "odd,2-,5+")])
 def test_fast_assembly_equals_the_defining_sums(N, label):
-    """The DCT/DST assembly reproduces V_{nl} = (2/Q) sum_m eps sqrt(y*) Kt cs cs (formulas ref. §1.2)."""
+    """The DCT/DST assembly reproduces V_{nl} = (2/Q) sum_m eps sqrt(y*) Kt cs cs (docs/theory.md §1.2)."""
     g = gamma0(N)
     sym = SymmetryClass.from_label(label)
     p = choose_params(20.0, 0.9 * g.fundamental_domain_height)
@@ -62,7 +62,7 @@ def test_solution_does_not_depend_on_Y_at_an_eigenvalue():
     R1 = 9.5336952613535575543
     a = HejhalSystem(g, sym, choose_params(10.0, 0.8)).solve(R1)
     b = HejhalSystem(g, sym, choose_params(10.0, 0.6)).solve(R1)
-    # a(2..4): well inside the accurate range n <~ M0/3 (formulas ref. §1.3)
+    # a(2..4): well inside the accurate range n <~ M0/3 (docs/theory.md §1.3)
     assert np.max(np.abs(a[1:4] - b[1:4])) < 1e-10
     S = HejhalSystem(g, sym, choose_params(10.0, 0.8))
     assert S.log_det(R1 - 1e-3)[0] * S.log_det(R1 + 1e-3)[0] < 0

@@ -84,7 +84,7 @@ def test_sym2_two_smoothings_agree_and_functional_equation(k):
     assert err < 1e-10
     assert 0.1 < L < 10
     r_plus, r_minus = sym2_functional_equation_residual(float(Rs), a)
-    assert r_plus < 1e-10  # root number +1, conductor 1 (formulas ref. §5.3)
+    assert r_plus < 1e-10  # root number +1, conductor 1 (docs/theory.md §5.3)
     assert r_minus > 1e-3
     # a wrong R breaks the symmetric-square functional equation too
     r_bad, _ = sym2_functional_equation_residual(float(Rs) + 1e-5, a)
@@ -94,7 +94,7 @@ def test_sym2_two_smoothings_agree_and_functional_equation(k):
 @pytest.mark.parametrize("k", [1, 3])
 def test_sym2_against_rankin_selberg_mean_value(k):
     # Rankin-Selberg: sum_n a(n)^2 e^{-n/X} ~ (6/pi^2) L(1, sym^2 f) X (common practice;
-    # formulas ref. §5.3 "alternative slow check"); error O(X^{-1/2}) -> 3 % at X = 150
+    # docs/theory.md §5.3 "alternative slow check"); error O(X^{-1/2}) -> 3 % at X = 150
     _, _, Rs = FORMS[k - 1]
     a, _ = coefficients(k)
     L, _ = sym2_L1(float(Rs), a)
@@ -127,7 +127,7 @@ def test_rankin_selberg_scaled_norm():
     a, _ = coefficients(1)
     L, _ = sym2_L1(R, a)
     v, e = rankin_selberg_norm2(R, a)
-    # ||f||^2 = L/(8 cosh pi R) (formulas ref. §5.1) = v e^{-pi R}
+    # ||f||^2 = L/(8 cosh pi R) (docs/theory.md §5.1) = v e^{-pi R}
     assert v * math.exp(-math.pi * R) == pytest.approx(L / (8 * math.cosh(math.pi * R)), rel=1e-13)
     assert e < 1e-10
 
@@ -208,7 +208,7 @@ def test_functional_equation_newforms_level_N(level):
                 bad = functional_equation_check(f.R + 1e-6, a, parity, level)
                 # small R reacts less to a shift of R (measured 3e-7 at R = 2.5, level 5)
                 assert bad.residual > max(1e-7, 1e3 * chk.residual)
-                # sym^2: conductor N^2, root number +1 (derived, formulas ref. §5.2)
+                # sym^2: conductor N^2, root number +1 (derived, docs/theory.md §5.2)
                 s2 = (0.7 + 0j, 0.3 + 2j)
                 # larger smoothing parameters: conductor N^2 makes A = (8, 16) need ~800 terms
                 r_plus, r_minus = sym2_functional_equation_residual(f.R, a, level, s2, A=(16.0, 30.0))

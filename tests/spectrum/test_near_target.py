@@ -1,7 +1,7 @@
 """Forms near a target R: nearest-k and window searches, checked against Weyl's law.
 
 Weyl's law for PSL(2,Z) with its lower-order terms (Steil, DESY report 94-028 (1994); Hejhal,
-LNM 1001 (1983); recalled from memory, see formulas ref. §2.2) fixes the expected count; the
+LNM 1001 (1983); recalled from memory, see docs/theory.md §2.2) fixes the expected count; the
 remainder S(T) has mean zero and, for this arithmetic group, Poisson-like fluctuations, so a
 window holding ~W forms may deviate by a few sqrt(W) (common practice in the field).
 """

@@ -16,7 +16,7 @@ from maasscomp.spectrum.weyl import expected_in_window, weyl_constant, weyl_coun
 def _published_level1(T: float) -> float:
     # N(T) = T^2/12 - (2T/pi) log(T/(e sqrt(pi/2))) - 131/144 - (1/pi) arg zeta(1+2iT)
     # (R. Steil, DESY 94-028 (1994); H. Then, Math. Comp. 74 (2005) -- from memory; the
-    # arg zeta term split off the remainder as in formulas ref. §2.2).  arg zeta by mpmath
+    # arg zeta term split off the remainder as in docs/theory.md §2.2).  arg zeta by mpmath
     # (principal value, which is the continuous branch at these heights).
     with mpmath.workdps(30):
         az = float(mpmath.arg(mpmath.zeta(mpmath.mpc(1, 2 * T))))
@@ -40,14 +40,14 @@ def test_level1_constant_is_minus_131_over_144():
 
 def test_level1_smooth_value_at_20_and_count_ten():
     # published-values.md: ten cusp forms with R < 20 (Booker-Strombergsson-Venkatesh
-    # 2006); the smooth part is 9.89 there (formulas ref. §2.2, two decimals printed)
+    # 2006); the smooth part is 9.89 there (docs/theory.md §2.2, two decimals printed)
     assert weyl_count(1, 20.0, oscillatory=False) == pytest.approx(9.89, abs=0.005)
     assert round(weyl_count(1, 20.0)) == 10
 
 
 def test_squarefree_constants_from_elliptic_points_and_cusps():
     # Index, cusps, nu2, nu3: Diamond-Shurman §3.9 (N=2: mu=3, h=2, nu2=1, nu3=0;
-    # N=3: mu=4, h=2, nu2=0, nu3=1; N=6 and N=11: nu2=nu3=0), constants from formulas ref. §2.3
+    # N=3: mu=4, h=2, nu2=0, nu3=1; N=6 and N=11: nu2=nu3=0), constants from docs/theory.md §2.3
     assert weyl_constant(2) == pytest.approx(-3 / 144 + 1 / 8 - 2 / 4 - 1)
     assert weyl_constant(3) == pytest.approx(-4 / 144 + 2 / 9 - 2 / 4 - 1)
     assert weyl_constant(5) == pytest.approx(-6 / 144 + 2 / 8 + 0 - 2 / 4 - 1)
@@ -56,7 +56,7 @@ def test_squarefree_constants_from_elliptic_points_and_cusps():
 
 
 def test_smooth_values_agree_with_reference_table():
-    # formulas ref. §2.3 "Predicted values" (two decimals printed; project derivation,
+    # docs/theory.md §2.3 "Predicted values" (two decimals printed; project derivation,
     # so this guards the implementation against the worked numbers, not the theory)
     table = {
         2: (5.48, 19.93, 44.71),

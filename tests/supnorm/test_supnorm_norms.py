@@ -1,6 +1,6 @@
 """L2 norms: quadrature over a fundamental domain against Rankin--Selberg.
 
-Rankin--Selberg in the cos/sin normalisation with a(1) = 1 (formulas ref. §5.1, from
+Rankin--Selberg in the cos/sin normalisation with a(1) = 1 (docs/theory.md §5.1, from
 Iwaniec, *Spectral Methods of Automorphic Forms* §8 and R. A. Smith, Proc. AMS 82 (1981)
 179-182, both cited there from memory): ||f||^2 = L(1, sym^2 f) / (8 cosh(pi R)) for level 1.
 The two norms are computed independently (quadrature from the coefficients at every cusp;
@@ -37,7 +37,7 @@ def test_level1_norms_agree(forms_by_level):
 def test_squarefree_level_formula(rs_forms):
     """||f||^2 = N L(1, sym^2 f) / (8 cosh pi R) for newforms of levels 2, 5, 11.
 
-    formulas ref. §5.2 derives this and marks it unverified; here the project's quadrature
+    docs/theory.md §5.2 derives this and marks it unverified; here the project's quadrature
     confirms it (no outside source: both sides are the project's own computations).
     """
     levels = set()

@@ -2,7 +2,7 @@
 
 Outside sources: DLMF §9.9, Table 9.9.1 (Airy constants, copied to
 data/reference/supnorm_airy_constants.csv) with the leading term of the uniform expansion
-of K_{iR} (DLMF §10.20 form, formulas ref. §3.1). The numbers from formulas ref. §3.3
+of K_{iR} (DLMF §10.20 form, docs/theory.md §3.1). The numbers from docs/theory.md §3.3
 (R = 9.5337: cusp peak 2.8235921 at (0.25216, 1.27311); R = 13.7798: local cusp peak
 2.3436238 at (0, 1.90938), |f| = 3.7587 at (0, 1)) are project-side scratch computations,
 used here as a consistency check only.
@@ -50,7 +50,7 @@ def _get(scans, level: int, R: float):
 def test_first_term_profile_airy_limit(R, tol):
     """max_y sqrt(y) Kt_R(2 pi y) / (C R^{1/6}) -> 1, C = pi 2^{1/3} (2 pi)^{-1/2} max Ai.
 
-    Leading term of the uniform (Airy-type) expansion of K_{iR} (formulas ref. §3.1, DLMF §10.20
+    Leading term of the uniform (Airy-type) expansion of K_{iR} (docs/theory.md §3.1, DLMF §10.20
     form) evaluated at the first maximum of Ai (DLMF §9.9, Table 9.9.1); the relative correction
     is O(R^{-2/3}) (4% at R = 20, 0.3% at R = 1000 as required).
     """
@@ -59,7 +59,7 @@ def test_first_term_profile_airy_limit(R, tol):
     value, y = leading_profile_peak(R, 1.0)
     ratio = value / (C * R ** (1 / 6))
     assert abs(ratio - 1) < tol
-    assert ratio < 1  # the correction is negative (formulas ref. §3.3 table)
+    assert ratio < 1  # the correction is negative (docs/theory.md §3.3 table)
     # location: 2 pi y* = R + a'_1 (R/2)^{1/3} + O(R^{-1/3})
     x_pred = R + a["a1_prime"] * (R / 2) ** (1 / 3)
     assert abs(TWO_PI * y - x_pred) < 0.6 * R ** (-1 / 3)
@@ -79,7 +79,7 @@ def test_first_term_profile_matches_special_airy_peak():
 def test_cusp_peak_level1_first_form(scans):
     f, r = _get(scans, 1, 9.5337)
     p = r.cusp_peaks[0]
-    # formulas ref. §3.3 (project scratch values, 8 and 5 digits printed)
+    # docs/theory.md §3.3 (project scratch values, 8 and 5 digits printed)
     assert abs(p.value - 2.8235921) < 2e-7
     assert abs(abs(p.x) - 0.25216) < 2e-5 and abs(p.y - 1.27311) < 2e-5
     assert r.global_region == "cusp 0"
@@ -112,13 +112,13 @@ def test_cusp_peak_is_first_term_up_to_reported_rest(scans):
 
 def test_even_form_boundary_and_transition_peaks(scans):
     f, r = _get(scans, 1, 13.7798)
-    # |f| = 3.7587 at (0, 1), the bottom of the cusp region (formulas ref. §3.3, 5 digits)
+    # |f| = 3.7587 at (0, 1), the bottom of the cusp region (docs/theory.md §3.3, 5 digits)
     assert abs(r.cusp_peaks[0].value - 3.7587) < 1e-4
     assert abs(r.cusp_peaks[0].y - 1.0) < 1e-12 and abs(r.cusp_peaks[0].x) < 1e-9
     # the boundary belongs to both regions: a tie is reported as compact
     assert r.global_region == "compact"
     assert math.isclose(r.compact_peak.value, r.cusp_peaks[0].value, rel_tol=1e-9)
-    # local cusp peak 2.3436238 at (0, 1.90938) (formulas ref. §3.3, 8 and 6 digits)
+    # local cusp peak 2.3436238 at (0, 1.90938) (docs/theory.md §3.3, 8 and 6 digits)
     assert abs(r.transition_peak[0] - 2.3436238) < 2e-7
     assert abs(r.transition_y[0] - 1.90938) < 2e-5
 
