@@ -23,7 +23,7 @@ def test_level1_norms_agree(forms_by_level):
     """All PSL(2,Z) forms with R < 20: quadrature = Rankin--Selberg to 1e-6 relative."""
     forms = [f for f in forms_by_level[1] if f.R < 20]
     # Booker-Strombergsson-Venkatesh (IMRN 2006) certify exactly ten forms with R < 20
-    # (published-values.md, [P] statement): the test store must hold all of them
+    # (statement as printed there): the test store must hold all of them
     assert len(forms) == 10
     for f in forms:
         res = l2_norm(f)
