@@ -40,7 +40,7 @@ def test_complete_list_is_not_flagged():
     assert round(rep.total_expected) == 10
     assert rep.is_complete, rep.as_text()
     assert rep.suspect_gaps == ()
-    # remainder N - W is of the usual size (docs/theory.md §2.2: r.m.s. ~0.4 for T <= 25)
+    # remainder N - W is of the usual size (docs/theory.md §2.2: r.m.s. about 0.3 for T <= 20)
     assert np.all(np.abs(rep.remainder) < 1.0)
     assert abs(rep.mean_remainder) < 0.5
     assert rep.rms_remainder < 0.6
