@@ -49,8 +49,8 @@ def test_site_builds_without_warnings(site):
         assert (html / f"{page}.html").is_file(), page
     theory = (html / "theory.html").read_text()
     # the numbered sections that code and tests cite exist, and the math went through MyST
-    for anchor in ("conventions", "hejhal-s-linear-system", "weyl-s-law", "sup-norm-facts"):
-        assert f'id="{anchor}' in theory, anchor
+    for anchor in ("conventions", "12-hejhals-linear-system", "2-weyls-law", "6-sup-norm-facts"):
+        assert f'id="{anchor}"' in theory, anchor
     assert theory.count('class="math') > 100
 
 
