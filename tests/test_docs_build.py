@@ -8,7 +8,8 @@ SL(2,Z), an evaluation, the L2 norm and the peak scan) and compares the printed 
 
 What this cannot detect: whether the prose of the theory page is right (the tests that check
 the mathematics are named on that page), or how the math looks once MathJax renders it in a
-browser.  Takes about 20 s of CPU (html build ~14 s, tutorial ~5 s).
+browser.  Takes about 25 s of CPU (html build ~17 s, tutorial ~5 s, the rest start-up);
+50-80 s of wall time were measured on a loaded 2-core machine.
 """
 
 from __future__ import annotations
