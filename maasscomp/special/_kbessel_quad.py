@@ -34,7 +34,7 @@ Oscillatory side, ``x < R`` (function :func:`osc_amplitude`)
 
 Decaying side, ``x > R`` (function :func:`decay_amplitude`)
     Shift ``t -> t + i s(t)`` with ``sin s = R t / (x sinh t)`` (the imaginary part of the
-    exponent then vanishes, as recorded in the project notes on K-Bessel methods):
+    exponent then vanishes; docs/theory.md §4.2):
 
         Kt(R, x) = exp(-Psi(x)) M(x),  M(x) = int_0^inf exp(-B(t)) dt,
 

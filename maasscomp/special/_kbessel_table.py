@@ -19,9 +19,8 @@ III. ``x_hi <= x <= x_max``: ``Kt = exp(-Psi(x)) M(x)`` with ``M`` smooth and po
      ``Psi = 700`` (Kt < 1e-300).
 IV.  ``x > x_max``: Kt is returned as 0.0 (below 1e-300).
 
-The zone layout follows the recommendation recorded in the project's K-Bessel notes
-(power series / steepest descent / turning-point method, as in Gil, Segura and Temme,
-ACM TOMS 30 (2004) 145-158); the phase-amplitude split of zone I and the per-R tables are
+The zone layout (power series / steepest descent / turning-point method, docs/theory.md §4)
+follows Gil, Segura and Temme, ACM TOMS 30 (2004) 145-158; the phase-amplitude split of zone I and the per-R tables are
 this module's own design for the many-x-per-R access pattern of Hejhal's method.
 """
 

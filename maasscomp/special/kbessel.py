@@ -148,7 +148,7 @@ def airy_peak(R: float) -> tuple[float, float]:
     """Location and value of the maximum of ``sqrt(x / (2 pi)) Kt(R, x)`` over ``x > 0``.
 
     This is the maximum over ``y > 0`` of ``sqrt(y) exp(pi R/2) K_{iR}(2 pi y)``, i.e. the
-    cusp peak of the first Fourier term of a Maass form (formulas notes §3.3).  For large
+    cusp peak of the first Fourier term of a Maass form (docs/theory.md §3.3).  For large
     ``R`` it sits in the last oscillation before the turning point,
     ``x* = R + a'_1 (R/2)^{1/3} + ...`` with ``a'_1`` the first zero of Ai' (DLMF 9.9.1),
     and the value is ``c R^{1/6} (1 + O(R^{-2/3}))``, ``c = sqrt(pi) 2^{-1/6} Ai(a'_1)``

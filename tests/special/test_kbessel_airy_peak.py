@@ -4,10 +4,11 @@ Sources:
 * Airy constants (DLMF §9.9, Table 9.9.1): a'_1 = -1.0187929716474710890,
   max over the negative axis of Ai = Ai(a'_1) = 0.5356566560 (10 digits used here).
 * Leading term of the Airy-type uniform expansion (Dunster, SIAM J. Math. Anal. 21 (1990)
-  995-1018; formulas notes §3.1/§3.3): max -> C R^{1/6}, C = pi 2^{1/3} (2 pi)^{-1/2} max Ai,
+  995-1018; docs/theory.md §3.1/§3.3): max -> C R^{1/6}, C = pi 2^{1/3} (2 pi)^{-1/2} max Ai,
   argmax x* = R + a'_1 (R/2)^{1/3} + O(R^{-1/3}).
-* Values of the maximum and argmax for R = 10 .. 10^4 computed with python-flint (arb) in the
-  project's reference notes (data/reference/kbessel_airy_peak.csv; digits as printed).
+* Values of the maximum and argmax for R = 10 .. 10^4 computed here with python-flint (arb)
+  by tests/special/make_kbessel_peak_values.py (data/reference/kbessel_airy_peak.csv; digits
+  as printed there).
 """
 
 from __future__ import annotations
@@ -31,7 +32,7 @@ _PEAK = load_csv("kbessel_airy_peak.csv")
 
 @pytest.mark.parametrize("R, rel_tol", [(20.0, 0.04), (1000.0, 0.003), (3000.0, 0.0015), (10000.0, 0.0007)])
 def test_peak_tends_to_airy_constant(R, rel_tol):
-    # deviation ~0.2426 R^{-2/3} (fit in the notes): 3.3%, 0.24%, 0.12%, 0.05%
+    # deviation ~0.2426 R^{-2/3} (fit, docs/theory.md §3.3): 3.3%, 0.24%, 0.12%, 0.05%
     _, val = airy_peak(R)
     ratio = val / (C_AIRY * R ** (1 / 6))
     assert abs(ratio - 1) <= rel_tol
@@ -56,7 +57,7 @@ def test_peak_matches_arb_values(i):
 
 @pytest.mark.parametrize("R", [10.0, 10000.0])
 def test_argmax_near_airy_prediction(R):
-    # formulas notes §3.3: within 0.2 at R = 10 and 0.02 at R = 10^4
+    # docs/theory.md §3.3 table: within 0.2 at R = 10 and 0.02 at R = 10^4
     x_star, _ = airy_peak(R)
     pred = R + A1P * (R / 2) ** (1 / 3)
     assert abs(x_star - pred) <= (0.2 if R < 100 else 0.02)

@@ -1,8 +1,8 @@
 """Spot values and input validation for maasscomp.special.ktilde.
 
-Spot values: data/reference/kbessel_spot_values.csv, computed with python-flint (arb) and
-printed in the project's reference notes (formulas.md §3.3); each value is checked to the
-number of significant digits printed there.
+Spot values: data/reference/kbessel_spot_values.csv, computed here with python-flint (arb)
+by tests/special/make_kbessel_peak_values.py; each value is checked to the number of
+significant digits printed in the file.
 """
 
 from __future__ import annotations

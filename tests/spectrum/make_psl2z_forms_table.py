@@ -94,7 +94,8 @@ def main() -> int:
         "# secant in R) with tests/spectrum/make_psl2z_forms_table.py.\n"
         "# Outside checks used by the tests: R1 to 34 decimals (Booker-Strombergsson-Venkatesh,\n"
         "# IMRN 2006, from memory), R2 and a(2..7) of form 1 (F. Chamizo's web page), the\n"
-        "# first even form (published-values.md), and the count of ten forms below R = 20 (BSV 2006).\n"
+        "# first even form (recalled from memory, see data/reference/maass_level1_published.csv),\n"
+        "# and the count of ten forms below R = 20 (BSV 2006).\n"
     )
     with open(OUT / "psl2z_forms_computed.csv", "w") as fh:
         fh.write(hdr)

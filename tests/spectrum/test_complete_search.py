@@ -1,7 +1,8 @@
 """Completeness against Weyl's law and the automatic re-search of deficit windows.
 
 Source for the count: exactly ten cusp forms of PSL(2,Z) have R < 20 (Booker,
-Strömbergsson and Venkatesh, IMRN 2006, certify the first ten; published-values file).
+Strömbergsson and Venkatesh, IMRN 2006, certify the first ten eigenvalues; statement as
+printed there, digits of the tenth recalled from memory).
 """
 
 from __future__ import annotations

@@ -45,7 +45,7 @@ def test_r1_to_30_digits_matches_published(r1_30):
 
 def test_r1_coefficients_match_published(r1_30):
     # F. Chamizo, "Plotting Maass forms" (web page quoting published tables), digits as
-    # printed there (published-values.md)
+    # printed there (data/reference/maass_level1_published.csv, status P)
     printed = {2: "-1.0683335512", 3: "-0.45619735450", 4: "0.14133657666", 5: "-0.2906725549",
                6: "0.4873709397983", 7: "-0.7449416121475798"}
     for n, s in printed.items():
@@ -65,8 +65,9 @@ def test_r1_hecke_relations_high_precision(r1_30):
 
 
 def test_first_even_form_20_digits():
-    # published-values.md: R = 13.779751351890738 (from memory, confirmed by computation),
-    # a(2) = 1.549304477941, a(3) = 0.246899772453, a(5) = 0.737060385348 (12 decimals)
+    # R = 13.779751351890738, a(2) = 1.549304477941, a(3) = 0.246899772453,
+    # a(5) = 0.737060385348 (12 decimals): recalled from memory of the literature
+    # (data/reference/maass_level1_published.csv, status M)
     f = refine_high_precision(1, 13.779751351890738, "even", 20)
     assert abs(f.R_float - 13.779751351890738) < 2e-14
     for n, v in {2: 1.549304477941, 3: 0.246899772453, 5: 0.737060385348}.items():

@@ -94,7 +94,7 @@ def test_sym2_two_smoothings_agree_and_functional_equation(k):
 @pytest.mark.parametrize("k", [1, 3])
 def test_sym2_against_rankin_selberg_mean_value(k):
     # Rankin-Selberg: sum_n a(n)^2 e^{-n/X} ~ (6/pi^2) L(1, sym^2 f) X (common practice;
-    # docs/theory.md §5.3 "alternative slow check"); error O(X^{-1/2}) -> 3 % at X = 150
+    # docs/theory.md §5.3 "mean-value check"); error O(X^{-1/2}) -> 3 % at X = 150
     _, _, Rs = FORMS[k - 1]
     a, _ = coefficients(k)
     L, _ = sym2_L1(float(Rs), a)

@@ -1,7 +1,7 @@
 """Completeness reports against Weyl's law (maasscomp.spectrum.weyl.completeness).
 
 Outside source: exactly ten cusp forms on PSL(2,Z) have R < 20 (Booker-Strombergsson-
-Venkatesh, IMRN 2006, certify the first ten eigenvalues; published-values.md).  The ten
+Venkatesh, IMRN 2006, certify the first ten eigenvalues, as stated there).  The ten
 values themselves are a project computation (data/reference/psl2z_forms_computed.csv),
 whose first three agree with published digits (checked in test_psl2z_table_values).
 """
@@ -22,9 +22,9 @@ def _R() -> np.ndarray:
 
 
 def test_psl2z_table_values():
-    # published-values.md: R1 = 9.53369526135 (Chamizo page, 11 decimals), R2 =
-    # 12.173008324679677 (Chamizo, 15 decimals), first even form 13.779751351890738
-    # (from memory, 15 decimals); ten forms below 20 (BSV 2006)
+    # data/reference/maass_level1_published.csv: R1 = 9.53369526135 (Chamizo page, 11
+    # decimals), R2 = 12.173008324679677 (Chamizo, 15 decimals), first even form
+    # 13.779751351890738 (from memory, 15 decimals); ten forms below 20 (BSV 2006)
     f = forms()
     assert len(f) == 10 and all(float(r) < 20 for _, _, r in f)
     assert abs(float(f[0][2]) - 9.53369526135) < 1e-11 and f[0][1] == "odd"
@@ -40,7 +40,7 @@ def test_complete_list_is_not_flagged():
     assert round(rep.total_expected) == 10
     assert rep.is_complete, rep.as_text()
     assert rep.suspect_gaps == ()
-    # remainder N - W is of the usual size (docs/theory.md §2.2: r.m.s. ~0.4 for T <= 25)
+    # remainder N - W is of the usual size (docs/theory.md §2.2: r.m.s. about 0.3 for T <= 20)
     assert np.all(np.abs(rep.remainder) < 1.0)
     assert abs(rep.mean_remainder) < 0.5
     assert rep.rms_remainder < 0.6

@@ -39,8 +39,8 @@ def test_level1_constant_is_minus_131_over_144():
 
 
 def test_level1_smooth_value_at_20_and_count_ten():
-    # published-values.md: ten cusp forms with R < 20 (Booker-Strombergsson-Venkatesh
-    # 2006); the smooth part is 9.89 there (docs/theory.md §2.2, two decimals printed)
+    # ten cusp forms with R < 20 (Booker-Strombergsson-Venkatesh, IMRN 2006, as stated
+    # there); the smooth part is 9.89 there (docs/theory.md §2.2, two decimals printed)
     assert weyl_count(1, 20.0, oscillatory=False) == pytest.approx(9.89, abs=0.005)
     assert round(weyl_count(1, 20.0)) == 10
 

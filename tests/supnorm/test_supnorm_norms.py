@@ -23,7 +23,7 @@ def test_level1_norms_agree(forms_by_level):
     """All PSL(2,Z) forms with R < 20: quadrature = Rankin--Selberg to 1e-6 relative."""
     forms = [f for f in forms_by_level[1] if f.R < 20]
     # Booker-Strombergsson-Venkatesh (IMRN 2006) certify exactly ten forms with R < 20
-    # (published-values.md, [P] statement): the test store must hold all of them
+    # (statement as printed there): the test store must hold all of them
     assert len(forms) == 10
     for f in forms:
         res = l2_norm(f)
@@ -37,8 +37,8 @@ def test_level1_norms_agree(forms_by_level):
 def test_squarefree_level_formula(rs_forms):
     """||f||^2 = N L(1, sym^2 f) / (8 cosh pi R) for newforms of levels 2, 5, 11.
 
-    docs/theory.md §5.2 derives this and marks it unverified; here the project's quadrature
-    confirms it (no outside source: both sides are the project's own computations).
+    docs/theory.md §5.2 derives this and names this test as its check: the project's
+    quadrature confirms it (no outside source: both sides are the project's own computations).
     """
     levels = set()
     for f in rs_forms.values():
