@@ -50,7 +50,7 @@ def run(path: Path, forms: list[Form], batch: int, durable: bool) -> float:
     if path.exists():
         path.unlink()
     t = time.perf_counter()
-    with Store.open(path, "a", durable=durable) as st:
+    with Store.open(path, "a", create=True, durable=durable) as st:
         for i in range(0, len(forms), batch):
             st.add_forms(forms[i:i + batch])
     return time.perf_counter() - t

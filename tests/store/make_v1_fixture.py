@@ -68,7 +68,7 @@ def main() -> None:
     if OUT.exists():
         OUT.unlink()
     forms = fixture_forms()
-    with Store.open(OUT, "a") as st:
+    with Store.open(OUT, "a", create=True) as st:
         rid = st.begin_run("fixture-run", config_text="[job]\nname = \"fixture-run\"\n")
         with st.transaction():
             keys = st.add_forms(forms[:3], config_text="levels = [1, 11]\n", run_id=rid)

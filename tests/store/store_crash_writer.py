@@ -17,7 +17,7 @@ def main() -> None:
 
     path, start, batch = sys.argv[1], int(sys.argv[2]), int(sys.argv[3])
     count = int(sys.argv[4]) if len(sys.argv) > 4 else 10**9
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         print("ready", flush=True)
         i = start
         while i < start + count:

@@ -74,6 +74,6 @@ def test_sigkill_at_random_moments_keeps_a_complete_prefix(tmp_path, batch):
     assert kills == 5
     assert n > 0, "no transaction committed in 5 runs; the test did not exercise anything"
     # a stale temporary of the last kill may remain; the next writer removes it
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         assert len(st) == n
     assert not [p for p in tmp_path.iterdir() if ".tmp." in p.name]
