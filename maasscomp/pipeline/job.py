@@ -149,20 +149,24 @@ def check_compatible(st, cfg: Config) -> None:
 
 
 def preflight(cfg: Config) -> Plan:
-    """Everything that can fail before any file is written: config, plan, existing store."""
+    """Everything that can fail before any file is written: config, plan, files, scheduler.
+
+    See :mod:`maasscomp.pipeline.preflight` for the checks of the store and log paths and
+    :func:`maasscomp.pipeline.executors.probe_dask_scheduler` for the scheduler address.
+    """
+    from maasscomp.pipeline.executors import probe_dask_scheduler
+    from maasscomp.pipeline.preflight import check_log_path, check_store_path
     from maasscomp.store import Store
 
+    check_store_path(cfg)
+    check_log_path(cfg)
     plan = build_plan(cfg)
     out = cfg.job.output
     if out.exists():
         with Store.open(out, "r") as st:  # StoreError for a foreign or damaged file
             check_compatible(st, cfg)
-    elif not out.parent.is_dir():
-        raise InputError(f"[job] output={str(out)!r}: directory {out.parent} does not exist")
-    if cfg.job.log.exists() and cfg.job.log.is_dir():
-        raise InputError(f"[job] log={str(cfg.job.log)!r} is a directory; give a file name")
-    if not cfg.job.log.parent.is_dir():
-        raise InputError(f"[job] log={str(cfg.job.log)!r}: directory {cfg.job.log.parent} does not exist")
+    if cfg.executor.backend == "dask" and cfg.executor.address:
+        probe_dask_scheduler(cfg.executor.address)
     return plan
 
 
@@ -176,12 +180,24 @@ def _task_order(plan: Plan) -> list:
     return sorted(plan.tasks, key=lambda t: -cost(t))
 
 
+class _LogHandler(logging.FileHandler):
+    """A log file that never prints tracebacks of its own failures (a full disk would
+    otherwise bury the one-line error of the run under them)."""
+
+    def handleError(self, record: logging.LogRecord) -> None:
+        pass
+
+
 class _LogFile:
     """Attach a file handler for one run (and a stderr handler in verbose mode)."""
 
     def __init__(self, path: Path, verbose: bool) -> None:
         self.handlers: list[logging.Handler] = []
-        fh = logging.FileHandler(path, encoding="utf-8")
+        try:
+            fh = _LogHandler(path, encoding="utf-8")
+        except OSError as exc:
+            raise InputError(f"[job] log={str(path)!r}: cannot open the log file "
+                             f"({exc.strerror or exc})") from None
         fh.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(message)s"))
         fh.setLevel(logging.DEBUG)
         self.handlers.append(fh)
@@ -257,10 +273,10 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
             ex.__enter__()
             entered = True
         summary.backend, summary.workers = ex.name, ex.workers
-        st = Store.open(cfg.job.output, "a")
+        logf = _LogFile(cfg.job.log, verbose)
+        st = Store.open(cfg.job.output, "a", create=True)
         check_compatible(st, cfg)  # again under the writer lock
         st.begin_run(run_id, config_text=run_record(cfg))
-        logf = _LogFile(cfg.job.log, verbose)
         done = st.done_tasks(run_id)
         todo = [t for t in _task_order(plan) if t.task_id not in done]
         summary.tasks_skipped = len(plan.tasks) - len(todo)
@@ -307,8 +323,12 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
         summary.seconds = time.perf_counter() - t0
         log.info("summary:\n%s", summary.as_text(), extra={"file_only": True})
         return summary
-    except KeyboardInterrupt:
-        log.warning("interrupted; finished tasks are stored, rerun the same config to resume")
+    except KeyboardInterrupt as exc:
+        log.warning("%s; finished tasks are stored, rerun the same config to resume",
+                    str(exc) or "interrupted")
+        raise
+    except StoreError as exc:
+        log.error("stopped: %s", exc)
         raise
     finally:
         if st is not None:

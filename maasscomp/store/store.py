@@ -1227,6 +1227,10 @@ class Store:
                 f"writing a commit of {len(txn.rows)} form(s) to {self._path} failed: "
                 f"{_atomic.cause(exc)}; the store keeps every earlier commit and nothing of "
                 "this one") from exc
+        except BaseException:  # an interrupt inside the write: drop the partial record
+            with contextlib.suppress(OSError):
+                os.ftruncate(self._fd, start)
+            raise
         data_start = start + L.REC_HEAD_SIZE + index_len
         for pos in txn.rows:
             r = idx.buf[pos]
@@ -1723,8 +1727,11 @@ class Store:
         ``name``; damaged ones are skipped and appended to ``damaged`` as (key, reason)."""
         for k in (self.keys() if keys is None else list(keys)):
             pos = self._position(k)
-            if (pos in self._idx.damaged or name not in self._idx.atts.get(pos, {})
-                    or (pos, name) in self._idx.bad_atts):
+            if pos in self._idx.damaged or name not in self._idx.atts.get(pos, {}):
+                continue
+            if (pos, name) in self._idx.bad_atts:
+                if damaged is not None:
+                    damaged.append((k, self._idx.bad_atts[(pos, name)]))
                 continue
             try:
                 yield k, self.get_attachment(k, name)
