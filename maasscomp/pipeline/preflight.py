@@ -24,7 +24,7 @@ _HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
 def _limits(directory: Path) -> tuple[int, int]:
     """(NAME_MAX, PATH_MAX) of the file system holding ``directory`` (255/4096 if unknown)."""
     d = directory
-    while not d.exists() and d != d.parent:
+    while not os.path.isdir(d) and d != d.parent:  # os.path: False for over-long paths
         d = d.parent
     try:
         return os.pathconf(d, "PC_NAME_MAX"), os.pathconf(d, "PC_PATH_MAX")
