@@ -277,7 +277,7 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
         st = Store.open(cfg.job.output, "a", create=True)
         check_compatible(st, cfg)  # again under the writer lock
         st.begin_run(run_id, config_text=run_record(cfg))
-        done = st.done_tasks(run_id)
+        done = _intact_done_tasks(st, run_id, echo)
         todo = [t for t in _task_order(plan) if t.task_id not in done]
         summary.tasks_skipped = len(plan.tasks) - len(todo)
         log.info("run %r of %s (maasscomp %s), fingerprint %s, store %s",
@@ -337,6 +337,23 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
             ex.__exit__(None, None, None)
         if logf is not None:
             logf.close()
+
+
+def _intact_done_tasks(st, run_id: str, echo) -> dict[str, list[str]]:
+    """Finished tasks of the run whose forms are all intact.
+
+    Every form is read and checked once (:meth:`maasscomp.store.Store.verify`); a task
+    that produced a damaged form is run again, and the store replaces the damaged form
+    by the recomputed one.
+    """
+    damaged = st.verify()
+    if damaged:
+        log.warning("%d damaged item(s) in %s: %s; the tasks that made them run again",
+                    len(damaged), st.path, "; ".join(f"{k}: {v}" for k, v in damaged.items()))
+        echo(f"warning: {len(damaged)} damaged item(s) in {st.path}; the tasks that made "
+             "them run again")
+    done = st.done_tasks(run_id)
+    return {t: keys for t, keys in done.items() if not any(k in damaged for k in keys)}
 
 
 def _store_outputs(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str,
@@ -499,7 +516,10 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
         # a scan made with other grid settings (e.g. by `maasscomp scan`) is redone
         if attachment not in st.attachments(k):
             return False
-        old = st.get_attachment(k, attachment)
+        try:
+            old = st.get_attachment(k, attachment)
+        except StoreError:  # a damaged scan is made again (and replaced)
+            return False
         return old.get("Y_c") == sc.Y_c and old.get("rtol") == sc.rtol
 
     todo = [k for k in keys if not scanned(k)]

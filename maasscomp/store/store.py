@@ -1945,6 +1945,10 @@ def _write_base(tmp: Path, *, root: dict[str, Any], store_id: bytes, source: Sto
         n_vals += lc + le
         n_meta += lm
         n_lab += ll
+    if source is not None:  # encoding version-1 forms above may have added config texts
+        for tid in list(source._idx.texts):
+            if tid not in texts:
+                texts = {**texts, tid: source._text(tid)}
     atts = []  # (position, name, _Att or None, blob from the cache)
     n_names = n_blobs = 0
     for pos in chosen:

@@ -76,3 +76,26 @@ def test_v1_store_lists(v1_copy, capsys):
     for rec in old["forms"]:
         assert rec["key"] in out
     assert f"{len(old['forms'])} forms" in out
+
+
+def test_first_write_migrates_to_version_2_keeping_everything(v1_copy, tmp_path):
+    """Opening a version-1 store for writing rewrites it as version 2 (same keys, forms,
+    attachments, runs, provenance and file mode); the next export equals the old one."""
+    import os
+
+    os.chmod(v1_copy, 0o640)
+    old = json.loads(V1_EXPORT.read_text())
+    with Store.open(v1_copy, "a") as st:
+        assert st.schema_version == 2
+        assert st.keys() == [r["key"] for r in old["forms"]]
+    assert os.stat(v1_copy).st_mode & 0o777 == 0o640
+    out = tmp_path / "migrated.json"
+    export_json(v1_copy, out, attachments=True)
+    new = json.loads(out.read_text())
+    for k in _VOLATILE:
+        old.pop(k, None)
+    old["store"].pop("schema_version")
+    _contains(new, old)
+    assert new["store"]["schema_version"] == 2
+    with Store.open(v1_copy) as st:
+        assert st.verify() == {}
