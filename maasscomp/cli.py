@@ -179,7 +179,12 @@ def _cmd_report(args: argparse.Namespace) -> int:
     return 0
 
 
-def build_parser() -> argparse.ArgumentParser:
+#: Commands defined in this module; parsing them needs no other stage's command hooks (which
+#: import the numerical stages, seconds of start-up for a listing).
+_OWN_COMMANDS = ("run", "check", "list", "export", "report", "salvage", "keys")
+
+
+def build_parser(hooks: bool = True) -> argparse.ArgumentParser:
     p = _Parser(prog="maasscomp",
                 description="Maass cusp forms on Gamma0(N): eigenvalues, coefficients, sup-norms.")
     p.add_argument("--version", action="version", version=f"maasscomp {__version__}")
@@ -239,7 +244,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     import importlib.util
 
-    if importlib.util.find_spec("maasscomp.supnorm.commands") is not None:
+    if hooks and importlib.util.find_spec("maasscomp.supnorm.commands") is not None:
         from maasscomp.supnorm import commands as supnorm_commands
 
         supnorm_commands.add_commands(sub)
@@ -257,7 +262,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Entry point; returns the exit code (2 for user errors)."""
     import signal
 
-    parser = build_parser()
+    first = (list(argv) if argv is not None else sys.argv[1:])[:1]
+    parser = build_parser(hooks=not (first and first[0] in _OWN_COMMANDS))
     try:
         old = signal.signal(signal.SIGTERM, _on_sigterm)
     except ValueError:  # not the main thread: leave signals alone

@@ -19,6 +19,7 @@ generator g_i): chi(g_i) = exp(2 pi i k_i / o_i).  Its label is ``X<N>.<k_1>.<k_
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 from fractions import Fraction
@@ -64,6 +65,7 @@ class _Local:
     orders: tuple[int, ...]
 
 
+@functools.lru_cache(maxsize=1024)
 def _local_parts(N: int) -> tuple[_Local, ...]:
     out = []
     for p, e in sorted(factorint(N).items()):
@@ -79,6 +81,7 @@ def _local_parts(N: int) -> tuple[_Local, ...]:
     return tuple(out)
 
 
+@functools.lru_cache(maxsize=1024)
 def unit_generators(N: int) -> tuple[tuple[int, int], ...]:
     """The fixed generators of (Z/NZ)^x with their orders, as ((g mod N, order), ...).
 

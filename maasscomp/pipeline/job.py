@@ -365,18 +365,18 @@ def _store_outputs(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str,
     if not good:
         return added
     with st.transaction():
-        before = set(st.keys())
         for o in good:
             forms = o.output.forms
-            keys = st.add_forms(forms, on_duplicate="skip", config_text=cfg.source_text, run_id=run_id)
+            stored: list[str] = []
+            keys = st.add_forms(forms, on_duplicate="skip", config_text=cfg.source_text,
+                                run_id=run_id, added=stored)
             st.mark_task_done(o.task_id, keys, run_id=run_id)
-            n = 0
+            fresh = set(stored)
             for f, k in zip(forms, keys):
-                if k not in before:
-                    before.add(k)
+                if k in fresh:
+                    fresh.discard(k)
                     new_counts[(f.level, f.symmetry.label)] += 1
-                    n += 1
-            added[o.task_id] = n
+            added[o.task_id] = len(stored)
     return added
 
 

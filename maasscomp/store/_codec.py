@@ -199,7 +199,18 @@ def to_plain_json(v: Any) -> Any:
     Non-finite floats become the strings ``"nan"``, ``"inf"``, ``"-inf"`` because strict JSON
     has no token for them.
     """
-    if v is None or isinstance(v, (bool, str)):
+    t = type(v)
+    if t is str or t is int or t is bool or v is None:
+        return v
+    if t is float:
+        if math.isfinite(v):
+            return v
+        return "nan" if math.isnan(v) else ("inf" if v > 0 else "-inf")
+    if t is dict:
+        return {str(k): to_plain_json(x) for k, x in v.items()}
+    if t is list and all(type(x) is float for x in v) and all(map(math.isfinite, v)):
+        return v
+    if isinstance(v, (bool, str)):
         return v
     if isinstance(v, (np.ndarray, np.generic)):
         return to_plain_json(v.tolist())

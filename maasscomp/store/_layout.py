@@ -113,27 +113,37 @@ def split_labels(raw: bytes) -> tuple[str, str, str]:
     return parts[0], parts[1], parts[2]
 
 
-def content_digest(row: np.ndarray, labels: bytes, meta: bytes | memoryview,
+def _ranges(names: tuple[str, ...]) -> tuple[tuple[int, int], ...]:
+    return tuple((ROW_DTYPE.fields[n][1], ROW_DTYPE.fields[n][0].itemsize) for n in names)
+
+
+#: Byte ranges of a row left out of the per-form checksum (locations and the checksums).
+_CONTENT_HOLES = _ranges(LOCATION_FIELDS + ("data_sum", "row_sum"))
+_ROW_HOLES = _ranges(("row_sum",))
+
+
+def _punched(row: np.ndarray | bytes, holes: tuple[tuple[int, int], ...]) -> bytearray:
+    b = bytearray(row if isinstance(row, (bytes, bytearray, memoryview)) else row.tobytes())
+    for off, size in holes:
+        b[off:off + size] = bytes(size)
+    return b
+
+
+def content_digest(row: np.ndarray | bytes, labels: bytes, meta: bytes | memoryview,
                    coeffs: bytes | memoryview, errors: bytes | memoryview) -> bytes:
     """The per-form checksum: every stored field of the form, wherever it is placed.
 
     Covers the row without its locations and checksums, the labels, the metadata blob
     (symmetry, character, cusps, solver, extra, provenance) and the two arrays, so moving
     a form (compaction) keeps its checksum and any changed byte of the form changes it.
+    ``row`` is one row of :data:`ROW_DTYPE` (or its bytes).
     """
-    r = row.copy()
-    for f in LOCATION_FIELDS:
-        r[f] = 0
-    r["data_sum"] = 0
-    r["row_sum"] = 0
-    return digest(b"maasscomp-form-2\0", r.tobytes(), labels, meta, coeffs, errors)
+    return digest(b"maasscomp-form-2\0", _punched(row, _CONTENT_HOLES), labels, meta, coeffs, errors)
 
 
-def row_digest(row: np.ndarray, labels: bytes) -> bytes:
+def row_digest(row: np.ndarray | bytes, labels: bytes) -> bytes:
     """Checksum of one index row (as placed) and its labels: what a listing relies on."""
-    r = row.copy()
-    r["row_sum"] = 0
-    return digest(b"maasscomp-row-2\0", r.tobytes(), labels)
+    return digest(b"maasscomp-row-2\0", _punched(row, _ROW_HOLES), labels)
 
 
 # ---------------------------------------------------------------- blobs (JSON + raw arrays)

@@ -30,8 +30,10 @@ through their own file descriptor, so neither appends nor a compaction change wh
 
 from __future__ import annotations
 
+import bisect
 import contextlib
 import dataclasses
+import functools
 import json
 import logging
 import math
@@ -41,7 +43,7 @@ import warnings
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any, Iterable, Iterator
+from typing import TYPE_CHECKING, Any, Iterable, Iterator
 
 import h5py
 import numpy as np
@@ -49,12 +51,13 @@ import numpy as np
 from maasscomp import __version__
 from maasscomp.errors import (DamagedDataWarning, DamagedFormError, InputError, StoreError,
                               StoreWriteError)
-from maasscomp.groups import DirichletCharacter, gamma0
-from maasscomp.hejhal.types import SolverParams, SymmetryClass
-from maasscomp.spectrum.form import Form
+from maasscomp.groups import DirichletCharacter, gamma0, unit_generators
 from maasscomp.store import _atomic, _codec
 from maasscomp.store import _layout as L
 from maasscomp.store import schema as S
+
+if TYPE_CHECKING:  # the form classes are imported where forms are built: listing needs none
+    from maasscomp.spectrum.form import Form
 
 #: Default absolute tolerance on R for duplicate detection.  Distinct eigenvalues of one
 #: level and symmetry class closer than this are not expected in the ranges studied; a
@@ -185,7 +188,9 @@ class _Index:
         self.runs: dict[str, _Run] = {}
         self.texts: dict[str, str | None] = {}  # None: in the base
         self.next_seq = 0
-        self.buckets: dict[tuple, list[int]] | None = None
+        # duplicate detection: (level, symmetry, character, basis index) -> R-sorted
+        # parallel lists (R values, positions), built on the first write
+        self.buckets: dict[tuple, tuple[list[float], list[int]]] | None = None
         self.log_bytes = 0
         self.log_rows = 0
         self.base_bytes = 0
@@ -216,7 +221,7 @@ class _Index:
             self.kill(old)
         self.pos[key] = i
         if self.buckets is not None:
-            self.buckets.setdefault(self.bucket(i), []).append(i)
+            self._bucket_add(i)
         return i
 
     def bulk(self, rows: np.ndarray, keys: list[str], syms: list[str], chars: list[str],
@@ -253,18 +258,47 @@ class _Index:
             del self.pos[self.keys[i]]
         if self.buckets is not None:
             b = self.buckets.get(self.bucket(i))
-            if b and i in b:
-                b.remove(i)
+            if b is not None:
+                R = float(self.buf[i]["R"])
+                j = bisect.bisect_left(b[0], R)
+                while j < len(b[0]) and b[0][j] == R:
+                    if b[1][j] == i:
+                        del b[0][j], b[1][j]
+                        break
+                    j += 1
 
     def bucket(self, i: int) -> tuple:
         r = self.buf[i]
         return (int(r["level"]), self.syms[i], self.chars[i], int(r["basis_index"]))
 
+    def _bucket_add(self, i: int) -> None:
+        Rs, ps = self.buckets.setdefault(self.bucket(i), ([], []))  # type: ignore[union-attr]
+        R = float(self.buf[i]["R"])
+        j = bisect.bisect_right(Rs, R)
+        Rs.insert(j, R)
+        ps.insert(j, i)
+
     def build_buckets(self) -> None:
         if self.buckets is None:
+            live = np.flatnonzero(self.alive[:self.n])
+            rows = self.buf[live]
+            order = np.lexsort((live, rows["R"]))  # by R, then write order
+            levels, Rs, bis = (rows[f][order].tolist() for f in ("level", "R", "basis_index"))
             self.buckets = {}
-            for i in np.flatnonzero(self.alive[:self.n]):
-                self.buckets.setdefault(self.bucket(int(i)), []).append(int(i))
+            for i, lev, R, b in zip(live[order].tolist(), levels, Rs, bis):
+                Rl, pl = self.buckets.setdefault((lev, self.syms[i], self.chars[i], b), ([], []))
+                Rl.append(R)
+                pl.append(i)
+
+    def near(self, key: tuple, R: float, tol: float) -> list[int]:
+        """Positions of the bucket ``key`` with |R_i - R| <= tol."""
+        self.build_buckets()
+        b = self.buckets.get(key)  # type: ignore[union-attr]
+        if not b:
+            return []
+        lo = bisect.bisect_left(b[0], R - tol)
+        hi = bisect.bisect_right(b[0], R + tol)
+        return b[1][lo:hi]
 
     def live_positions(self) -> np.ndarray:
         return np.flatnonzero(self.alive[:self.n])
@@ -279,6 +313,7 @@ class _Txn:
         self.data = bytearray()
         self.rows: list[int] = []          # index positions of the forms added
         self.labels = bytearray()
+        self.atts: list[_Att] = []         # attachments written in this transaction
 
     def put(self, b: bytes) -> int:
         """Append bytes to the data part (8-byte aligned); return their offset."""
@@ -294,6 +329,9 @@ class _Txn:
 
 
 def _validate_form(form: Form) -> None:
+    from maasscomp.hejhal.types import SolverParams, SymmetryClass
+    from maasscomp.spectrum.form import Form
+
     if not isinstance(form, Form):
         raise InputError(f"expected a maasscomp Form, got {type(form).__name__}")
     if isinstance(form.level, bool) or not isinstance(form.level, (int, np.integer)) or form.level < 1:
@@ -349,9 +387,23 @@ def _validate_form(form: Form) -> None:
                          f"modulo the level {form.level}")
 
 
+@functools.lru_cache(maxsize=4096)
+def _character(modulus: int, exponents: tuple[int, ...]) -> DirichletCharacter:
+    return DirichletCharacter(modulus, exponents)
+
+
+@functools.lru_cache(maxsize=4096)
+def _cusp_infos(rows: tuple[tuple, ...]) -> tuple[CuspInfo, ...]:
+    return tuple(CuspInfo(j, str(c[0]), int(c[1]), int(c[2]), int(c[3]),
+                          ((int(c[4]), int(c[5])), (int(c[6]), int(c[7]))))
+                 for j, c in enumerate(rows))
+
+
 def _character_of(form: Form) -> DirichletCharacter:
     char = getattr(form, "character", None)
-    return char if char is not None else DirichletCharacter.trivial(int(form.level))
+    if char is not None:
+        return char
+    return _character(int(form.level), (0,) * len(unit_generators(int(form.level))))
 
 
 def _cusps_of(level: int, n_cusps: int) -> list[list]:
@@ -388,6 +440,8 @@ class _Encoded:
 
 def _encode_form(f: Form, key: str, seq: int, created_utc: str, run_id: str,
                  config_id: str, package_version: str) -> _Encoded:
+    from maasscomp.spectrum.form import Form
+
     char = _character_of(f)
     n_cusps, M = (int(x) for x in f.coeffs.shape)
     extra_doc, extra_arrays = _codec.encode_extra(f.extra)
@@ -1095,6 +1149,9 @@ class Store:
         return t
 
     def _read_v1(self, pos: int) -> StoredForm:
+        from maasscomp.hejhal.types import SolverParams, SymmetryClass
+        from maasscomp.spectrum.form import Form
+
         idx = self._idx
         key = idx.keys[pos]
         if pos in idx.damaged:
@@ -1239,11 +1296,9 @@ class Store:
             r["meta_at"] += data_start
         if txn.rows:
             idx.src[txn.rows] = _SRC_FILE
-        for atts in idx.atts.values():
-            for a in atts.values():
-                if a.src == _SRC_PENDING:
-                    a.src = _SRC_FILE
-                    a.at += data_start
+        for a in txn.atts:
+            a.src = _SRC_FILE
+            a.at += data_start
         self._end = self._valid_end = start + len(rec)
         idx.log_bytes += len(rec)
         idx.log_rows += len(txn.rows)
@@ -1416,11 +1471,16 @@ class Store:
         :meth:`damaged`."""
         for k in (self.keys() if keys is None else list(keys)):
             pos = self._position(k)
+            v1 = int(self._idx.src[pos]) == _SRC_V1
             with contextlib.suppress(DamagedFormError):
-                self._read(pos)
+                # a version-2 form whose bytes pass the checksum decodes (the writer made
+                # them); a version-1 form has no checksum and is decoded whole
+                self._read(pos) if v1 else self._form_parts(pos)
                 for name in list(self._idx.atts.get(pos, {})):
-                    with contextlib.suppress(DamagedFormError):
-                        self.get_attachment(k, name)
+                    try:
+                        self.get_attachment(k, name) if v1 else self._att_blob(pos, name)
+                    except DamagedFormError as exc:
+                        self._idx.bad_atts[(pos, name)] = str(exc)
         return self.damaged()
 
     def iter_forms(self, keys: Iterable[str] | None = None) -> Iterator[StoredForm]:
@@ -1489,35 +1549,41 @@ class Store:
         if keys is None:
             pos = np.flatnonzero(self._intact())
         else:
-            pos = [self._position(k) for k in keys]
-            pos = [p for p in pos if p not in idx.damaged]
-        rows = idx.rows
+            pos = np.array([p for p in (self._position(k) for k in keys) if p not in idx.damaged],
+                           dtype=np.int64)
+        rows = idx.rows[pos]
+        col = {f: rows[f].tolist() for f in ("level", "R", "R_error", "hecke_residual", "is_new",
+                                              "multiplicity", "basis_index", "n_cusps", "M",
+                                              "coeffs_kind")}
+        K0 = min(n_coeffs, L.PREVIEW)
+        prev = rows["preview"][:, :2 * K0].tolist()
+        new_from = S.IS_NEW_FROM_CODE
         out = []
-        for i in pos:
-            r = rows[i]
-            M = int(r["M"])
+        for j, i in enumerate(pos.tolist()):
+            M = col["M"][j]
             K = min(n_coeffs, M)
-            cplx = int(r["coeffs_kind"]) == L.KIND_COMPLEX
             row: dict[str, Any] = {
-                "key": idx.keys[i], "level": int(r["level"]), "symmetry": idx.syms[i],
-                "character": idx.chars[i], "R": float(r["R"]), "R_error": float(r["R_error"]),
-                "hecke_residual": float(r["hecke_residual"]),
-                "is_new": S.IS_NEW_FROM_CODE[int(r["is_new"])],
-                "multiplicity": int(r["multiplicity"]), "basis_index": int(r["basis_index"]),
-                "n_cusps": int(r["n_cusps"]), "M": M,
+                "key": idx.keys[i], "level": col["level"][j], "symmetry": idx.syms[i],
+                "character": idx.chars[i], "R": col["R"][j], "R_error": col["R_error"][j],
+                "hecke_residual": col["hecke_residual"][j], "is_new": new_from[col["is_new"][j]],
+                "multiplicity": col["multiplicity"][j], "basis_index": col["basis_index"][j],
+                "n_cusps": col["n_cusps"][j], "M": M,
             }
             if K > L.PREVIEW:
                 try:
-                    c0 = self._read(int(i)).form.coeffs[0]
+                    c0 = self._read(i).form.coeffs[0]
                 except DamagedFormError:
                     continue
-                vals = [c0[n].item() for n in range(K)]
+                for n in range(K):
+                    row[f"c{n + 1}"] = c0[n].item()
             else:
-                p = r["preview"]
-                vals = [complex(p[2 * n], p[2 * n + 1]) if cplx else float(p[2 * n])
-                        for n in range(K)]
-            for n, v in enumerate(vals):
-                row[f"c{n + 1}"] = v
+                p = prev[j]
+                if col["coeffs_kind"][j] == L.KIND_COMPLEX:
+                    for n in range(K):
+                        row[f"c{n + 1}"] = complex(p[2 * n], p[2 * n + 1])
+                else:
+                    for n in range(K):
+                        row[f"c{n + 1}"] = p[2 * n]
             out.append(row)
         return out
 
@@ -1532,11 +1598,10 @@ class Store:
 
     def _find_dup(self, form: Form, tol: float, char: str) -> int | None:
         idx = self._idx
-        idx.build_buckets()
-        assert idx.buckets is not None
         best, best_d = None, math.inf
-        for i in idx.buckets.get((int(form.level), form.symmetry.label, char, int(form.basis_index)), ()):
-            d = abs(float(idx.buf[i]["R"]) - float(form.R))
+        R = float(form.R)
+        for i in idx.near((int(form.level), form.symmetry.label, char, int(form.basis_index)), R, tol):
+            d = abs(float(idx.buf[i]["R"]) - R)
             if d <= tol and (d < best_d or (d == best_d and i < best)):  # type: ignore[operator]
                 best, best_d = i, d
         return best
@@ -1549,7 +1614,7 @@ class Store:
 
     def add_forms(self, forms: Iterable[Form], *, on_duplicate: str = "error",
                   tol: float = DEFAULT_DUPLICATE_TOL, config_text: str = "",
-                  run_id: str = "") -> list[str]:
+                  run_id: str = "", added: list[str] | None = None) -> list[str]:
         """Add forms in one transaction (or in the enclosing :meth:`transaction`).
 
         Parameters
@@ -1567,6 +1632,8 @@ class Store:
             stored once per distinct text).
         run_id : str
             Id of the run that produced them ("" if none).
+        added : list, optional
+            The keys of the forms this call stored (not the skipped ones) are appended.
 
         Returns
         -------
@@ -1620,6 +1687,8 @@ class Store:
                 self._place(txn, enc, key, f.symmetry.label, char)
                 idx.next_seq += 1
                 keys.append(key)
+                if added is not None:
+                    added.append(key)
         return keys
 
     def _place(self, txn: _Txn, enc: _Encoded, key: str, sym: str, char: str) -> int:
@@ -1671,6 +1740,7 @@ class Store:
             s = _att_digest(seq, name, blob)
             at = txn.put(blob)
             atts[name] = _Att(_SRC_PENDING, at, len(blob), s)
+            txn.atts.append(atts[name])
             txn.ops.append({"op": "attach", "key": form_key, "name": name, "at": at,
                             "len": len(blob), "sum": s.hex()})
 
@@ -1869,7 +1939,17 @@ def _att_digest(seq: int, name: str, blob: bytes) -> bytes:
                     name.encode("utf-8"), b"\0", blob)
 
 
+@functools.lru_cache(maxsize=1)
+def _form_fields() -> frozenset[str]:
+    from maasscomp.spectrum.form import Form
+
+    return frozenset(f.name for f in dataclasses.fields(Form))
+
+
 def _decode_form(key: str, row: np.ndarray, meta: bytes, cb: bytes, eb: bytes, text) -> StoredForm:
+    from maasscomp.hejhal.types import SolverParams, SymmetryClass
+    from maasscomp.spectrum.form import Form
+
     doc, arrays = L.unpack_blob(meta)
     n_cusps, M = int(row["n_cusps"]), int(row["M"])
 
@@ -1880,11 +1960,11 @@ def _decode_form(key: str, row: np.ndarray, meta: bytes, cb: bytes, eb: bytes, t
     sym = SymmetryClass(doc[S.M_SYMMETRY]["parity"],
                         tuple((int(p), int(s)) for p, s in doc[S.M_SYMMETRY]["al_signs"]))
     ch = doc[S.M_CHARACTER]
-    char = DirichletCharacter(int(ch["modulus"]), tuple(int(k) for k in ch["exponents"]))
+    char = _character(int(ch["modulus"]), tuple(int(k) for k in ch["exponents"]))
     extra = _codec.decode_tree(doc[S.M_EXTRA], arrays)
     kw: dict[str, Any] = {}
     unknown: dict[str, Any] = {}
-    have = {f.name for f in dataclasses.fields(Form)}
+    have = _form_fields()
     for name, d in doc.get(S.M_FIELDS, {}).items():
         (kw if name in have else unknown)[name] = _codec.decode_tree(d, arrays)
     if "character" in have:
@@ -1901,9 +1981,7 @@ def _decode_form(key: str, row: np.ndarray, meta: bytes, cb: bytes, eb: bytes, t
     p = doc[S.M_PROVENANCE]
     prov = {"package_version": p["package_version"], "created_utc": p["created_utc"],
             "config": text(p["config_id"]), "run_id": p["run_id"], "seq": int(row["seq"])}
-    cusps = tuple(CuspInfo(j, c[0], int(c[1]), int(c[2]), int(c[3]),
-                           ((int(c[4]), int(c[5])), (int(c[6]), int(c[7]))))
-                  for j, c in enumerate(doc[S.M_CUSPS]))
+    cusps = _cusp_infos(tuple(tuple(c) for c in doc[S.M_CUSPS]))
     return StoredForm(key, form, char, cusps, prov, unknown)
 
 
@@ -1976,14 +2054,16 @@ def _write_base(tmp: Path, *, root: dict[str, Any], store_id: bytes, source: Sto
         dm = h.create_dataset(S.D_META, shape=(n_meta,), dtype=np.uint8)
         labels = bytearray()
         v_at = m_at = 0
+        row_bytes = rows.view(np.uint8).reshape(len(rows), L.ROW_DTYPE.itemsize)
+        sum_at = L.ROW_DTYPE.fields["row_sum"][1]
         for b0 in range(0, len(chosen), _COPY_BLOCK):
             vals, metas = [], []
             for j in range(b0, min(len(chosen), b0 + _COPY_BLOCK)):
                 pos = chosen[j]
                 parts = cache.pop(pos, None) or _parts_for_copy(source, pos)
-                row, lab, meta, cb, eb = parts
-                rows[j]["row_sum"] = 0
-                rows[j]["row_sum"] = np.frombuffer(L.row_digest(rows[j], lab), dtype=np.uint8)
+                _, lab, meta, cb, eb = parts
+                row_bytes[j, sum_at:sum_at + 16] = np.frombuffer(
+                    L.row_digest(row_bytes[j].tobytes(), lab), dtype=np.uint8)
                 vals += [cb, eb]
                 metas.append(meta)
                 labels += lab
