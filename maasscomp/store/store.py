@@ -440,14 +440,12 @@ class _Encoded:
 
 def _encode_form(f: Form, key: str, seq: int, created_utc: str, run_id: str,
                  config_id: str, package_version: str) -> _Encoded:
-    from maasscomp.spectrum.form import Form
-
     char = _character_of(f)
     n_cusps, M = (int(x) for x in f.coeffs.shape)
     extra_doc, extra_arrays = _codec.encode_extra(f.extra)
     fields_doc: dict[str, Any] = {}
     arrays = dict(extra_arrays)
-    for fld in dataclasses.fields(Form):
+    for fld in dataclasses.fields(f):  # fields added to Form later (or by a subclass)
         if fld.name in _KNOWN_FIELDS:
             continue
         doc, arrs = _codec.encode_tree(getattr(f, fld.name), f"Form.{fld.name}", f"f{fld.name}.")
@@ -701,6 +699,7 @@ class Store:
             raise
 
     def _create_empty(self) -> None:
+        _atomic.check_room(self._real, 64 * 1024, 64 * 1024, "a new empty store")
         tmp = _atomic.temp_path_for(self._real)
         ident = _atomic.identity_of(self._real) if self._real.exists() else None
         sid = secrets.token_bytes(16)
@@ -1652,6 +1651,9 @@ class Store:
         for f in forms:  # validate everything before touching the store
             _validate_form(f)
             _codec.encode_extra(f.extra)
+            for fld in dataclasses.fields(f):
+                if fld.name not in _KNOWN_FIELDS:
+                    _codec.encode_tree(getattr(f, fld.name), f"Form.{fld.name}", "")
             _cusps_of(f.level, f.coeffs.shape[0])
         keys: list[str] = []
         with self._write() as txn:

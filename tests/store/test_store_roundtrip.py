@@ -323,3 +323,34 @@ def test_stale_temporary_is_cleaned_on_next_write_open(path):
     with Store.open(path, "a", create=True) as st:
         assert len(st) == 1
     assert not stale.exists()
+
+
+def test_form_fields_unknown_to_the_store_are_kept(path):
+    """A field the Form class gains later (here through a subclass) is stored generically,
+    like ``extra``, and handed back (as ``unknown_fields`` while this Form lacks it)."""
+    import dataclasses
+
+    @dataclasses.dataclass(frozen=True, eq=False)
+    class LaterForm(Form):
+        spectral_gap: float = 0.0
+        neighbours: tuple = ()
+        weights: np.ndarray = dataclasses.field(default_factory=lambda: np.zeros(0))
+
+    f = indexed_form(2)
+    g = LaterForm(**{k.name: getattr(f, k.name) for k in dataclasses.fields(Form)},
+                  spectral_gap=0.125, neighbours=(1.5, "x"), weights=np.arange(3, dtype=np.int16))
+    with Store.open(path, "a", create=True) as st:
+        (k,) = st.add_forms([g])
+    with Store.open(path) as st:
+        sf = st.read(k)
+        assert_forms_equal(sf.form, f)
+        assert sf.unknown_fields["spectral_gap"] == 0.125
+        assert sf.unknown_fields["neighbours"] == (1.5, "x")
+        w = sf.unknown_fields["weights"]
+        assert w.dtype == np.int16 and w.tolist() == [0, 1, 2]
+    kw = {k.name: getattr(f, k.name) for k in dataclasses.fields(Form)}
+    kw["R"] = f.R + 1
+    with Store.open(path, "a") as st, pytest.raises(InputError, match=r"Form.neighbours\[0\]"):
+        st.add_forms([LaterForm(**kw, neighbours=({1},))])
+    with Store.open(path) as st:
+        assert len(st) == 1
