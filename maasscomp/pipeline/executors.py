@@ -10,7 +10,7 @@ Every executor is a context manager with two methods:
 Workers only compute; they never open the store. The job runner consumes
 ``as_completed`` in the main process and commits each result in one store transaction
 as it arrives, so a crash loses only the tasks in flight (the store is single-writer by
-design: its copy-on-write transactions and writer lock allow one writing process).
+design: its append-only commits and writer lock allow one writing process).
 
 Only this module (and nothing in the numerical stages) imports joblib or dask.
 """

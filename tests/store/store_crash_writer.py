@@ -29,7 +29,7 @@ def main() -> None:
             with st.transaction():
                 keys = st.add_forms(chunk)
                 st.mark_task_done(f"task{i}", keys, run_id="crash")
-            # attachments (and replacing one, which repacks the file) are killed too
+            # attachments (and replacing one, which appends a new blob) are killed too
             if i % 2 == 0:
                 st.put_attachment(keys[0], "scan", {"i": i})
                 st.put_attachment(keys[0], "scan", {"i": i, "again": True})
