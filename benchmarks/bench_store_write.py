@@ -1,6 +1,6 @@
 """Benchmark: writing 1000 forms (M = 200, 1-4 cusps) into the store.
 
-Run: python tests/store/bench_store_write.py [N_FORMS]
+Run: python benchmarks/bench_store_write.py [N_FORMS]
 
 Prints seconds for transactions of 1 and of 100 forms (durable fsync on and off), and
 the ratio against a reference measured in the same run: the same forms written in place

@@ -268,6 +268,7 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
     entered = False
     logf = None
     st = None
+    finished = False
     try:
         if own_executor:
             ex.__enter__()
@@ -322,6 +323,7 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
         summary.forms_per_class = _count_forms(st, cfg, plan)
         summary.seconds = time.perf_counter() - t0
         log.info("summary:\n%s", summary.as_text(), extra={"file_only": True})
+        finished = True
         return summary
     except KeyboardInterrupt as exc:
         log.warning("%s; finished tasks are stored, rerun the same config to resume",
@@ -332,7 +334,8 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
         raise
     finally:
         if st is not None:
-            st.close()
+            # an interrupted or failed run stops at once: no compaction on the way out
+            st.close(compact=finished)
         if entered:
             ex.__exit__(None, None, None)
         if logf is not None:
