@@ -42,8 +42,12 @@ def _contains(new, old, where="") -> None:
 
 @pytest.fixture
 def v1_copy(tmp_path):
+    """A read-only copy: reading, listing and exporting must not need write permission."""
+    import os
+
     p = tmp_path / "old.h5"
     shutil.copyfile(V1, p)
+    os.chmod(p, 0o444)
     return p
 
 
