@@ -168,11 +168,19 @@ def why_not_replaceable(path: Path) -> str | None:
     return None
 
 
-def apply_identity(tmp: Path, ident: Identity) -> None:
-    """Give ``tmp`` the owner, group and mode bits of the file it will replace."""
+def apply_identity(tmp: Path, ident: Identity, *, strict: bool = True) -> None:
+    """Give ``tmp`` the owner, group and mode bits of the file it will replace.
+
+    ``strict=False``: keep going when the owner or group cannot be given (the mode bits are
+    always set, after the ownership, which may clear set-id bits).
+    """
     st = os.stat(tmp)
     if (st.st_uid, st.st_gid) != (ident.uid, ident.gid):
-        os.chown(tmp, ident.uid if os.geteuid() == 0 else -1, ident.gid)
+        try:
+            os.chown(tmp, ident.uid if os.geteuid() == 0 else -1, ident.gid)
+        except OSError:
+            if strict:
+                raise
     os.chmod(tmp, ident.mode)
 
 
@@ -224,8 +232,7 @@ def atomic_text_writer(target: str | os.PathLike, *, newline: str | None = None,
                 yield fh
                 fh.flush()
             if target.exists():
-                with contextlib.suppress(OSError):
-                    apply_identity(tmp, identity_of(target))
+                apply_identity(tmp, identity_of(target), strict=False)
             commit_temp(tmp, target, durable)
         except OSError as exc:
             raise StoreWriteError(f"cannot write {target}: {cause(exc)}; the file was not "
