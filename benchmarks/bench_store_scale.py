@@ -34,7 +34,7 @@ import numpy as np
 
 from maasscomp.hejhal.types import SolverParams, SymmetryClass
 from maasscomp.spectrum.form import Form
-from maasscomp.store import Store, export_json
+from maasscomp.store import Store, export_csv, export_json
 
 M = 200
 BATCH = 100
@@ -126,9 +126,11 @@ def main() -> None:
               f"file {size / 1e6:.0f} MB; amortised {1e3 * fill['total'] / fill['commits']:.1f} ms "
               "per commit including compactions")
         t = time.perf_counter()
+        c0 = time.process_time()
         ref = reference_h5py(d / "ref.h5", n)
         t_ref = time.perf_counter() - t
-        print(f"reference plain h5py writes: {t_ref:.1f} s for all {n} forms "
+        print(f"reference plain h5py writes: {t_ref:.1f} s wall ({time.process_time() - c0:.1f} s "
+              f"CPU) for all {n} forms "
               f"(file {os.path.getsize(d / 'ref.h5') / 1e6:.0f} MB)")
         print(f"{'forms in store':>15} {'store ms/100':>13} {'h5py ms/100':>12} {'ratio':>6}")
         for m, v in fill["per_mark"].items():
@@ -138,6 +140,12 @@ def main() -> None:
             print(f"  compaction on closing at {at} forms: {dt:.2f} s")
         (d / "ref.h5").unlink()
 
+        if do_export:
+            t = time.perf_counter()
+            c = time.process_time()
+            nexp = export_csv(path, d / "all.csv", n_coeffs=10)
+            print(f"export_csv (one row per form, c1..c10) of {nexp} forms: "
+                  f"{time.perf_counter() - t:.1f} s wall ({time.process_time() - c:.1f} s CPU)")
         t = time.perf_counter()
         with Store.open(path) as st:
             k = len(st)
@@ -148,6 +156,7 @@ def main() -> None:
         print(f"open (index of {k} forms): {t_open:.2f} s; index listing in-process: "
               f"{t_rows:.2f} s for {len(rows)} rows")
         env = dict(os.environ)
+        ch0 = resource.getrusage(resource.RUSAGE_CHILDREN)
         t = time.perf_counter()
         res = subprocess.run([sys.executable, "-c",
                               "import resource, sys\n"
@@ -158,12 +167,15 @@ def main() -> None:
                               "sys.exit(code)", str(path)],
                              stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=env, text=True)
         t_list = time.perf_counter() - t
+        ch1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+        cpu_list = (ch1.ru_utime - ch0.ru_utime) + (ch1.ru_stime - ch0.ru_stime)
         rss = int(res.stderr.strip().splitlines()[-1]) / 1024
         t = time.perf_counter()
         res2 = subprocess.run([sys.executable, "-c", "import maasscomp.cli"], env=env)
         t_import = time.perf_counter() - t
-        print(f"maasscomp list (subprocess): {t_list:.2f} s wall, exit {res.returncode}, peak "
-              f"{rss:.0f} MB (of which starting Python and importing: {t_import:.2f} s)")
+        print(f"maasscomp list (subprocess): {t_list:.2f} s wall, {cpu_list:.2f} s CPU, exit "
+              f"{res.returncode}, peak {rss:.0f} MB (starting Python and importing alone: "
+              f"{t_import:.2f} s wall)")
         del res2
         if do_export:
             t = time.perf_counter()
