@@ -239,11 +239,14 @@ class _Index:
         self.buf[self.n:need] = rows
         self.src[self.n:need] = src
         self.alive[self.n:need] = True
-        for j, k in enumerate(keys):
-            old = self.pos.get(k)
-            if old is not None:
-                self.kill(old)
-            self.pos[k] = self.n + j
+        if not self.pos and len(set(keys)) == m:  # loading a base: every key new
+            self.pos = dict(zip(keys, range(self.n, need)))
+        else:
+            for j, k in enumerate(keys):
+                old = self.pos.get(k)
+                if old is not None:
+                    self.kill(old)
+                self.pos[k] = self.n + j
         self.keys += keys
         self.syms += syms
         self.chars += chars
@@ -878,20 +881,8 @@ class Store:
                     a, m = int(rows["labels_at"][i]), int(rows["labels_len"][i])
                     lab = labels[a:a + m] if 0 <= a <= a + m <= len(labels) else b""
                     good[i] = L.row_digest(rows[i], lab) == bytes(rows["row_sum"][i])
-        keys, syms, chars = [], [], []
-        reasons: dict[int, str] = {}
-        for i in range(n):
-            a, m = int(rows["labels_at"][i]), int(rows["labels_len"][i])
-            try:
-                k, s, c = L.split_labels(labels[a:a + m])
-            except (ValueError, UnicodeDecodeError):
-                k, s, c = f"(form #{int(rows['seq'][i])} of the base)", "", ""
-                good[i] = False
-            keys.append(k)
-            syms.append(s)
-            chars.append(c)
-            if not good[i]:
-                reasons[i] = "its index row fails its checksum"
+        keys, syms, chars = _split_all_labels(rows, labels, good)
+        reasons = {int(i): "its index row fails its checksum" for i in np.flatnonzero(~good)}
         try:
             voff = _offset(h[S.D_VALUES])
             moff = _offset(h[S.D_META])
@@ -910,7 +901,7 @@ class Store:
             idx.damaged[start + i] = why
         idx.base_rows = n
         idx.base_bytes = self._header.base_end if self._header else os.fstat(self._fd).st_size
-        by_seq = {int(s): start + i for i, s in enumerate(rows["seq"])}
+        by_seq = dict(zip(rows["seq"].tolist(), range(start, start + n)))
         # attachments
         try:
             arows = h[S.D_ATT_ROWS][...]
@@ -1915,6 +1906,34 @@ class Store:
 
 
 # ---------------------------------------------------------------- helpers
+
+
+def _split_all_labels(rows: np.ndarray, labels: bytes,
+                      good: np.ndarray) -> tuple[list[str], list[str], list[str]]:
+    """Key, symmetry and character label of every row; rows whose labels do not decode are
+    marked bad in ``good`` and get a placeholder key."""
+    at, ln = rows["labels_at"].tolist(), rows["labels_len"].tolist()
+    if labels.isascii():  # byte offsets are character offsets: slice one string
+        text = labels.decode("ascii")
+        parts = [text[a:a + m].split(L.LABEL_SEP) for a, m in zip(at, ln)]
+    else:
+        parts = []
+        for a, m in zip(at, ln):
+            try:
+                parts.append(labels[a:a + m].decode("utf-8").split(L.LABEL_SEP))
+            except UnicodeDecodeError:
+                parts.append([])
+    seqs = None
+    for i, pt in enumerate(parts):
+        if len(pt) != 3 or not (0 <= at[i] and at[i] + ln[i] <= len(labels)):
+            if seqs is None:
+                seqs = rows["seq"].tolist()
+            parts[i] = [f"(form #{seqs[i]} of the base)", "", ""]
+            good[i] = False
+    if not parts:
+        return [], [], []
+    keys, syms, chars = (list(x) for x in zip(*parts))
+    return keys, syms, chars
 
 
 def _offset(ds: h5py.Dataset) -> int | None:
