@@ -26,7 +26,7 @@ from maasscomp import __version__
 from maasscomp.errors import InputError, StoreError
 from maasscomp.store import _atomic
 from maasscomp.store._codec import to_plain_json
-from maasscomp.store.store import Store, StoredForm, utc_now_iso, warn_damaged
+from maasscomp.store.store import FormRecord, Store, utc_now_iso, warn_damaged
 
 #: ``format`` field of an exported JSON document.
 JSON_FORMAT = "maasscomp-export"
@@ -64,47 +64,47 @@ def _plain_array(a: np.ndarray) -> list:
     return to_plain_json(a)
 
 
-def record_of(st: Store, sf: StoredForm, attachments: bool = False) -> dict[str, Any]:
+def record_of(rec: FormRecord) -> dict[str, Any]:
     """All fields of one stored form as plain JSON-ready data."""
-    f = sf.form
-    rec: dict[str, Any] = {
-        "key": sf.key,
-        "label": sf.label,
-        "level": f.level,
-        "R": f.R,
-        "eigenvalue": f.eigenvalue,
+    out: dict[str, Any] = {
+        "key": rec.key,
+        "label": rec.label,
+        "level": rec.level,
+        "R": rec.R,
+        "eigenvalue": 0.25 + rec.R * rec.R,
         "symmetry": {
-            "label": f.symmetry.label,
-            "parity": f.symmetry.parity,
-            "al_signs": [list(ps) for ps in f.symmetry.al_signs],
+            "label": rec.symmetry,
+            "parity": rec.parity,
+            "al_signs": [list(ps) for ps in rec.al_signs],
         },
-        "character": sf.character.as_dict(),
-        "cusps": [c.as_dict() for c in sf.cusps],
-        "R_error": f.R_error,
-        "hecke_residual": f.hecke_residual,
-        "solver": f.params.as_dict(),
-        "is_new": f.is_new,
-        "multiplicity": f.multiplicity,
-        "basis_index": f.basis_index,
-        "n_cusps": int(f.coeffs.shape[0]),
-        "M": int(f.coeffs.shape[1]),
-        "extra": f.extra,
-        "provenance": sf.provenance,
+        "character": rec.character,
+        "cusps": [c.as_dict() for c in rec.cusps],
+        "R_error": rec.R_error,
+        "hecke_residual": rec.hecke_residual,
+        "solver": rec.solver,
+        "is_new": rec.is_new,
+        "multiplicity": rec.multiplicity,
+        "basis_index": rec.basis_index,
+        "n_cusps": int(rec.coeffs.shape[0]),
+        "M": int(rec.coeffs.shape[1]),
+        "extra": rec.extra,
+        "provenance": rec.provenance,
     }
-    if sf.unknown_fields:
-        rec["unknown_fields"] = sf.unknown_fields
-    rec = to_plain_json(rec)
-    rec["coeffs"] = _plain_array(f.coeffs)
-    rec["coeff_errors"] = _plain_array(f.coeff_errors)
-    if attachments:
-        rec["attachments"] = to_plain_json(
-            {name: st.get_attachment(sf.key, name) for name in st.attachments(sf.key)})
-    return rec
+    if rec.fields:
+        out["fields"] = rec.fields
+    out = to_plain_json(out)
+    out["coeffs"] = _plain_array(rec.coeffs)
+    out["coeff_errors"] = _plain_array(rec.coeff_errors)
+    return out
 
 
 def form_record(st: Store, key: str, attachments: bool = False) -> dict[str, Any]:
     """All fields of the stored form ``key`` (DamagedFormError if it is damaged)."""
-    return record_of(st, st.read(key), attachments)
+    out = record_of(FormRecord.from_stored(st.read(key)))
+    if attachments:
+        out["attachments"] = to_plain_json(
+            {name: st.get_attachment(key, name) for name in st.attachments(key)})
+    return out
 
 
 def export_json(store_path: str | os.PathLike, out_path: str | os.PathLike,
@@ -146,15 +146,15 @@ def export_json(store_path: str | os.PathLike, out_path: str | os.PathLike,
             text = json.dumps(head, indent=indent, allow_nan=False)
             fh.write(text[:-1].rstrip() + ',\n "forms": [')
             first = True
-            for sf in st.iter_forms(ks):
-                rec = record_of(st, sf)
+            for fr in st.iter_records(ks):
+                rec = record_of(fr)
                 if attachments:
                     atts = {}
-                    for name in st.attachments(sf.key):
+                    for name in st.attachments(fr.key):
                         try:
-                            atts[name] = st.get_attachment(sf.key, name)
+                            atts[name] = st.get_attachment(fr.key, name)
                         except StoreError as exc:
-                            bad[f"{sf.key} [attachment {name}]"] = str(exc)
+                            bad[f"{fr.key} [attachment {name}]"] = str(exc)
                     rec["attachments"] = to_plain_json(atts)
                 fh.write(("\n  " if first else ",\n  ")
                          + json.dumps(rec, allow_nan=False, separators=(",", ":")))
@@ -223,34 +223,34 @@ def export_csv(store_path: str | os.PathLike, out_path: str | os.PathLike,
         with _atomic.atomic_text_writer(out_path, newline="") as fh:
             w = csv.writer(fh)
             w.writerow(list(SUMMARY_COLUMNS) + [f"c{n}" for n in range(1, n_coeffs + 1)])
-            for sf in st.iter_forms(ks):
-                f, prov = sf.form, sf.provenance
+            for fr in st.iter_records(ks):
+                prov = fr.provenance
                 row = [
-                    sf.key, f.level, f.symmetry.label, f.symmetry.parity,
-                    ";".join(f"{p}:{s:+d}" for p, s in f.symmetry.al_signs),
-                    _num(f.R), _num(f.R_error), _num(f.hecke_residual),
-                    "" if f.is_new is None else ("true" if f.is_new else "false"),
-                    f.multiplicity, f.basis_index, f.coeffs.shape[0], f.coeffs.shape[1],
-                    _num(f.params.Y), f.params.M0, f.params.Q, _num(f.params.eps),
+                    fr.key, fr.level, fr.symmetry, fr.parity,
+                    ";".join(f"{p}:{s:+d}" for p, s in fr.al_signs),
+                    _num(fr.R), _num(fr.R_error), _num(fr.hecke_residual),
+                    "" if fr.is_new is None else ("true" if fr.is_new else "false"),
+                    fr.multiplicity, fr.basis_index, fr.coeffs.shape[0], fr.coeffs.shape[1],
+                    _num(fr.solver["Y"]), fr.solver["M0"], fr.solver["Q"], _num(fr.solver["eps"]),
                     prov["run_id"], prov["created_utc"],
-                    json.dumps(to_plain_json(f.extra), allow_nan=False, sort_keys=True),
-                    sf.character.label, sf.character.conductor, ";".join(c.name for c in sf.cusps),
+                    json.dumps(to_plain_json(fr.extra), allow_nan=False, sort_keys=True),
+                    fr.character["label"], fr.character["conductor"],
+                    ";".join(c.name for c in fr.cusps),
                 ]
-                c0 = f.coeffs[0]
+                c0 = fr.coeffs[0]
                 row += [_num(c0[n].item()) if n < c0.size else "" for n in range(n_coeffs)]
                 w.writerow(row)
-                written.append(sf.key)
+                written.append(fr.key)
                 n += 1
         if coeffs_path is not None:
             with _atomic.atomic_text_writer(coeffs_path, newline="") as fh:
                 w = csv.writer(fh)
                 w.writerow(COEFF_COLUMNS)
-                for sf in st.iter_forms(written):
-                    f = sf.form
-                    for j in range(f.coeffs.shape[0]):
-                        cj, ej = f.coeffs[j].tolist(), f.coeff_errors[j].tolist()
-                        name = sf.cusps[j].name
-                        w.writerows((sf.key, j, m + 1, _num(cj[m]), _num(ej[m]), name)
+                for fr in st.iter_records(written):
+                    for j in range(fr.coeffs.shape[0]):
+                        cj, ej = fr.coeffs[j].tolist(), fr.coeff_errors[j].tolist()
+                        name = fr.cusps[j].name
+                        w.writerows((fr.key, j, m + 1, _num(cj[m]), _num(ej[m]), name)
                                     for m in range(len(cj)))
         bad = st.damaged()
     _report(bad, damaged, store_path)

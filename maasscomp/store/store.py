@@ -137,6 +137,90 @@ class StoredForm:
         return S.form_label(f.level, self.character.label, f.symmetry.label, f.R)
 
 
+@functools.lru_cache(maxsize=4096)
+def _character_dict(modulus: int, exponents: tuple[int, ...]) -> dict[str, Any]:
+    return _character(modulus, exponents).as_dict()
+
+
+@dataclass(frozen=True)
+class FormRecord:
+    """One stored form as plain values (what exports write), read without building a Form.
+
+    ``fields`` holds every Form field stored generically (see :attr:`StoredForm.unknown_fields`).
+    """
+
+    key: str
+    level: int
+    R: float
+    R_error: float
+    hecke_residual: float
+    parity: str
+    al_signs: tuple[tuple[int, int], ...]
+    symmetry: str
+    character: dict[str, Any]
+    cusps: tuple[CuspInfo, ...]
+    solver: dict[str, Any]
+    is_new: bool | None
+    multiplicity: int
+    basis_index: int
+    coeffs: np.ndarray
+    coeff_errors: np.ndarray
+    extra: dict[str, Any]
+    fields: dict[str, Any]
+    provenance: dict[str, Any]
+
+    @property
+    def label(self) -> str:
+        return S.form_label(self.level, self.character["label"], self.symmetry, self.R)
+
+    @classmethod
+    def from_parts(cls, key: str, sym: str, char: str, row: np.ndarray, doc: dict,
+                   arrays: dict, cb: bytes, eb: bytes, text) -> "FormRecord":
+        (lev, R, Re, hr, Y, eps, M0, Q, mult, bi, nc, M, par, isn, ck, ek) = (
+            row[f].item() for f in ("level", "R", "R_error", "hecke_residual", "solver_Y",
+                                    "solver_eps", "solver_M0", "solver_Q", "multiplicity",
+                                    "basis_index", "n_cusps", "M", "parity", "is_new",
+                                    "coeffs_kind", "errors_kind"))
+
+        def arr(b: bytes, kind: int) -> np.ndarray:
+            dt = np.dtype("<c16") if kind == L.KIND_COMPLEX else np.dtype("<f8")
+            return np.frombuffer(b, dtype=dt).reshape(nc, M)
+
+        ch = doc[S.M_CHARACTER]
+        p = doc[S.M_PROVENANCE]
+        return cls(
+            key=key, level=lev, R=R, R_error=Re, hecke_residual=hr,
+            parity=doc[S.M_SYMMETRY]["parity"],
+            al_signs=tuple((int(a), int(b)) for a, b in doc[S.M_SYMMETRY]["al_signs"]),
+            symmetry=sym,
+            character=_character_dict(int(ch["modulus"]), tuple(int(k) for k in ch["exponents"])),
+            cusps=_cusp_infos(tuple(tuple(c) for c in doc[S.M_CUSPS])),
+            solver={"Y": Y, "M0": M0, "Q": Q, "eps": eps},
+            is_new=S.IS_NEW_FROM_CODE[isn], multiplicity=mult, basis_index=bi,
+            coeffs=arr(cb, ck), coeff_errors=arr(eb, ek),
+            extra=_codec.decode_tree(doc[S.M_EXTRA], arrays),
+            fields={k: _codec.decode_tree(v, arrays) for k, v in doc.get(S.M_FIELDS, {}).items()},
+            provenance={"package_version": p["package_version"], "created_utc": p["created_utc"],
+                        "config": text(p["config_id"]), "run_id": p["run_id"],
+                        "seq": int(row["seq"])},
+        )
+
+    @classmethod
+    def from_stored(cls, sf: StoredForm) -> "FormRecord":
+        f = sf.form
+        fields = {fl.name: getattr(f, fl.name) for fl in dataclasses.fields(f)
+                  if fl.name not in _KNOWN_FIELDS}
+        fields.update(sf.unknown_fields)
+        return cls(
+            key=sf.key, level=f.level, R=f.R, R_error=f.R_error, hecke_residual=f.hecke_residual,
+            parity=f.symmetry.parity, al_signs=tuple(f.symmetry.al_signs),
+            symmetry=f.symmetry.label, character=sf.character.as_dict(), cusps=sf.cusps,
+            solver=f.params.as_dict(), is_new=f.is_new, multiplicity=f.multiplicity,
+            basis_index=f.basis_index, coeffs=f.coeffs, coeff_errors=f.coeff_errors,
+            extra=f.extra, fields=fields, provenance=sf.provenance,
+        )
+
+
 @dataclass(frozen=True)
 class SalvageReport:
     """What :func:`salvage` copied and what it left behind."""
@@ -1485,6 +1569,27 @@ class Store:
                 continue
             try:
                 yield self._read(pos)
+            except DamagedFormError:
+                continue
+
+    def iter_records(self, keys: Iterable[str] | None = None) -> Iterator[FormRecord]:
+        """Like :meth:`iter_forms`, but yields :class:`FormRecord` (plain values, no Form
+        object): the fast reader for exports of whole stores."""
+        for k in (self.keys() if keys is None else list(keys)):
+            pos = self._position(k)
+            if pos in self._idx.damaged:
+                continue
+            try:
+                if int(self._idx.src[pos]) == _SRC_V1:
+                    yield FormRecord.from_stored(self._read_v1(pos))
+                    continue
+                row, _, meta, cb, eb = self._form_parts(pos)
+                try:
+                    doc, arrays = L.unpack_blob(meta)
+                    yield FormRecord.from_parts(k, self._idx.syms[pos], self._idx.chars[pos],
+                                                row, doc, arrays, cb, eb, self._text)
+                except (ValueError, KeyError, TypeError, IndexError, InputError) as exc:
+                    self._damage(pos, f"its metadata cannot be decoded ({exc})")
             except DamagedFormError:
                 continue
 

@@ -159,6 +159,13 @@ def test_failed_batch_writes_nothing(path):
         assert len(st) == 1
     with Store.open(path) as st:
         assert len(st) == 1
+    from maasscomp.store import export_json
+
+    export_json(path, path.with_suffix(".json"))
+    import json
+
+    rec = json.loads(path.with_suffix(".json").read_text())["forms"][0]
+    assert rec["fields"] == {"spectral_gap": 0.125, "neighbours": [1.5, "x"], "weights": [0, 1, 2]}
     assert not [p for p in path.parent.iterdir() if ".tmp." in p.name]
 
 
@@ -354,3 +361,10 @@ def test_form_fields_unknown_to_the_store_are_kept(path):
         st.add_forms([LaterForm(**kw, neighbours=({1},))])
     with Store.open(path) as st:
         assert len(st) == 1
+    from maasscomp.store import export_json
+
+    export_json(path, path.with_suffix(".json"))
+    import json
+
+    rec = json.loads(path.with_suffix(".json").read_text())["forms"][0]
+    assert rec["fields"] == {"spectral_gap": 0.125, "neighbours": [1.5, "x"], "weights": [0, 1, 2]}
