@@ -92,34 +92,40 @@ def _cmd_list(args: argparse.Namespace) -> int:
         if args.verify:
             st.verify()
         keys = st.select(level=args.level) if args.level is not None else None
-        rows = st.summary_rows(n_coeffs=args.coeffs, keys=keys)
+        cols = st.listing(n_coeffs=args.coeffs, keys=keys)
         damaged = st.damaged()
         unfinished = st.info()["unfinished_bytes"]
     if unfinished:
         print(f"maasscomp: note: {args.store} ends in {unfinished} bytes of an unfinished commit "
               "(a writer was stopped, or is writing now); it is not part of the store",
               file=sys.stderr)
-    if not rows:
+    if not cols["key"]:
         print(f"{args.store}: no forms")
         return _warn_damaged(args.store, damaged)
+    K = args.coeffs
     head = (f"{'key':<40} {'N':>3} {'class':<12} {'char':<8} {'R':>20} {'R err':>8} "
             f"{'Hecke':>8} {'new':>5}")
-    head += "".join(f" {'c(' + str(n) + ')':>14}" for n in range(1, args.coeffs + 1))
+    head += "".join(f" {'c(' + str(n) + ')':>14}" for n in range(1, K + 1))
+    fmt = "%-40s %3d %-12s %-8s %20.14f %8.1e %8.1e %5s" + " %14.10f" * K
+    new = {True: "yes", False: "old", None: "?"}
     out = [head]
-    for r in rows:
-        new = {True: "yes", False: "old", None: "?"}[r["is_new"]]
-        line = (f"{r['key']:<40} {r['level']:>3} {r['symmetry']:<12} {r['character']:<8} "
-                f"{r['R']:>20.14f} {r['R_error']:>8.1e} {r['hecke_residual']:>8.1e} {new:>5}")
-        for n in range(1, args.coeffs + 1):
-            c = r.get(f"c{n}")
-            if c is None:
+    for key, N, sym, ch, R, Re, H, isn, c in zip(
+            cols["key"], cols["level"], cols["symmetry"], cols["character"], cols["R"],
+            cols["R_error"], cols["hecke_residual"], cols["is_new"], cols["c"]):
+        if len(c) == K and not (c and isinstance(c[0], complex)):
+            out.append(fmt % (key, N, sym, ch, R, Re, H, new[isn], *c))
+            continue
+        line = fmt[:fmt.index(" %14")] % (key, N, sym, ch, R, Re, H, new[isn]) if K else \
+            fmt % (key, N, sym, ch, R, Re, H, new[isn])
+        for n in range(K):
+            if n >= len(c):
                 line += f" {'':>14}"
-            elif isinstance(c, complex):
-                line += f" {c.real:>+14.10f}{c.imag:+.3e}i"
+            elif isinstance(c[n], complex):
+                line += f" {c[n].real:>+14.10f}{c[n].imag:+.3e}i"
             else:
-                line += f" {c:>14.10f}"
+                line += f" {c[n]:>14.10f}"
         out.append(line)
-    out.append(f"{len(rows)} forms")
+    out.append(f"{len(cols['key'])} forms")
     sys.stdout.write("\n".join(out) + "\n")
     return _warn_damaged(args.store, damaged)
 

@@ -98,17 +98,22 @@ LOCATION_FIELDS = ("coeffs_at", "errors_at", "meta_at", "labels_at")
 KIND_REAL, KIND_COMPLEX = 0, 1
 PARITY_CODES = {"even": 0, "odd": 1}
 PARITY_NAMES = {0: "even", 1: "odd"}
-#: Separator of the key, symmetry label and character label in a row's labels bytes.
+#: A row's labels bytes are ``key TAB symmetry TAB character NEWLINE`` (UTF-8); the newline
+#: lets a reader split a whole pool of labels at once.
 LABEL_SEP = "\t"
+LABEL_END = "\n"
 
 
 def label_bytes(key: str, symmetry: str, character: str) -> bytes:
-    return LABEL_SEP.join((key, symmetry, character)).encode("utf-8")
+    return (LABEL_SEP.join((key, symmetry, character)) + LABEL_END).encode("utf-8")
 
 
 def split_labels(raw: bytes) -> tuple[str, str, str]:
-    parts = raw.decode("utf-8").split(LABEL_SEP)
-    if len(parts) != 3:
+    text = raw.decode("utf-8")
+    if not text.endswith(LABEL_END):
+        raise ValueError("labels do not end with a newline")
+    parts = text[:-1].split(LABEL_SEP)
+    if len(parts) != 3 or LABEL_END in text[:-1]:
         raise ValueError("labels do not have three parts")
     return parts[0], parts[1], parts[2]
 

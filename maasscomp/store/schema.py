@@ -13,7 +13,7 @@ Layout of schema version 2 (the HDF5 part, after a 512-byte file header)::
     /forms/rows               one index row per form (compound, _layout.ROW_DTYPE)
     /forms/values             float64 pool: coefficient and error arrays
     /forms/meta               uint8 pool: per-form metadata blobs (JSON + arrays)
-    /forms/labels             uint8 pool: per-form "key TAB symmetry TAB character"
+    /forms/labels             uint8 pool: per-form "key TAB symmetry TAB character NEWLINE"
     /forms/block_sums         uint8 (n_blocks, 16): checksum of each block of rows
     /attachments/rows         one row per attachment (compound, ATTACHMENT_DTYPE)
     /attachments/names        uint8 pool of attachment names

@@ -320,22 +320,23 @@ class _Index:
                 new = np.zeros(cap, dtype=old.dtype)
                 new[:self.n] = old[:self.n]
                 setattr(self, name, new)
-        self.buf[self.n:need] = rows
-        self.src[self.n:need] = src
-        self.alive[self.n:need] = True
-        if not self.pos and len(set(keys)) == m:  # loading a base: every key new
-            self.pos = dict(zip(keys, range(self.n, need)))
-        else:
-            for j, k in enumerate(keys):
-                old = self.pos.get(k)
-                if old is not None:
-                    self.kill(old)
-                self.pos[k] = self.n + j
+        start = self.n
+        self.buf[start:need] = rows
+        self.src[start:need] = src
+        self.alive[start:need] = True
         self.keys += keys
         self.syms += syms
         self.chars += chars
         self.n = need
         self.buckets = None
+        if not self.pos and len(set(keys)) == m:  # loading a base: every key new
+            self.pos = dict(zip(keys, range(start, need)))
+        else:  # a later row of a key replaces the earlier one
+            for j, k in enumerate(keys):
+                old = self.pos.get(k)
+                if old is not None:
+                    self.kill(old)
+                self.pos[k] = start + j
 
     def kill(self, i: int) -> None:
         self.alive[i] = False
@@ -1040,8 +1041,12 @@ class Store:
                 idx.notes[f"record {off}"] = (f"the commit record at offset {off} fails its "
                                               "checksum; the forms it added are lost")
             else:
-                self._apply(L.unpack_record_index(index), off + L.REC_HEAD_SIZE + rh.index_len,
-                            _SRC_FILE)
+                try:
+                    self._apply(L.unpack_record_index(index),
+                                off + L.REC_HEAD_SIZE + rh.index_len, _SRC_FILE)
+                except (ValueError, KeyError, TypeError, IndexError) as exc:
+                    idx.notes[f"record {off}"] = (f"the commit record at offset {off} cannot be "
+                                                  f"decoded ({exc}); its changes are lost")
             idx.log_bytes += rh.total
             off += rh.total
             self._valid_end = off
@@ -1069,16 +1074,30 @@ class Store:
         rows["coeffs_at"] += data_start
         rows["errors_at"] += data_start
         rows["meta_at"] += data_start
+        batch: list[int] = []
+
+        def flush() -> None:
+            if not batch:
+                return
+            ks, ss, cs = [], [], []
+            for i in batch:
+                r = rec.rows[i]
+                a, m = int(r["labels_at"]), int(r["labels_len"])
+                k, s_, c = L.split_labels(rec.labels[a:a + m])
+                ks.append(k)
+                ss.append(s_)
+                cs.append(c)
+            idx.bulk(rows[batch], ks, ss, cs, src)
+            idx.log_rows += len(batch)
+            batch.clear()
+
         for op in rec.ops:
             kind = op.get("op")
             if kind == "form":
-                i = int(op["row"])
-                r = rec.rows[i]
-                a, m = int(r["labels_at"]), int(r["labels_len"])
-                k, s, c = L.split_labels(rec.labels[a:a + m])
-                idx.append(rows[i], k, s, c, src)
-                idx.log_rows += 1
-            elif kind == "delete":
+                batch.append(int(op["row"]))
+                continue
+            flush()
+            if kind == "delete":
                 pos = idx.pos.get(op["key"])
                 if pos is not None:
                     idx.kill(pos)
@@ -1097,6 +1116,7 @@ class Store:
                 idx.texts[op["id"]] = op["text"]
             elif kind == "seq":
                 idx.next_seq = max(idx.next_seq, int(op["next"]))
+        flush()
 
     def _load_v1(self) -> None:
         """Index of a schema-version-1 file: one HDF5 group per form."""
@@ -1630,13 +1650,14 @@ class Store:
         """Intact forms matching every given filter, in write order (see :meth:`select`)."""
         return [sf.form for sf in self.iter_forms(self.select(level, parity, R_min, R_max, symmetry))]
 
-    def summary_rows(self, n_coeffs: int = 3, keys: Iterable[str] | None = None) -> list[dict[str, Any]]:
-        """One dict per intact form for listings, read from the index.
+    def listing(self, n_coeffs: int = 3, keys: Iterable[str] | None = None) -> dict[str, list]:
+        """The columns of a listing of the intact forms (default all, in write order).
 
-        Keys of each dict: key, level, symmetry, character, R, R_error, hecke_residual,
-        is_new, multiplicity, basis_index, n_cusps, M, and ``c1`` .. ``c<n_coeffs>``
-        (coefficients at infinity; fewer if M is smaller).  Up to 8 coefficients come from
-        the index; more are read from the form (which verifies it).
+        Keys: key, level, symmetry, character, R, R_error, hecke_residual, is_new,
+        multiplicity, basis_index, n_cusps, M (one list each, one entry per form) and ``c``
+        (per form the list of c_inf(1..min(n_coeffs, M)), floats or complex).  Up to 8
+        coefficients come from the index; more are read from each form (which verifies it;
+        a damaged form is then left out).
         """
         if isinstance(n_coeffs, bool) or not isinstance(n_coeffs, int) or n_coeffs < 0:
             raise InputError(f"n_coeffs {n_coeffs!r} is not allowed; use an integer >= 0")
@@ -1646,39 +1667,52 @@ class Store:
         else:
             pos = np.array([p for p in (self._position(k) for k in keys) if p not in idx.damaged],
                            dtype=np.int64)
-        rows = idx.rows[pos]
-        col = {f: rows[f].tolist() for f in ("level", "R", "R_error", "hecke_residual", "is_new",
-                                              "multiplicity", "basis_index", "n_cusps", "M",
-                                              "coeffs_kind")}
-        K0 = min(n_coeffs, L.PREVIEW)
-        prev = rows["preview"][:, :2 * K0].tolist()
-        new_from = S.IS_NEW_FROM_CODE
-        out = []
-        for j, i in enumerate(pos.tolist()):
-            M = col["M"][j]
-            K = min(n_coeffs, M)
-            row: dict[str, Any] = {
-                "key": idx.keys[i], "level": col["level"][j], "symmetry": idx.syms[i],
-                "character": idx.chars[i], "R": col["R"][j], "R_error": col["R_error"][j],
-                "hecke_residual": col["hecke_residual"][j], "is_new": new_from[col["is_new"][j]],
-                "multiplicity": col["multiplicity"][j], "basis_index": col["basis_index"][j],
-                "n_cusps": col["n_cusps"][j], "M": M,
-            }
-            if K > L.PREVIEW:
+        if n_coeffs > L.PREVIEW:  # read the forms: drop the ones found damaged
+            cs, keep = [], []
+            for i in pos.tolist():
                 try:
                     c0 = self._read(i).form.coeffs[0]
                 except DamagedFormError:
                     continue
-                for n in range(K):
-                    row[f"c{n + 1}"] = c0[n].item()
-            else:
-                p = prev[j]
-                if col["coeffs_kind"][j] == L.KIND_COMPLEX:
-                    for n in range(K):
-                        row[f"c{n + 1}"] = complex(p[2 * n], p[2 * n + 1])
-                else:
-                    for n in range(K):
-                        row[f"c{n + 1}"] = p[2 * n]
+                keep.append(i)
+                cs.append([c0[n].item() for n in range(min(n_coeffs, c0.size))])
+            pos = np.array(keep, dtype=np.int64)
+        rows = idx.rows[pos]
+        cols: dict[str, list] = {f: rows[f].tolist() for f in (
+            "level", "R", "R_error", "hecke_residual", "multiplicity", "basis_index",
+            "n_cusps", "M")}
+        p = pos.tolist()
+        cols["key"] = [idx.keys[i] for i in p]
+        cols["symmetry"] = [idx.syms[i] for i in p]
+        cols["character"] = [idx.chars[i] for i in p]
+        cols["is_new"] = [S.IS_NEW_FROM_CODE[v] for v in rows["is_new"].tolist()]
+        if n_coeffs <= L.PREVIEW:
+            K0 = n_coeffs
+            prev = rows["preview"][:, :2 * K0].tolist()
+            cplx = (rows["coeffs_kind"] == L.KIND_COMPLEX).tolist()
+            cs = []
+            for pv, M, cx in zip(prev, cols["M"], cplx):
+                K = min(K0, M)
+                cs.append([complex(pv[2 * n], pv[2 * n + 1]) for n in range(K)] if cx
+                          else pv[0:2 * K:2])
+        cols["c"] = cs
+        return cols
+
+    def summary_rows(self, n_coeffs: int = 3, keys: Iterable[str] | None = None) -> list[dict[str, Any]]:
+        """One dict per intact form for listings, read from the index (see :meth:`listing`).
+
+        Keys of each dict: key, level, symmetry, character, R, R_error, hecke_residual,
+        is_new, multiplicity, basis_index, n_cusps, M, and ``c1`` .. ``c<n_coeffs>``
+        (coefficients at infinity; fewer if M is smaller).
+        """
+        cols = self.listing(n_coeffs, keys)
+        names = ("key", "level", "symmetry", "character", "R", "R_error", "hecke_residual",
+                 "is_new", "multiplicity", "basis_index", "n_cusps", "M")
+        out = []
+        for j, vals in enumerate(zip(*(cols[n] for n in names))):
+            row = dict(zip(names, vals))
+            for n, c in enumerate(cols["c"][j]):
+                row[f"c{n + 1}"] = c
             out.append(row)
         return out
 
@@ -2017,27 +2051,27 @@ def _split_all_labels(rows: np.ndarray, labels: bytes,
                       good: np.ndarray) -> tuple[list[str], list[str], list[str]]:
     """Key, symmetry and character label of every row; rows whose labels do not decode are
     marked bad in ``good`` and get a placeholder key."""
-    at, ln = rows["labels_at"].tolist(), rows["labels_len"].tolist()
-    if labels.isascii():  # byte offsets are character offsets: slice one string
-        text = labels.decode("ascii")
-        parts = [text[a:a + m].split(L.LABEL_SEP) for a, m in zip(at, ln)]
-    else:
-        parts = []
-        for a, m in zip(at, ln):
-            try:
-                parts.append(labels[a:a + m].decode("utf-8").split(L.LABEL_SEP))
-            except UnicodeDecodeError:
-                parts.append([])
-    seqs = None
-    for i, pt in enumerate(parts):
-        if len(pt) != 3 or not (0 <= at[i] and at[i] + ln[i] <= len(labels)):
-            if seqs is None:
-                seqs = rows["seq"].tolist()
-            parts[i] = [f"(form #{seqs[i]} of the base)", "", ""]
+    n = len(rows)
+    at, ln = rows["labels_at"], rows["labels_len"]
+    if n and labels.isascii() and at[0] == 0 and int(at[-1] + ln[-1]) == len(labels) \
+            and (n == 1 or (at[1:] == at[:-1] + ln[:-1]).all()):
+        # the usual pool: the rows' labels one after the other, ASCII: split it at once
+        items = labels.decode("ascii").replace(L.LABEL_END, L.LABEL_SEP).split(L.LABEL_SEP)
+        if len(items) == 3 * n + 1 and items[-1] == "":
+            return items[0:3 * n:3], items[1:3 * n:3], items[2:3 * n:3]
+    keys, syms, chars = [], [], []
+    seqs = rows["seq"].tolist()
+    for i, (a, m) in enumerate(zip(at.tolist(), ln.tolist())):
+        try:
+            if not (0 <= a and a + m <= len(labels)):
+                raise ValueError("outside the pool")
+            k, s, c = L.split_labels(labels[a:a + m])
+        except (ValueError, UnicodeDecodeError):
+            k, s, c = f"(form #{seqs[i]} of the base)", "", ""
             good[i] = False
-    if not parts:
-        return [], [], []
-    keys, syms, chars = (list(x) for x in zip(*parts))
+        keys.append(k)
+        syms.append(s)
+        chars.append(c)
     return keys, syms, chars
 
 
