@@ -106,25 +106,37 @@ def _cmd_list(args: argparse.Namespace) -> int:
     head = (f"{'key':<40} {'N':>3} {'class':<12} {'char':<8} {'R':>20} {'R err':>8} "
             f"{'Hecke':>8} {'new':>5}")
     head += "".join(f" {'c(' + str(n) + ')':>14}" for n in range(1, K + 1))
-    fmt = "%-40s %3d %-12s %-8s %20.14f %8.1e %8.1e %5s" + " %14.10f" * K
+    base = "%-40s %3d %-12s %-8s %20.14f %8.1e %8.1e %5s"
     new = {True: "yes", False: "old", None: "?"}
-    out = [head]
-    for key, N, sym, ch, R, Re, H, isn, c in zip(
-            cols["key"], cols["level"], cols["symmetry"], cols["character"], cols["R"],
-            cols["R_error"], cols["hecke_residual"], cols["is_new"], cols["c"]):
-        if len(c) == K and not (c and isinstance(c[0], complex)):
-            out.append(fmt % (key, N, sym, ch, R, Re, H, new[isn], *c))
-            continue
-        line = fmt[:fmt.index(" %14")] % (key, N, sym, ch, R, Re, H, new[isn]) if K else \
-            fmt % (key, N, sym, ch, R, Re, H, new[isn])
-        for n in range(K):
-            if n >= len(c):
-                line += f" {'':>14}"
-            elif isinstance(c[n], complex):
-                line += f" {c[n].real:>+14.10f}{c[n].imag:+.3e}i"
-            else:
-                line += f" {c[n]:>14.10f}"
-        out.append(line)
+    isn = [new[v] for v in cols["is_new"]]
+    c = cols["c"]
+    # the usual line (K real coefficients) in one formatting call per line
+    plain = [len(x) == K and not (x and isinstance(x[0], complex)) for x in c]
+    if all(plain) and (K == 0 or c):
+        cs = zip(*c) if K else ()
+        out = [head, *map((base + " %14.10f" * K).__mod__,
+                          zip(cols["key"], cols["level"], cols["symmetry"], cols["character"],
+                              cols["R"], cols["R_error"], cols["hecke_residual"], isn, *cs))]
+    else:
+        out = [head]
+        for j, ok in enumerate(plain):
+            if ok:
+                out.append((base + " %14.10f" * K) % (
+                    cols["key"][j], cols["level"][j], cols["symmetry"][j], cols["character"][j],
+                    cols["R"][j], cols["R_error"][j], cols["hecke_residual"][j], isn[j], *c[j]))
+                continue
+            line = base % (cols["key"][j], cols["level"][j], cols["symmetry"][j],
+                           cols["character"][j], cols["R"][j], cols["R_error"][j],
+                           cols["hecke_residual"][j], isn[j])
+            for n in range(K):
+                v = c[j][n] if n < len(c[j]) else None
+                if v is None:
+                    line += f" {'':>14}"
+                elif isinstance(v, complex):
+                    line += f" {v.real:>+14.10f}{v.imag:+.3e}i"
+                else:
+                    line += f" {v:>14.10f}"
+            out.append(line)
     out.append(f"{len(cols['key'])} forms")
     sys.stdout.write("\n".join(out) + "\n")
     return _warn_damaged(args.store, damaged)

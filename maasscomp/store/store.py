@@ -329,8 +329,9 @@ class _Index:
         self.chars += chars
         self.n = need
         self.buckets = None
-        if not self.pos and len(set(keys)) == m:  # loading a base: every key new
-            self.pos = dict(zip(keys, range(start, need)))
+        pos = self.pos
+        if len(set(keys)) == m and not any(k in pos for k in keys):  # all keys new
+            pos.update(zip(keys, range(start, need)))
         else:  # a later row of a key replaces the earlier one
             for j, k in enumerate(keys):
                 old = self.pos.get(k)
@@ -1079,6 +1080,14 @@ class Store:
         def flush() -> None:
             if not batch:
                 return
+            if batch == list(range(len(rec.rows))):  # the whole record: split at once
+                good = np.ones(len(batch), dtype=bool)
+                ks, ss, cs = _split_all_labels(rec.rows, rec.labels.rstrip(b"\0"), good)
+                if good.all():
+                    idx.bulk(rows, ks, ss, cs, src)
+                    idx.log_rows += len(batch)
+                    batch.clear()
+                    return
             ks, ss, cs = [], [], []
             for i in batch:
                 r = rec.rows[i]
@@ -1144,6 +1153,8 @@ class Store:
                 char = DirichletCharacter.trivial(int(row["level"])).label
                 shape = g[S.D_COEFFS].shape
                 row["n_cusps"], row["M"] = shape
+                row["coeffs_kind"] = int(g[S.D_COEFFS].dtype.kind == "c")
+                row["errors_kind"] = int(g[S.D_COEFF_ERRORS].dtype.kind == "c")
                 c0 = np.asarray(g[S.D_COEFFS][0, :L.PREVIEW], dtype=np.complex128)
                 prev = np.zeros(2 * L.PREVIEW)
                 prev[0:2 * len(c0):2] = c0.real
@@ -1688,13 +1699,13 @@ class Store:
         cols["is_new"] = [S.IS_NEW_FROM_CODE[v] for v in rows["is_new"].tolist()]
         if n_coeffs <= L.PREVIEW:
             K0 = n_coeffs
-            prev = rows["preview"][:, :2 * K0].tolist()
-            cplx = (rows["coeffs_kind"] == L.KIND_COMPLEX).tolist()
-            cs = []
-            for pv, M, cx in zip(prev, cols["M"], cplx):
-                K = min(K0, M)
-                cs.append([complex(pv[2 * n], pv[2 * n + 1]) for n in range(K)] if cx
-                          else pv[0:2 * K:2])
+            cs = rows["preview"][:, 0:2 * K0:2].tolist()  # real parts: the common case
+            cplx = rows["coeffs_kind"] == L.KIND_COMPLEX
+            for j in np.flatnonzero(cplx | (rows["M"] < K0)).tolist():
+                pv = rows["preview"][j].tolist()
+                K = min(K0, int(rows["M"][j]))
+                cs[j] = ([complex(pv[2 * n], pv[2 * n + 1]) for n in range(K)] if cplx[j]
+                         else pv[0:2 * K:2])
         cols["c"] = cs
         return cols
 
