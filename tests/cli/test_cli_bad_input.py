@@ -293,3 +293,31 @@ def test_changed_result_settings_are_refused(tmp_path, monkeypatch, capsys):
     assert code == 0, err
     assert "1 tasks (1 already done)" in out
     assert os.path.exists(tmp_path / "out.h5.log")
+
+
+def test_no_numeric_key_takes_a_boolean():
+    """TOML true/false are Python bools, which are ints: every key documented as a number
+    must still refuse them (all keys of config.KEYS are tried)."""
+    import copy
+
+    from maasscomp.config import KEYS, parse
+    from maasscomp.errors import InputError
+
+    base = {"job": {"output": "x.h5"}, "search": {"R_min": 1.0, "R_max": 2.0}}
+    tried = 0
+    for sec, key, typ, _, _ in KEYS:
+        if "bool" in typ or typ.startswith("string") or typ.startswith("path"):
+            continue
+        for v in (True, False):
+            d = copy.deepcopy(base)
+            if key == "windows":
+                del d["search"]["R_min"], d["search"]["R_max"]
+                d["search"]["windows"] = [[v, 2.0]]
+            elif key == "levels":
+                d["search"]["levels"] = [v]
+            else:
+                d.setdefault(sec, {})[key] = v
+            with pytest.raises(InputError, match="window" if key == "windows" else key):
+                parse(d)
+            tried += 1
+    assert tried >= 2 * 14

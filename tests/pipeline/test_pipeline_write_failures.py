@@ -53,3 +53,28 @@ def test_a_run_writes_nothing_into_the_package_folder(tmp_path):
                              capture_output=True, text=True, timeout=600)
         assert res.returncode == 0, res.stderr
     assert _tree(pkg) == before
+
+
+def test_file_size_limit_ends_the_run_with_exit_1(tmp_path, monkeypatch):
+    """`maasscomp run` under a file size limit (ulimit -f) that the next commit would pass:
+    one line naming the limit, exit 1, the store unchanged (no crash, no core dump)."""
+    import resource
+
+    monkeypatch.chdir(tmp_path)
+    cfg = write_config(tmp_path / "c.toml", output="s.h5", R=(9.3, 9.8), name="fsize")
+    assert main(["run", str(cfg), "-q"]) == 0
+    write_config(tmp_path / "c.toml", output="s.h5", R=(9.3, 12.4), name="fsize")
+    before = (tmp_path / "s.h5").read_bytes()
+    limit = len(before) + 1000
+
+    def cap() -> None:
+        resource.setrlimit(resource.RLIMIT_FSIZE, (limit, limit))
+
+    env = dict(os.environ, PYTHONPATH=str(REPO))
+    res = subprocess.run([sys.executable, "-m", "maasscomp", "run", str(cfg), "-q"],
+                         cwd=tmp_path, env=env, capture_output=True, text=True, timeout=600,
+                         preexec_fn=cap)
+    assert res.returncode == 1, res.stderr
+    assert res.stderr.count("\n") == 1 and "file size limit" in res.stderr, res.stderr
+    assert (tmp_path / "s.h5").read_bytes() == before
+    assert not [p for p in tmp_path.iterdir() if ".tmp." in p.name]
