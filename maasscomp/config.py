@@ -60,8 +60,9 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
      "Name of the study. Also the run id under which the store records finished tasks "
      "(letters, digits and _ . + - only)."),
     ("job", "output", "path (required)", None,
-     "HDF5 store to write. A relative path is taken relative to the working directory. "
-     "Rerunning the same config resumes into this file."),
+     "HDF5 store to write. A relative path is taken relative to the working directory; a "
+     "symlink is followed. Rerunning the same config resumes into this file. An existing "
+     "store must be writable by the user (a read-only one is refused before any work)."),
     ("job", "log", "path", "<output>.log",
      "Log file (appended to). Default: the store path with '.log' added. Must be neither "
      "the config file nor the store, and its directory must be writable."),
