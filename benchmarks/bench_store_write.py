@@ -1,6 +1,6 @@
 """Benchmark: writing 1000 forms (M = 200, 1-4 cusps) into the store.
 
-Run: python tests/store/bench_store_write.py [N_FORMS]
+Run: python benchmarks/bench_store_write.py [N_FORMS]
 
 Prints seconds for transactions of 1 and of 100 forms (durable fsync on and off), and
 the ratio against a reference measured in the same run: the same forms written in place
@@ -50,7 +50,7 @@ def run(path: Path, forms: list[Form], batch: int, durable: bool) -> float:
     if path.exists():
         path.unlink()
     t = time.perf_counter()
-    with Store.open(path, "a", durable=durable) as st:
+    with Store.open(path, "a", create=True, durable=durable) as st:
         for i in range(0, len(forms), batch):
             st.add_forms(forms[i:i + batch])
     return time.perf_counter() - t

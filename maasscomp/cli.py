@@ -1,8 +1,11 @@
 """Command-line interface: ``maasscomp <command> ...`` (also ``python -m maasscomp``).
 
-Exit codes: 0 success; 1 the run finished but some tasks failed (rerun to retry them);
-2 user error (bad config, bad arguments, missing or foreign files), printed as one line
-(or one line per config problem) on stderr without a traceback; 130 interrupted.
+Exit codes: 0 success; 1 the run finished but some tasks failed (rerun to retry them), a
+listing or export skipped damaged forms, or writing a file failed (disk full, file size
+limit; the store keeps every earlier commit); 2 user error (bad config, bad arguments,
+missing, foreign or read-only files, an unreachable scheduler), printed as one line (or one
+line per config problem) on stderr without a traceback; 130 interrupted (Ctrl-C); 143
+terminated (SIGTERM).  After 130 or 143 the finished tasks are stored: rerun to resume.
 """
 
 from __future__ import annotations
@@ -14,7 +17,11 @@ from typing import Sequence
 
 from maasscomp import __version__
 from maasscomp.config import arg_int
-from maasscomp.errors import InputError, StoreError
+from maasscomp.errors import InputError, StoreError, StoreWriteError
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, turned into an interrupt so that a run stops as after Ctrl-C."""
 
 
 class _Parser(argparse.ArgumentParser):
@@ -28,6 +35,8 @@ def _load_config(args: argparse.Namespace):
     cfg = load(args.config)
     if getattr(args, "backend", None) or getattr(args, "workers", None):
         cfg = cfg.with_executor(backend=args.backend, workers=args.workers)
+    if getattr(args, "no_size_limits", False):
+        cfg = cfg.without_size_limits()
     return cfg
 
 
@@ -61,33 +70,76 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return 0
 
 
+def _warn_damaged(store: str, damaged: dict[str, str] | list[tuple[str, str]]) -> int:
+    """Print the damaged forms (a few by name) on stderr; return the exit code (0 or 1)."""
+    items = list(damaged.items()) if isinstance(damaged, dict) else list(damaged)
+    if not items:
+        return 0
+    for key, why in items[:10]:
+        print(f"maasscomp: warning: skipped {key}: {why}", file=sys.stderr)
+    if len(items) > 10:
+        print(f"maasscomp: warning: ... and {len(items) - 10} more", file=sys.stderr)
+    print(f"maasscomp: {len(items)} damaged item(s) in {store} skipped; "
+          f"`maasscomp salvage {store} NEW` copies every intact form into a new file",
+          file=sys.stderr)
+    return 1
+
+
 def _cmd_list(args: argparse.Namespace) -> int:
     from maasscomp.store import Store
 
     with Store.open(args.store, "r") as st:
+        if args.verify:
+            st.verify()
         keys = st.select(level=args.level) if args.level is not None else None
-        rows = st.summary_rows(n_coeffs=args.coeffs, keys=keys)
-    if not rows:
+        cols = st.listing(n_coeffs=args.coeffs, keys=keys)
+        damaged = st.damaged()
+        unfinished = st.info()["unfinished_bytes"]
+    if unfinished:
+        print(f"maasscomp: note: {args.store} ends in {unfinished} bytes of an unfinished commit "
+              "(a writer was stopped, or is writing now); it is not part of the store",
+              file=sys.stderr)
+    if not cols["key"]:
         print(f"{args.store}: no forms")
-        return 0
-    head = f"{'key':<34} {'N':>3} {'class':<12} {'R':>20} {'R err':>8} {'Hecke':>8} {'new':>5}"
-    head += "".join(f" {'c(' + str(n) + ')':>14}" for n in range(1, args.coeffs + 1))
-    print(head)
-    for r in rows:
-        new = {True: "yes", False: "old", None: "?"}[r["is_new"]]
-        line = (f"{r['key']:<34} {r['level']:>3} {r['symmetry']:<12} {r['R']:>20.14f} "
-                f"{r['R_error']:>8.1e} {r['hecke_residual']:>8.1e} {new:>5}")
-        for n in range(1, args.coeffs + 1):
-            c = r.get(f"c{n}")
-            if c is None:
-                line += f" {'':>14}"
-            elif isinstance(c, complex):
-                line += f" {c.real:>+14.10f}{c.imag:+.3e}i"
-            else:
-                line += f" {c:>14.10f}"
-        print(line)
-    print(f"{len(rows)} forms")
-    return 0
+        return _warn_damaged(args.store, damaged)
+    K = args.coeffs
+    head = (f"{'key':<40} {'N':>3} {'class':<12} {'char':<8} {'R':>20} {'R err':>8} "
+            f"{'Hecke':>8} {'new':>5}")
+    head += "".join(f" {'c(' + str(n) + ')':>14}" for n in range(1, K + 1))
+    base = "%-40s %3d %-12s %-8s %20.14f %8.1e %8.1e %5s"
+    new = {True: "yes", False: "old", None: "?"}
+    isn = [new[v] for v in cols["is_new"]]
+    c = cols["c"]
+    # the usual line (K real coefficients) in one formatting call per line
+    plain = [len(x) == K and not (x and isinstance(x[0], complex)) for x in c]
+    if all(plain) and (K == 0 or c):
+        cs = zip(*c) if K else ()
+        out = [head, *map((base + " %14.10f" * K).__mod__,
+                          zip(cols["key"], cols["level"], cols["symmetry"], cols["character"],
+                              cols["R"], cols["R_error"], cols["hecke_residual"], isn, *cs))]
+    else:
+        out = [head]
+        for j, ok in enumerate(plain):
+            if ok:
+                out.append((base + " %14.10f" * K) % (
+                    cols["key"][j], cols["level"][j], cols["symmetry"][j], cols["character"][j],
+                    cols["R"][j], cols["R_error"][j], cols["hecke_residual"][j], isn[j], *c[j]))
+                continue
+            line = base % (cols["key"][j], cols["level"][j], cols["symmetry"][j],
+                           cols["character"][j], cols["R"][j], cols["R_error"][j],
+                           cols["hecke_residual"][j], isn[j])
+            for n in range(K):
+                v = c[j][n] if n < len(c[j]) else None
+                if v is None:
+                    line += f" {'':>14}"
+                elif isinstance(v, complex):
+                    line += f" {v.real:>+14.10f}{v.imag:+.3e}i"
+                else:
+                    line += f" {v:>14.10f}"
+            out.append(line)
+    out.append(f"{len(cols['key'])} forms")
+    sys.stdout.write("\n".join(out) + "\n")
+    return _warn_damaged(args.store, damaged)
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
@@ -99,12 +151,32 @@ def _cmd_export(args: argparse.Namespace) -> int:
     for p in (args.json, args.csv, args.coeffs_csv):
         if p and not Path(p).parent.resolve().is_dir():
             raise InputError(f"cannot write {p}: directory {Path(p).parent} does not exist")
+    damaged: list[tuple[str, str]] = []
     if args.json:
-        n = export_json(args.store, args.json)
+        n = export_json(args.store, args.json, damaged=damaged)
         print(f"wrote {n} forms to {args.json}")
     if args.csv:
-        n = export_csv(args.store, args.csv, n_coeffs=args.coeffs, coeffs_path=args.coeffs_csv)
+        bad: list[tuple[str, str]] = []
+        n = export_csv(args.store, args.csv, n_coeffs=args.coeffs, coeffs_path=args.coeffs_csv,
+                       damaged=bad)
+        damaged += [b for b in bad if b not in damaged]
         print(f"wrote {n} forms to {args.csv}")
+    return _warn_damaged(args.store, damaged)
+
+
+def _cmd_salvage(args: argparse.Namespace) -> int:
+    from maasscomp.store import salvage
+
+    rep = salvage(args.store, args.new)
+    print(f"{rep.target}: {rep.forms_copied} intact forms and {rep.attachments_copied} "
+          f"attachments copied from {rep.source}")
+    for key, why in rep.damaged:
+        print(f"  left out {key}: {why}")
+    for rid, tid in rep.tasks_dropped:
+        print(f"  task {tid} of run {rid} is no longer marked done (its forms were left out); "
+              "rerunning the config computes it again")
+    if rep.damaged:
+        print(f"{len(rep.damaged)} damaged item(s) left out")
     return 0
 
 
@@ -125,7 +197,12 @@ def _cmd_report(args: argparse.Namespace) -> int:
     return 0
 
 
-def build_parser() -> argparse.ArgumentParser:
+#: Commands defined in this module; parsing them needs no other stage's command hooks (which
+#: import the numerical stages, seconds of start-up for a listing).
+_OWN_COMMANDS = ("run", "check", "list", "export", "report", "salvage", "keys")
+
+
+def build_parser(hooks: bool = True) -> argparse.ArgumentParser:
     p = _Parser(prog="maasscomp",
                 description="Maass cusp forms on Gamma0(N): eigenvalues, coefficients, sup-norms.")
     p.add_argument("--version", action="version", version=f"maasscomp {__version__}")
@@ -139,12 +216,16 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--backend", choices=("serial", "joblib", "dask"),
                    help="override [executor] backend (does not change results)")
     r.add_argument("--workers", type=arg_int(1), help="override [executor] workers")
+    r.add_argument("--no-size-limits", action="store_true",
+                   help="run a job beyond the size limits (as [job] size_limits = false)")
     r.set_defaults(func=_cmd_run)
 
     c = sub.add_parser("check", help="validate a job config and print its tasks without running")
     c.add_argument("config", help="path of the TOML job config")
     c.add_argument("--backend", choices=("serial", "joblib", "dask"), help="override [executor] backend")
     c.add_argument("--workers", type=arg_int(1), help="override [executor] workers")
+    c.add_argument("--no-size-limits", action="store_true",
+                   help="accept a job beyond the size limits (as [job] size_limits = false)")
     c.set_defaults(func=_cmd_check)
 
     ls = sub.add_parser("list", help="list the forms in a store file")
@@ -152,6 +233,9 @@ def build_parser() -> argparse.ArgumentParser:
     ls.add_argument("--coeffs", type=arg_int(0), default=3,
                     help="number of coefficients c(n) to show (default 3)")
     ls.add_argument("--level", type=arg_int(1), help="only forms of this level")
+    ls.add_argument("--verify", action="store_true",
+                    help="read every form and check its checksum (without it the listing "
+                         "reads and checks only the index, which holds what it prints)")
     ls.set_defaults(func=_cmd_list)
 
     ex = sub.add_parser("export", help="export a store file to JSON and/or CSV")
@@ -168,27 +252,49 @@ def build_parser() -> argparse.ArgumentParser:
     rp.add_argument("--out", metavar="DIR", help="report folder (default: <store name>-report)")
     rp.set_defaults(func=_cmd_report)
 
+    sv = sub.add_parser("salvage", help="verify a store and copy every intact form into a new file")
+    sv.add_argument("store", help="HDF5 store file (only read; may be damaged or read-only)")
+    sv.add_argument("new", help="the new store file to write (must not exist)")
+    sv.set_defaults(func=_cmd_salvage)
+
     k = sub.add_parser("keys", help="print the documentation of every config key (Markdown)")
     k.set_defaults(func=_cmd_keys)
 
     import importlib.util
 
-    if importlib.util.find_spec("maasscomp.supnorm.commands") is not None:
+    if hooks and importlib.util.find_spec("maasscomp.supnorm.commands") is not None:
         from maasscomp.supnorm import commands as supnorm_commands
 
         supnorm_commands.add_commands(sub)
     return p
 
 
+def _on_sigterm(signum, frame) -> None:
+    import signal
+
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)  # a second SIGTERM ends the process at once
+    raise Terminated("terminated (SIGTERM)")
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point; returns the exit code (2 for user errors)."""
-    parser = build_parser()
+    import signal
+
+    first = (list(argv) if argv is not None else sys.argv[1:])[:1]
+    parser = build_parser(hooks=not (first and first[0] in _OWN_COMMANDS))
+    try:
+        old = signal.signal(signal.SIGTERM, _on_sigterm)
+    except ValueError:  # not the main thread: leave signals alone
+        old = None
     try:
         args = parser.parse_args(argv)
         if not getattr(args, "command", None):
             parser.print_help(sys.stderr)
             return 2
         return int(args.func(args) or 0)
+    except StoreWriteError as exc:
+        print(f"maasscomp: error: {exc}", file=sys.stderr)
+        return 1
     except (InputError, StoreError) as exc:
         print(f"maasscomp: error: {exc}", file=sys.stderr)
         return 2
@@ -199,9 +305,16 @@ def main(argv: Sequence[str] | None = None) -> int:
 
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 1
+    except Terminated:
+        print("maasscomp: terminated (SIGTERM); finished tasks are stored, rerun to resume",
+              file=sys.stderr)
+        return 143
     except KeyboardInterrupt:
         print("maasscomp: interrupted; finished tasks are stored, rerun to resume", file=sys.stderr)
         return 130
+    finally:
+        if old is not None:
+            signal.signal(signal.SIGTERM, old)
 
 
 if __name__ == "__main__":

@@ -39,6 +39,20 @@ LEVEL_KINDS = ("all", "squarefree", "primes")
 #: Largest level accepted by a level rule or list (a guard against typos like 10000000).
 MAX_LEVEL = 100_000
 
+# Size limits of one job, checked before any work unless ``[job] size_limits = false``.
+# Beyond them planning alone (group tables for every level, the task list) takes minutes
+# and the job weeks; they are limits of this version's planning, not of the mathematics.
+#: Levels in one job.
+MAX_JOB_LEVELS = 100
+#: Largest level of a job (setting up Gamma0(N) takes seconds at N ~ 1000).
+MAX_PLANNED_LEVEL = 1000
+#: Search tasks (level x symmetry class x R chunk) in one job.
+MAX_TASKS = 100_000
+#: Grid points of the determinant scan in one task.
+MAX_GRID_POINTS_PER_TASK = 2_000_000
+#: Grid points of the determinant scan in the whole job.
+MAX_GRID_POINTS = 200_000_000
+
 # (section, key, type name, default, meaning); default None with "required" in the type
 # means the key must be given.
 KEYS: list[tuple[str, str, str, Any, str]] = [
@@ -46,10 +60,16 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
      "Name of the study. Also the run id under which the store records finished tasks "
      "(letters, digits and _ . + - only)."),
     ("job", "output", "path (required)", None,
-     "HDF5 store to write. A relative path is taken relative to the working directory. "
-     "Rerunning the same config resumes into this file."),
+     "HDF5 store to write. A relative path is taken relative to the working directory; a "
+     "symlink is followed. Rerunning the same config resumes into this file. An existing "
+     "store must be writable by the user (a read-only one is refused before any work)."),
     ("job", "log", "path", "<output>.log",
-     "Log file (appended to). Default: the store path with '.log' added."),
+     "Log file (appended to). Default: the store path with '.log' added. Must be neither "
+     "the config file nor the store, and its directory must be writable."),
+    ("job", "size_limits", "bool", True,
+     "Refuse jobs beyond the planning limits (number of levels, largest level, number of "
+     "tasks, grid points of the determinant scan; see 'Size limits' below) before any work. "
+     "Set to false (or pass --no-size-limits) to run such a job anyway."),
     ("search", "levels", "list of int, or string", [1],
      "Levels N of Gamma0(N): a list like [1, 2, 3]; a range \"1..12\" (inclusive); or a "
      "rule \"squarefree up to 50\", \"primes up to 100\", \"all up to 12\", "
@@ -98,8 +118,10 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
     ("executor", "workers", "int", "number of cores",
      "Number of worker processes (joblib, local Dask cluster)."),
     ("executor", "address", "string", None,
-     "Dask only: address of a running scheduler, e.g. 'tcp://10.0.0.5:8786'. Absent: "
-     "start a local cluster with 'workers' processes."),
+     "Dask only: address of a running scheduler, 'tcp://HOST:PORT' or 'tls://HOST:PORT' "
+     "(HOST:PORT alone means tcp; the port defaults to 8786), e.g. 'tcp://10.0.0.5:8786'. "
+     "Before any work the address is probed: it must answer as a Dask scheduler within "
+     "15 s. Absent: start a local cluster with 'workers' processes."),
     ("executor", "memory_limit_gb", "float", "80% of RAM / workers",
      "Memory one task may use. A window whose systems would need more is refused before "
      "any work starts (and a local Dask cluster gets this limit per worker)."),
@@ -121,6 +143,7 @@ class JobConfig:
     name: str
     output: Path
     log: Path
+    size_limits: bool = True
 
 
 @dataclass(frozen=True)
@@ -175,7 +198,8 @@ class Config:
     def normalised(self) -> dict[str, Any]:
         """Every key with its value after defaults and level rules are applied (JSON-ready)."""
         d = {
-            "job": {"name": self.job.name, "output": str(self.job.output), "log": str(self.job.log)},
+            "job": {"name": self.job.name, "output": str(self.job.output), "log": str(self.job.log),
+                    "size_limits": self.job.size_limits},
             "search": asdict(self.search),
             "scan": asdict(self.scan),
             "executor": asdict(self.executor),
@@ -184,6 +208,12 @@ class Config:
         d["search"]["windows"] = [list(w) for w in self.search.windows]
         d["search"]["parities"] = list(self.search.parities)
         return d
+
+    def without_size_limits(self) -> "Config":
+        """A copy with ``[job] size_limits = false``."""
+        from dataclasses import replace
+
+        return replace(self, job=replace(self.job, size_limits=False))
 
     def with_executor(self, backend: str | None = None, workers: int | None = None) -> "Config":
         """A copy with the backend and/or worker count replaced (they never change results).
@@ -353,6 +383,52 @@ def _check_executor(ex: ExecutorConfig) -> None:
         raise InputError(f"workers={ex.workers!r} is not allowed; use an integer >= 1")
 
 
+_HOST_LABEL = re.compile(r"^(?!-)[A-Za-z0-9-]{1,63}(?<!-)$")
+DASK_SCHEMES = ("tcp", "tls")
+DASK_DEFAULT_PORT = 8786
+
+
+def parse_dask_address(address: str) -> tuple[str, str, int]:
+    """Split a scheduler address into (scheme, host, port); raise InputError if malformed.
+
+    Accepted: ``tcp://HOST:PORT``, ``tls://HOST:PORT``, ``HOST:PORT`` (tcp), with HOST a
+    host name, an IPv4 address or a bracketed IPv6 address, and PORT in 1..65535 (8786 if
+    omitted).
+    """
+    text = address.strip()
+    shape = "use 'tcp://HOST:PORT' or 'tls://HOST:PORT', e.g. 'tcp://10.0.0.5:8786'"
+    scheme, sep, rest = text.partition("://")
+    if not sep:
+        scheme, rest = "tcp", text
+    if scheme not in DASK_SCHEMES:
+        raise InputError(f"[executor] address={address!r}: scheme {scheme!r} is not supported; {shape}")
+    if not rest or "/" in rest or "@" in rest or any(c.isspace() for c in rest):
+        raise InputError(f"[executor] address={address!r} is not a scheduler address; {shape}")
+    if rest.startswith("["):
+        host, br, tail = rest[1:].partition("]")
+        if not br or ":" not in host:
+            raise InputError(f"[executor] address={address!r}: bad IPv6 host; {shape}")
+        port_text = tail[1:] if tail.startswith(":") else ("" if not tail else None)
+        if port_text is None:
+            raise InputError(f"[executor] address={address!r} is not a scheduler address; {shape}")
+    else:
+        host, _, port_text = rest.partition(":")
+        if ":" in port_text:
+            raise InputError(f"[executor] address={address!r}: write an IPv6 host in brackets; {shape}")
+        labels = host.split(".")
+        if not host or len(host) > 253 or not all(_HOST_LABEL.match(x) for x in labels):
+            raise InputError(f"[executor] address={address!r}: {host!r} is not a host name or "
+                             f"IP address; {shape}")
+    if port_text == "":
+        port = DASK_DEFAULT_PORT
+    elif not port_text.isdigit() or not (1 <= int(port_text) <= 65535):
+        raise InputError(f"[executor] address={address!r}: port {port_text!r} is not a number "
+                         f"in 1..65535; {shape}")
+    else:
+        port = int(port_text)
+    return scheme, host, port
+
+
 # ---------------------------------------------------------------- validation
 
 
@@ -391,6 +467,12 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     log = job.get("log")
     if log is not None and (not isinstance(log, str) or not log.strip()):
         problems.append(f"[job] log={log!r} must be a non-empty path string")
+    for nm, v in (("output", output), ("log", log)):
+        if isinstance(v, str) and "\0" in v:
+            problems.append(f"[job] {nm}={v!r} contains a NUL character; give a plain path")
+    size_limits = job.get("size_limits", True)
+    if not isinstance(size_limits, bool):
+        problems.append(f"[job] size_limits={size_limits!r} must be true or false")
 
     # [search]
     levels: tuple[int, ...] = ()
@@ -506,6 +588,11 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
         elif backend != "dask":
             problems.append(f"[executor] address is only used with backend = 'dask' (backend is "
                             f"{backend!r})")
+        else:
+            try:
+                parse_dask_address(address)
+            except InputError as exc:
+                problems.append(str(exc))
     mem = exe.get("memory_limit_gb")
     mem_explicit = mem is not None
     if mem is None:
@@ -530,7 +617,7 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     if not logp.is_absolute():
         logp = base / logp
     return Config(
-        job=JobConfig(name=name, output=out, log=logp),
+        job=JobConfig(name=name, output=out, log=logp, size_limits=bool(size_limits)),
         search=SearchConfig(
             levels=levels,
             windows=tuple(windows),
@@ -605,6 +692,23 @@ def keys_markdown() -> str:
         "- a range: `\"1..12\"` (both ends included; `\"1 to 12\"` also works);",
         "- a rule: `\"<kind> up to B\"` or `\"<kind> A..B\"`, kind one of "
         + ", ".join(f"`{k}`" for k in LEVEL_KINDS) + ".",
+        "",
+        "## Size limits",
+        "",
+        "`maasscomp check` and `maasscomp run` estimate the size of a job from the config",
+        "before any work (tasks, grid points of the determinant scan, memory per task, CPU",
+        "time) and stop, with one line and exit code 2, when it is beyond these limits:",
+        "",
+        f"- at most {MAX_JOB_LEVELS} levels, none above {MAX_PLANNED_LEVEL};",
+        f"- at most {MAX_TASKS:,} search tasks;",
+        f"- at most {MAX_GRID_POINTS_PER_TASK:,} grid points in one task and "
+        f"{MAX_GRID_POINTS:,} in the job.",
+        "",
+        "`[job] size_limits = false` (or `--no-size-limits`) lifts them. Never lifted: R must",
+        "stay inside the range of the K-Bessel function (`maasscomp.special.R_MAX`, 10^4",
+        "today) less the 0.001 that every chunk is searched beyond its ends; a grid step",
+        "must be at least 1e-10 * max(1, R_max) (finer steps cannot move R in double",
+        "precision); one task must fit in `memory_limit_gb`.",
         "",
         "## Executors and the store",
         "",

@@ -29,5 +29,23 @@ class StoreError(MaasscompError, OSError):
     """A store file is missing, not a maasscomp store, or of an unsupported schema."""
 
 
+class StoreWriteError(StoreError):
+    """Writing a file failed (disk full, file size limit, quota, I/O error); nothing of the
+    failed write was kept.  The CLI reports it in one line with exit code 1."""
+
+
+class DamagedFormError(StoreError):
+    """A stored form (or one of its attachments) fails its checksum or cannot be decoded;
+    ``key`` names it.  Readers skip such forms and count them."""
+
+    def __init__(self, message: str, key: str = "") -> None:
+        super().__init__(message)
+        self.key = key
+
+
 class AccuracyWarning(UserWarning):
     """A soft failure: a result was produced but is less accurate than requested."""
+
+
+class DamagedDataWarning(UserWarning):
+    """Damaged forms were skipped while reading a store."""

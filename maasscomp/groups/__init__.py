@@ -11,9 +11,13 @@ Cusp
     A cusp a/c with its width, an SL2(Z) matrix A and the scaling matrix.
 Pullback
     Result of ``Gamma0.pullback``: gamma z = sigma_j w with w in the strip of cusp j.
+DirichletCharacter, unit_generators
+    Dirichlet characters mod N by their exponents on fixed generators of (Z/NZ)^x.
 """
 
 from ._arith import divisors, factorint
+from .characters import DirichletCharacter, unit_generators
 from .gamma0 import Cusp, Gamma0, Pullback, gamma0
 
-__all__ = ["divisors", "factorint", "Cusp", "Gamma0", "Pullback", "gamma0"]
+__all__ = ["divisors", "factorint", "Cusp", "Gamma0", "Pullback", "gamma0", "DirichletCharacter",
+           "unit_generators"]

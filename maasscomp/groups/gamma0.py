@@ -108,6 +108,28 @@ class Cusp:
     def is_infinity(self) -> bool:
         return self.index == 0
 
+    @property
+    def representative(self) -> tuple[int, int]:
+        """The cusp as a reduced point (a, c) of P^1(Q): (1, 0) is infinity, (0, 1) is 0."""
+        if self.index == 0:
+            return (1, 0)
+        return (self.a, self.c)
+
+    @property
+    def name(self) -> str:
+        """Canonical name of the cusp class: ``"inf"``, ``"0"`` or ``"a/c"``.
+
+        For a cusp other than infinity and 0, c is the divisor of N with 1 < c < N whose
+        class it is, and a is the least positive integer prime to c in the cusp's class
+        of a modulo gcd(c, N/c) (Diamond & Shurman 2005, Prop. 3.8.3), so the name does not
+        depend on the order of ``Gamma0.cusps``.
+        """
+        if self.index == 0:
+            return "inf"
+        if self.c == 1:
+            return "0"
+        return f"{self.a}/{self.c}"
+
     def apply_scaling(self, x: ArrayLike, y: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
         """Return (Re, Im) of sigma(x + i y) for the scaling matrix sigma = M / sqrt(d).
 

@@ -10,7 +10,7 @@ Every executor is a context manager with two methods:
 Workers only compute; they never open the store. The job runner consumes
 ``as_completed`` in the main process and commits each result in one store transaction
 as it arrives, so a crash loses only the tasks in flight (the store is single-writer by
-design: its copy-on-write transactions and writer lock allow one writing process).
+design: its append-only commits and writer lock allow one writing process).
 
 Only this module (and nothing in the numerical stages) imports joblib or dask.
 """
@@ -47,11 +47,64 @@ class SerialExecutor:
         return [fn(it) for it in items]
 
 
-class JoblibExecutor:
-    """Worker processes on this machine through joblib's loky backend.
+#: Name of the thread that ends a worker process when the main process dies.
+_WATCH_THREAD = "maasscomp-parent-watch"
 
-    Loky limits the BLAS threads of each worker to cores / workers, so two workers on two
-    cores do not oversubscribe.
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def start_parent_watch(main_pid: int, interval: float = 0.5) -> None:
+    """In a worker process: end this process within ``interval`` seconds of the death of
+    the main process (``main_pid``) or of its own parent.
+
+    A worker killed this way loses only the task it was computing, which the main process
+    could not have stored anyway; without it a worker of a killed run computes on for
+    minutes.  Idempotent per process (one watch thread); a no-op in the main process.
+    """
+    import threading
+    import time
+
+    if os.getpid() == main_pid or any(t.name == _WATCH_THREAD for t in threading.enumerate()):
+        return
+    ppid = os.getppid()
+
+    def watch() -> None:
+        while True:
+            time.sleep(interval)
+            if os.getppid() != ppid or not _alive(main_pid):
+                os._exit(70)
+
+    threading.Thread(target=watch, name=_WATCH_THREAD, daemon=True).start()
+
+
+class _Watched:
+    """``fn`` wrapped so that the worker running it watches the main process."""
+
+    def __init__(self, fn: Callable, main_pid: int) -> None:
+        self.fn = fn
+        self.main_pid = main_pid
+
+    def __call__(self, item: Any) -> Any:
+        start_parent_watch(self.main_pid)
+        return self.fn(item)
+
+
+class JoblibExecutor:
+    """Worker processes on this machine through joblib's loky process pool.
+
+    BLAS threads of each worker are limited to cores / workers, so two workers on two cores
+    do not oversubscribe.  At most ``2 * workers`` tasks are queued at a time, so an
+    interruption leaves little queued work; leaving the ``with`` block on an exception
+    (an interrupt, a failed commit) kills the workers at once, and a worker ends by itself
+    when the main process dies (:func:`start_parent_watch`).
     """
 
     name = "joblib"
@@ -60,35 +113,53 @@ class JoblibExecutor:
         if workers < 1:
             raise InputError(f"workers={workers!r} is not allowed; use an integer >= 1")
         self.workers = workers
+        self._pool = None
 
     def __enter__(self) -> "JoblibExecutor":
+        from joblib.externals.loky import get_reusable_executor
+
+        threads = str(max(1, cpu_count() // self.workers))
+        env = {k: threads for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
+                                    "NUMBA_NUM_THREADS")}
+        self._pool = get_reusable_executor(max_workers=self.workers, timeout=60, env=env)
         return self
 
-    def __exit__(self, *exc: Any) -> None:
-        pass
+    def __exit__(self, exc_type: Any, *exc: Any) -> None:
+        pool, self._pool = self._pool, None
+        if pool is not None and exc_type is not None:
+            pool.shutdown(wait=False, kill_workers=True)
 
-    def _parallel(self, return_as: str):
-        from joblib import Parallel
+    def _submit_all(self, fn: Callable, items: list) -> Iterator:
+        from concurrent.futures import FIRST_COMPLETED, wait
 
-        # batch_size=1: tasks take seconds, and results must come back one by one
-        return Parallel(n_jobs=self.workers, backend="loky", return_as=return_as,
-                        batch_size=1, pre_dispatch="2*n_jobs")
+        if self._pool is None:
+            raise RuntimeError("use JoblibExecutor inside a 'with' block")
+        task = _Watched(fn, os.getpid())
+        todo = list(enumerate(items))[::-1]
+        running: dict = {}
+        try:
+            while todo or running:
+                while todo and len(running) < 2 * self.workers:
+                    i, it = todo.pop()
+                    running[self._pool.submit(task, it)] = i
+                done, _ = wait(list(running), return_when=FIRST_COMPLETED)
+                for fut in done:
+                    i = running.pop(fut)
+                    yield i, fut.result()
+        finally:
+            for fut in running:
+                fut.cancel()
 
     def as_completed(self, fn: Callable, items: Iterable) -> Iterator:
-        from joblib import delayed
-
-        items = list(items)
-        if not items:
-            return iter(())
-        return iter(self._parallel("generator_unordered")(delayed(fn)(it) for it in items))
+        for _, res in self._submit_all(fn, list(items)):
+            yield res
 
     def map(self, fn: Callable, items: Iterable) -> list:
-        from joblib import delayed
-
         items = list(items)
-        if not items:
-            return []
-        return self._parallel("list")(delayed(fn)(it) for it in items)
+        out: list = [None] * len(items)
+        for i, res in self._submit_all(fn, items):
+            out[i] = res
+        return out
 
 
 class DaskExecutor:
@@ -145,6 +216,10 @@ class DaskExecutor:
                                         processes=self.processes, dashboard_address=None,
                                         silence_logs=logging.ERROR, **kw)
             self.client = Client(self.cluster)
+            if self.processes:
+                from maasscomp.pipeline._dask_watch import register_parent_watch
+
+                register_parent_watch(self.client, os.getpid())
         return self
 
     def __exit__(self, *exc: Any) -> None:
@@ -152,7 +227,7 @@ class DaskExecutor:
             self.client.close()
             self.client = None
         if self.cluster is not None:
-            self.cluster.close()
+            self.cluster.close(timeout=10)
             self.cluster = None
 
     def as_completed(self, fn: Callable, items: Iterable) -> Iterator:
@@ -176,6 +251,89 @@ class DaskExecutor:
             raise RuntimeError("use DaskExecutor inside a 'with' block")
         futures = self.client.map(fn, list(items), pure=False)
         return self.client.gather(futures)
+
+
+def probe_dask_scheduler(address: str, timeout: float = 15.0) -> None:
+    """Raise InputError unless a Dask scheduler answers at ``address`` within ``timeout`` s.
+
+    A Dask peer greets every new connection at once with a framed handshake message (an
+    8-byte total length, an 8-byte frame count and the frame lengths, little-endian; the
+    TCP comm of ``distributed``).  So: nothing listening, no answer, silence, or a greeting
+    that is not such a frame (an HTTP or SSH server, say) each get their own message, and
+    the Dask client is never pointed at a service that would make it wait or read garbage
+    as frame lengths.  For ``tls://`` only the TCP connection is checked (the greeting is
+    encrypted).
+    """
+    import socket
+    import struct
+    import time
+
+    from maasscomp.config import parse_dask_address
+
+    scheme, host, port = parse_dask_address(address)
+    where = f"[executor] address={address!r}"
+    deadline = time.monotonic() + timeout
+    try:
+        infos = socket.getaddrinfo(host, port, type=socket.SOCK_STREAM)
+    except socket.gaierror as exc:
+        raise InputError(f"{where}: host {host!r} is unknown ({exc.strerror}); check the name") from None
+    last: Exception | None = None
+    sock = None
+    for family, stype, proto, _, sa in infos:
+        left = deadline - time.monotonic()
+        if left <= 0:
+            break
+        s = socket.socket(family, stype, proto)
+        s.settimeout(left)
+        try:
+            s.connect(sa)
+            sock = s
+            break
+        except OSError as exc:
+            last = exc
+            s.close()
+    if sock is None:
+        if isinstance(last, ConnectionRefusedError):
+            raise InputError(f"{where}: nothing listens at {host}:{port} (connection refused); "
+                             "start the scheduler (dask scheduler) or fix the address") from None
+        if isinstance(last, (socket.timeout, TimeoutError)) or last is None:
+            raise InputError(f"{where}: no answer from {host}:{port} within {timeout:g} s (host "
+                             "down, a firewall, or a slow network); check the address") from None
+        raise InputError(f"{where}: cannot connect to {host}:{port} "
+                         f"({getattr(last, 'strerror', None) or last})") from None
+    try:
+        if scheme == "tls":
+            return
+        head = b""
+        while len(head) < 16:
+            left = deadline - time.monotonic()
+            if left <= 0:
+                break
+            sock.settimeout(left)
+            try:
+                chunk = sock.recv(16 - len(head))
+            except (socket.timeout, TimeoutError):
+                break
+            except OSError as exc:
+                raise InputError(f"{where}: the connection to {host}:{port} failed "
+                                 f"({exc.strerror or exc})") from None
+            if not chunk:
+                break
+            head += chunk
+    finally:
+        sock.close()
+    if not head:
+        raise InputError(f"{where}: the service at {host}:{port} accepted the connection but "
+                         f"sent nothing within {timeout:g} s; a Dask scheduler greets at once, so "
+                         "this is not a Dask scheduler (or it is too overloaded to answer)")
+    ok = len(head) == 16
+    if ok:
+        total, nframes = struct.unpack("<QQ", head)
+        ok = 1 <= nframes <= 64 and 8 + 8 * nframes <= total <= 2**26
+    if not ok:
+        shown = head.decode("ascii", "replace").strip() or head.hex()
+        raise InputError(f"{where}: the service at {host}:{port} is not a Dask scheduler (it "
+                         f"answered {shown[:40]!r})")
 
 
 def make_executor(cfg: ExecutorConfig, *, processes: bool = True):

@@ -149,20 +149,24 @@ def check_compatible(st, cfg: Config) -> None:
 
 
 def preflight(cfg: Config) -> Plan:
-    """Everything that can fail before any file is written: config, plan, existing store."""
+    """Everything that can fail before any file is written: config, plan, files, scheduler.
+
+    See :mod:`maasscomp.pipeline.preflight` for the checks of the store and log paths and
+    :func:`maasscomp.pipeline.executors.probe_dask_scheduler` for the scheduler address.
+    """
+    from maasscomp.pipeline.executors import probe_dask_scheduler
+    from maasscomp.pipeline.preflight import check_log_path, check_store_path
     from maasscomp.store import Store
 
+    check_store_path(cfg)
+    check_log_path(cfg)
     plan = build_plan(cfg)
     out = cfg.job.output
     if out.exists():
         with Store.open(out, "r") as st:  # StoreError for a foreign or damaged file
             check_compatible(st, cfg)
-    elif not out.parent.is_dir():
-        raise InputError(f"[job] output={str(out)!r}: directory {out.parent} does not exist")
-    if cfg.job.log.exists() and cfg.job.log.is_dir():
-        raise InputError(f"[job] log={str(cfg.job.log)!r} is a directory; give a file name")
-    if not cfg.job.log.parent.is_dir():
-        raise InputError(f"[job] log={str(cfg.job.log)!r}: directory {cfg.job.log.parent} does not exist")
+    if cfg.executor.backend == "dask" and cfg.executor.address:
+        probe_dask_scheduler(cfg.executor.address)
     return plan
 
 
@@ -176,12 +180,24 @@ def _task_order(plan: Plan) -> list:
     return sorted(plan.tasks, key=lambda t: -cost(t))
 
 
+class _LogHandler(logging.FileHandler):
+    """A log file that never prints tracebacks of its own failures (a full disk would
+    otherwise bury the one-line error of the run under them)."""
+
+    def handleError(self, record: logging.LogRecord) -> None:
+        pass
+
+
 class _LogFile:
     """Attach a file handler for one run (and a stderr handler in verbose mode)."""
 
     def __init__(self, path: Path, verbose: bool) -> None:
         self.handlers: list[logging.Handler] = []
-        fh = logging.FileHandler(path, encoding="utf-8")
+        try:
+            fh = _LogHandler(path, encoding="utf-8")
+        except OSError as exc:
+            raise InputError(f"[job] log={str(path)!r}: cannot open the log file "
+                             f"({exc.strerror or exc})") from None
         fh.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(message)s"))
         fh.setLevel(logging.DEBUG)
         self.handlers.append(fh)
@@ -252,16 +268,17 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
     entered = False
     logf = None
     st = None
+    finished = False
     try:
         if own_executor:
             ex.__enter__()
             entered = True
         summary.backend, summary.workers = ex.name, ex.workers
-        st = Store.open(cfg.job.output, "a")
+        logf = _LogFile(cfg.job.log, verbose)
+        st = Store.open(cfg.job.output, "a", create=True)
         check_compatible(st, cfg)  # again under the writer lock
         st.begin_run(run_id, config_text=run_record(cfg))
-        logf = _LogFile(cfg.job.log, verbose)
-        done = st.done_tasks(run_id)
+        done = _intact_done_tasks(st, run_id, echo)
         todo = [t for t in _task_order(plan) if t.task_id not in done]
         summary.tasks_skipped = len(plan.tasks) - len(todo)
         log.info("run %r of %s (maasscomp %s), fingerprint %s, store %s",
@@ -306,17 +323,40 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
         summary.forms_per_class = _count_forms(st, cfg, plan)
         summary.seconds = time.perf_counter() - t0
         log.info("summary:\n%s", summary.as_text(), extra={"file_only": True})
+        finished = True
         return summary
-    except KeyboardInterrupt:
-        log.warning("interrupted; finished tasks are stored, rerun the same config to resume")
+    except KeyboardInterrupt as exc:
+        log.warning("%s; finished tasks are stored, rerun the same config to resume",
+                    str(exc) or "interrupted")
+        raise
+    except StoreError as exc:
+        log.error("stopped: %s", exc)
         raise
     finally:
         if st is not None:
-            st.close()
+            # an interrupted or failed run stops at once: no compaction on the way out
+            st.close(compact=finished)
         if entered:
             ex.__exit__(None, None, None)
         if logf is not None:
             logf.close()
+
+
+def _intact_done_tasks(st, run_id: str, echo) -> dict[str, list[str]]:
+    """Finished tasks of the run whose forms are all intact.
+
+    Every form is read and checked once (:meth:`maasscomp.store.Store.verify`); a task
+    that produced a damaged form is run again, and the store replaces the damaged form
+    by the recomputed one.
+    """
+    damaged = st.verify()
+    if damaged:
+        log.warning("%d damaged item(s) in %s: %s; the tasks that made them run again",
+                    len(damaged), st.path, "; ".join(f"{k}: {v}" for k, v in damaged.items()))
+        echo(f"warning: {len(damaged)} damaged item(s) in {st.path}; the tasks that made "
+             "them run again")
+    done = st.done_tasks(run_id)
+    return {t: keys for t, keys in done.items() if not any(k in damaged for k in keys)}
 
 
 def _store_outputs(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str,
@@ -328,18 +368,18 @@ def _store_outputs(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str,
     if not good:
         return added
     with st.transaction():
-        before = set(st.keys())
         for o in good:
             forms = o.output.forms
-            keys = st.add_forms(forms, on_duplicate="skip", config_text=cfg.source_text, run_id=run_id)
+            stored: list[str] = []
+            keys = st.add_forms(forms, on_duplicate="skip", config_text=cfg.source_text,
+                                run_id=run_id, added=stored)
             st.mark_task_done(o.task_id, keys, run_id=run_id)
-            n = 0
+            fresh = set(stored)
             for f, k in zip(forms, keys):
-                if k not in before:
-                    before.add(k)
+                if k in fresh:
+                    fresh.discard(k)
                     new_counts[(f.level, f.symmetry.label)] += 1
-                    n += 1
-            added[o.task_id] = n
+            added[o.task_id] = len(stored)
     return added
 
 
@@ -479,7 +519,10 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
         # a scan made with other grid settings (e.g. by `maasscomp scan`) is redone
         if attachment not in st.attachments(k):
             return False
-        old = st.get_attachment(k, attachment)
+        try:
+            old = st.get_attachment(k, attachment)
+        except StoreError:  # a damaged scan is made again (and replaced)
+            return False
         return old.get("Y_c") == sc.Y_c and old.get("rtol") == sc.rtol
 
     todo = [k for k in keys if not scanned(k)]

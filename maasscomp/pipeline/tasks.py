@@ -405,6 +405,138 @@ def estimate_task_memory(level: int, R_max: float, eps: float, n_coeffs: int) ->
     return nbytes, {"M0": M0, "Q": Q, "n_cusps": cusps, "Y": Y}
 
 
+def supported_R_max() -> float:
+    """Largest R the K-Bessel function supports: ``maasscomp.special.R_MAX`` (10^4 when a
+    version of the special stage does not expose it)."""
+    import maasscomp.special as special
+
+    return float(getattr(special, "R_MAX", 1e4))
+
+
+def _prime_factors(n: int) -> list[int]:
+    out, d = [], 2
+    while d * d <= n:
+        if n % d == 0:
+            out.append(d)
+            while n % d == 0:
+                n //= d
+        d += 1
+    if n > 1:
+        out.append(n)
+    return out
+
+
+def _index(N: int) -> int:
+    """[SL2(Z) : Gamma0(N)] = N prod_{p | N} (1 + 1/p) (Diamond & Shurman 2005, §1.2)."""
+    out = N
+    for p in _prime_factors(N):
+        out = out // p * (p + 1)
+    return out
+
+
+def _classes_searched(N: int, parities: tuple[str, ...], atkin_lehner: str) -> tuple[int, int]:
+    """(classes searched, classes of the level) without building the group (the rule of
+    :func:`class_labels` and :func:`maasscomp.spectrum.search.symmetry_classes`)."""
+    if not is_squarefree(N):
+        return len(parities), 2
+    k = len(_prime_factors(N))
+    per_parity = 2 ** k if (atkin_lehner == "all" or N == 1) else 1
+    return len(parities) * per_parity, 2 * 2 ** k
+
+
+def _n_chunks(a: float, b: float, w: float) -> int:
+    # chunk edges sit at the multiples of w strictly inside (a, b) (chunk_window)
+    return max(1, math.ceil(b / w) - math.floor(a / w))
+
+
+@dataclass(frozen=True)
+class JobSize:
+    """How big a job is, estimated from the config alone (no group is built)."""
+
+    levels: int
+    max_level: int
+    tasks: int
+    grid_points: float          # determinant evaluations, summed over classes
+    max_task_points: float      # grid points of the largest task (per class)
+
+
+def estimate_size(cfg: Config) -> JobSize:
+    """Tasks and grid points of a job by Weyl's law, without building any group.
+
+    The grid step of the search is min(0.02, mean spacing / 12) with the mean spacing
+    6 n_classes / (index R) of one class (:func:`maasscomp.spectrum.search.mean_spacing`),
+    unless ``step`` is given; grid points are summed over the classes searched.
+    """
+    s = cfg.search
+    tasks = 0
+    points = 0.0
+    worst = 0.0
+    n_chunks = sum(_n_chunks(a, b, s.chunk_width) for a, b in s.windows)
+    for N in s.levels:
+        searched, total_classes = _classes_searched(N, s.parities, s.atkin_lehner)
+        tasks += searched * n_chunks
+        c = 2.0 * _index(N) / total_classes  # 1/step = max(50, c R) for the default step
+        for a, b in s.windows:
+            if s.step is not None:
+                per_class = (b - a) / s.step
+                top = min(s.chunk_width, b - a) / s.step
+            else:
+                # integral of max(50, c R) dR over [a, b]
+                r0 = 50.0 / c
+                lo, hi = a, b
+                flat = max(0.0, min(hi, r0) - lo)
+                lo2 = max(lo, r0)
+                per_class = 50.0 * flat + (0.5 * c * (hi * hi - lo2 * lo2) if hi > lo2 else 0.0)
+                top = min(s.chunk_width, b - a) * max(50.0, c * b)
+            points += searched * per_class
+            worst = max(worst, top)
+    return JobSize(len(s.levels), max(s.levels) if s.levels else 0, tasks, points, worst)
+
+
+def _size_problems(cfg: Config) -> tuple[JobSize | None, list[str]]:
+    """Hard limits (never lifted) and size limits (lifted by ``[job] size_limits = false``)."""
+    from maasscomp.config import (MAX_GRID_POINTS, MAX_GRID_POINTS_PER_TASK, MAX_JOB_LEVELS,
+                                  MAX_PLANNED_LEVEL, MAX_TASKS)
+
+    s = cfg.search
+    hard = []
+    r_top = supported_R_max() - OVERLAP
+    if s.R_max > r_top:
+        hard.append(f"[search] R_max={s.R_max:g} is beyond the supported range: every chunk is "
+                    f"searched up to R_max + {OVERLAP:g}, and the K-Bessel function supports "
+                    f"R <= {supported_R_max():g}; use R_max <= {r_top:.10g}")
+    if s.step is not None and s.step < 1e-10 * max(1.0, s.R_max):
+        hard.append(f"[search] step={s.step!r} is below the resolution of R near "
+                    f"R_max={s.R_max:g}; use step >= {1e-10 * max(1.0, s.R_max):.3g} "
+                    "(or leave step out for the search's own rule)")
+    if hard:
+        return None, hard
+    size = estimate_size(cfg)
+    if not cfg.job.size_limits:
+        return size, []
+    lift = "; or set [job] size_limits = false (--no-size-limits) to run it anyway"
+    out = []
+    if size.levels > MAX_JOB_LEVELS:
+        out.append(f"[search] levels: {size.levels} levels, more than the {MAX_JOB_LEVELS} of "
+                   f"one job; split the levels over several jobs{lift}")
+    if size.max_level > MAX_PLANNED_LEVEL:
+        out.append(f"[search] levels: level {size.max_level} is above {MAX_PLANNED_LEVEL}, where "
+                   f"setting up Gamma0(N) alone takes minutes{lift}")
+    if size.tasks > MAX_TASKS:
+        out.append(f"the job has {size.tasks:,} search tasks, more than {MAX_TASKS:,}; raise "
+                   f"[search] chunk_width or narrow the windows{lift}")
+    if size.max_task_points > MAX_GRID_POINTS_PER_TASK:
+        out.append(f"one task would scan {size.max_task_points:.3g} grid points, more than "
+                   f"{MAX_GRID_POINTS_PER_TASK:,}; "
+                   + ("raise [search] step" if s.step is not None else "lower [search] chunk_width")
+                   + lift)
+    if size.grid_points > MAX_GRID_POINTS:
+        out.append(f"the job would scan {size.grid_points:.3g} grid points, more than "
+                   f"{MAX_GRID_POINTS:,}; narrow the windows or the levels"
+                   + (", or raise [search] step" if s.step is not None else "") + lift)
+    return size, out
+
+
 @dataclass(frozen=True)
 class Plan:
     """Every task of a job, in a fixed order, with what the planner checked."""
@@ -413,11 +545,18 @@ class Plan:
     classes: dict[int, tuple[str, ...]] = field(default_factory=dict)
     memory_gb: dict[int, float] = field(default_factory=dict)
     scan: bool = False
+    size: JobSize | None = None
+    cpu_hours: float = 0.0
 
     def describe(self) -> str:
         nl = len(self.classes)
         lines = [f"{len(self.tasks)} search tasks over {nl} level{'s' if nl != 1 else ''}"
                  + (", then a sup-norm scan of every form found" if self.scan else "")]
+        if self.size is not None:
+            lines.append(f"  about {self.size.grid_points:.3g} determinant evaluations (largest "
+                         f"task {self.size.max_task_points:.3g} grid points); CPU time of the "
+                         f"search: {_fmt_hours(self.cpu_hours)} (order of magnitude; scans "
+                         "not included)")
         for N, labels in self.classes.items():
             n = sum(t.level == N for t in self.tasks)
             lines.append(f"  level {N:>4}: {len(labels)} classes ({', '.join(labels)}), {n} tasks, "
@@ -425,14 +564,37 @@ class Plan:
         return "\n".join(lines)
 
 
+def _fmt_hours(h: float) -> str:
+    if h < 1 / 60:
+        return "under a minute"
+    if h < 1 / 6:
+        return f"{60 * h:.0f} min"
+    if h < 1:
+        return f"{60 * h:.0f} min"
+    if h < 48:
+        return f"{h:.1f} h"
+    return f"{h / 24:.0f} days"
+
+
+#: Floating-point rate assumed for the time estimate of a determinant evaluation.
+_FLOPS = 2e9
+
+
 def build_plan(cfg: Config) -> Plan:
     """All tasks of a validated config; raise InputError for what cannot be run.
 
-    Checks that need the groups: non-squarefree levels need the multi-cusp search, and
-    the systems of one task must fit in ``[executor] memory_limit_gb``. Touches no file.
+    First, without building any group: R inside the supported range, a grid step R can
+    resolve, and the size limits (:func:`estimate_size`). Then the checks that need the
+    groups: non-squarefree levels need the multi-cusp search, and the systems of one task
+    must fit in ``[executor] memory_limit_gb``. Touches no file.
     """
     s = cfg.search
-    problems: list[str] = []
+    where = f"{cfg.source_path}: " if cfg.source_path else ""
+    size, problems = _size_problems(cfg)
+    if problems:
+        if len(problems) == 1:
+            raise InputError(where + problems[0])
+        raise InputError(where + f"{len(problems)} problems in the config:\n  - " + "\n  - ".join(problems))
     have_general = general_search() is not None
     tasks: list[SearchTask] = []
     classes: dict[int, tuple[str, ...]] = {}
@@ -445,6 +607,7 @@ def build_plan(cfg: Config) -> Plan:
             "squarefree: searches at non-squarefree levels are not yet supported by this "
             "version; use squarefree levels (e.g. levels = \"squarefree up to 50\")")
     limit = cfg.executor.memory_limit_gb
+    hours = 0.0
     for N in s.levels:
         general = not is_squarefree(N)
         if general and not have_general:
@@ -467,12 +630,26 @@ def build_plan(cfg: Config) -> Plan:
         for lab in labels:
             for c in chunks:
                 tasks.append(SearchTask(N, lab, c, s.eps, s.n_coeffs, s.step, general))
+        if size is not None:
+            # two heights, an LU of the M x M matrix and its assembly per grid point, with
+            # the truncation the scan uses at the lower height
+            from maasscomp.hejhal.params import truncation_M0
+
+            M = info["n_cusps"] * truncation_M0(s.R_max + 1.0, info["Y"], s.eps)
+            hours += _level_points(cfg, N) * 2 * (2 / 3 * M**3 + 10 * M * M) / _FLOPS / 3600
     if cfg.scan.enabled and scanner() is None:
         problems.append("[scan] enabled = true, but this version has no sup-norm scanner; "
                         "set enabled = false")
     if problems:
-        where = f"{cfg.source_path}: " if cfg.source_path else ""
         if len(problems) == 1:
             raise InputError(where + problems[0])
         raise InputError(where + f"{len(problems)} problems in the config:\n  - " + "\n  - ".join(problems))
-    return Plan(tasks=tuple(tasks), classes=classes, memory_gb=mem, scan=cfg.scan.enabled)
+    return Plan(tasks=tuple(tasks), classes=classes, memory_gb=mem, scan=cfg.scan.enabled,
+                size=size, cpu_hours=hours)
+
+
+def _level_points(cfg: Config, N: int) -> float:
+    """Grid points of one level (see :func:`estimate_size`)."""
+    from dataclasses import replace
+
+    return estimate_size(replace(cfg, search=replace(cfg.search, levels=(N,)))).grid_points

@@ -1,9 +1,10 @@
-"""Atomic file replacement, durability and the writer lock.
+"""Files: atomic replacement, durability, free space, file identity and the writer lock.
 
-The store and its exports never modify a finished file in place: they write a temporary
-file in the same directory, flush it to disk, and ``os.replace`` it onto the target (atomic
-on POSIX within one file system), then fsync the directory so the rename itself survives a
-power failure.  A process killed at any moment leaves either the old or the new target.
+Exports and compactions never modify a finished file in place: they write a temporary file
+in the same directory, flush it to disk, give it the identity of the file it replaces (mode
+bits, group, owner), and ``os.replace`` it onto the target (atomic on POSIX within one file
+system), then fsync the directory so the rename itself survives a power failure.  A process
+killed at any moment leaves either the old or the new target.
 """
 
 from __future__ import annotations
@@ -12,12 +13,43 @@ import contextlib
 import errno
 import os
 import secrets
+import stat
 import time
+from dataclasses import dataclass
 from pathlib import Path
 from typing import IO, Iterator
 
-from maasscomp.errors import StoreError
+from maasscomp.errors import StoreError, StoreWriteError
 from maasscomp.store import schema as S
+
+#: Free space kept untouched on the device by every write (bytes), beside the write itself.
+RESERVE_BYTES = 4 * 2**20
+
+_ERRNO_CAUSE = {
+    errno.ENOSPC: "no space left on the device",
+    errno.EFBIG: "the file size limit of this process (ulimit -f) was reached",
+    errno.EDQUOT: "the disk quota was exceeded",
+    errno.EIO: "an input/output error of the device",
+    errno.EROFS: "the file system is read-only",
+    errno.EACCES: "permission denied",
+    errno.EPERM: "operation not permitted",
+    errno.ENAMETOOLONG: "the path is too long",
+}
+
+
+def cause(exc: BaseException) -> str:
+    """A plain-words cause of an OSError (errno), else the exception text."""
+    if isinstance(exc, OSError) and exc.errno in _ERRNO_CAUSE:
+        return _ERRNO_CAUSE[exc.errno]
+    if isinstance(exc, OSError) and exc.strerror:
+        return exc.strerror
+    return str(exc) or type(exc).__name__
+
+
+def real_path(path: str | os.PathLike) -> Path:
+    """The path with every symlink resolved (a missing final name is kept as given), so two
+    names of one store are one store for the lock and for every write."""
+    return Path(os.path.realpath(os.fspath(path)))
 
 
 def temp_path_for(target: Path) -> Path:
@@ -56,6 +88,120 @@ def fsync_dir(path: Path) -> None:
         os.close(fd)
 
 
+# ---------------------------------------------------------------- free space and limits
+
+
+def free_bytes(directory: Path) -> int:
+    """Bytes an unprivileged writer may still use on the device of ``directory``."""
+    st = os.statvfs(directory)
+    return st.f_bavail * st.f_frsize
+
+
+def file_size_limit() -> int | None:
+    """The soft RLIMIT_FSIZE of this process in bytes (None when unlimited)."""
+    try:
+        import resource
+    except ImportError:  # pragma: no cover - non-POSIX
+        return None
+    soft, _ = resource.getrlimit(resource.RLIMIT_FSIZE)
+    return None if soft == resource.RLIM_INFINITY else int(soft)
+
+
+def check_room(target: Path, new_size: int, growth: int, what: str) -> None:
+    """Raise StoreWriteError unless ``growth`` more bytes fit on the device of ``target``
+    and a file of ``new_size`` bytes stays within this process's file size limit."""
+    limit = file_size_limit()
+    if limit is not None and new_size > limit:
+        raise StoreWriteError(
+            f"cannot write {what} to {target}: the file would reach {new_size / 2**20:.1f} MB, "
+            f"beyond the file size limit of this process ({limit / 2**20:.1f} MB, ulimit -f); "
+            "nothing was written")
+    try:
+        free = free_bytes(target.parent)
+    except OSError:
+        return
+    if growth + RESERVE_BYTES > free:
+        raise StoreWriteError(
+            f"cannot write {what} to {target}: it needs {growth / 2**20:.1f} MB and "
+            f"{free / 2**20:.1f} MB are free on the device (keeping {RESERVE_BYTES // 2**20} MB "
+            "in reserve); free some space and rerun; nothing was written")
+
+
+# ---------------------------------------------------------------- file identity
+
+
+@dataclass(frozen=True)
+class Identity:
+    """What a replacement file must keep: permission bits, owner and group."""
+
+    mode: int
+    uid: int
+    gid: int
+    nlink: int
+
+
+def identity_of(path: Path) -> Identity:
+    st = os.stat(path)
+    return Identity(stat.S_IMODE(st.st_mode), st.st_uid, st.st_gid, st.st_nlink)
+
+
+def why_not_replaceable(path: Path) -> str | None:
+    """Why ``path`` cannot be replaced by a new file with the same identity (None if it can).
+
+    A replacement needs a writable directory, a single link (a second hard link would keep
+    the old content), and the right to give the new file the old owner and group.
+    """
+    try:
+        ident = identity_of(path)
+    except OSError as exc:
+        return f"cannot stat {path}: {cause(exc)}"
+    if ident.nlink > 1:
+        return f"{path} has {ident.nlink} hard links"
+    if not os.access(path.parent, os.W_OK | os.X_OK):
+        return f"directory {path.parent} is not writable"
+    euid = os.geteuid()
+    if euid != 0:
+        if ident.uid != euid:
+            return f"{path} belongs to another user (uid {ident.uid})"
+        if ident.gid not in os.getgroups() and ident.gid != os.getegid():
+            return f"{path} belongs to group {ident.gid}, which this user is not a member of"
+    return None
+
+
+def apply_identity(tmp: Path, ident: Identity, *, strict: bool = True) -> None:
+    """Give ``tmp`` the owner, group and mode bits of the file it will replace.
+
+    ``strict=False``: keep going when the owner or group cannot be given (the mode bits are
+    always set, after the ownership, which may clear set-id bits).
+    """
+    st = os.stat(tmp)
+    if (st.st_uid, st.st_gid) != (ident.uid, ident.gid):
+        try:
+            os.chown(tmp, ident.uid if os.geteuid() == 0 else -1, ident.gid)
+        except OSError:
+            if strict:
+                raise
+    os.chmod(tmp, ident.mode)
+
+
+def write_denied(path: Path) -> str | None:
+    """Why this user may not write the existing file ``path`` (None if writing is allowed).
+
+    A file without any write permission bit is read-only for every user, also for root:
+    its owner marked it so.
+    """
+    try:
+        st = os.stat(path)
+    except OSError as exc:
+        return cause(exc)
+    mode = stat.S_IMODE(st.st_mode)
+    if not os.access(path, os.W_OK):
+        return f"permission denied (mode {mode:04o}, owner uid {st.st_uid})"
+    if os.geteuid() == 0 and not mode & 0o222:
+        return f"it is marked read-only (mode {mode:04o})"
+    return None
+
+
 def commit_temp(tmp: Path, target: Path, durable: bool) -> None:
     """Move a finished temporary file onto ``target`` atomically."""
     if durable:
@@ -68,20 +214,29 @@ def commit_temp(tmp: Path, target: Path, durable: bool) -> None:
 @contextlib.contextmanager
 def atomic_text_writer(target: str | os.PathLike, *, newline: str | None = None,
                        durable: bool = True) -> Iterator[IO[str]]:
-    """Open a temporary text file; on success it replaces ``target``, on error it is removed."""
-    target = Path(target)
+    """Open a temporary text file; on success it replaces ``target``, on error it is removed.
+
+    An existing target keeps its mode bits and group.
+    """
+    target = real_path(target)
     if target.is_dir():
         raise StoreError(f"output path {target} is a directory; expected a file name")
     tmp = temp_path_for(target)
     try:
         fh = open(tmp, "w", encoding="utf-8", newline=newline)
     except OSError as exc:
-        raise StoreError(f"cannot write {target}: {exc.strerror or exc}") from exc
+        raise StoreError(f"cannot write {target}: {cause(exc)}") from exc
     try:
-        with fh:
-            yield fh
-            fh.flush()
-        commit_temp(tmp, target, durable)
+        try:
+            with fh:
+                yield fh
+                fh.flush()
+            if target.exists():
+                apply_identity(tmp, identity_of(target), strict=False)
+            commit_temp(tmp, target, durable)
+        except OSError as exc:
+            raise StoreWriteError(f"cannot write {target}: {cause(exc)}; the file was not "
+                                  "changed") from exc
     except BaseException:
         with contextlib.suppress(OSError):
             os.unlink(tmp)
@@ -91,9 +246,9 @@ def atomic_text_writer(target: str | os.PathLike, *, newline: str | None = None,
 class WriterLock:
     """Exclusive advisory lock ``<store>.lock`` held while a store is open for writing.
 
-    Copy-on-write transactions are only safe with one writer: two writers would each copy
-    the same old file and the later rename would drop the other's forms.  ``flock`` locks
-    vanish with the process, so a killed writer never leaves the store locked.
+    The lock file sits beside the store's real path (symlinks resolved), so every name of
+    one store takes the same lock.  ``flock`` locks vanish with the process, so a killed
+    writer never leaves the store locked.
     """
 
     def __init__(self, target: Path, timeout: float) -> None:
@@ -103,7 +258,10 @@ class WriterLock:
         try:
             self._fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
         except OSError as exc:
-            raise StoreError(f"cannot create lock file {self.path}: {exc.strerror or exc}") from exc
+            try:
+                self._fd = os.open(self.path, os.O_RDONLY)
+            except OSError:
+                raise StoreError(f"cannot create lock file {self.path}: {cause(exc)}") from exc
         deadline = time.monotonic() + max(0.0, timeout)
         while True:
             try:
@@ -112,7 +270,7 @@ class WriterLock:
             except OSError as exc:
                 if exc.errno not in (errno.EAGAIN, errno.EACCES, errno.EWOULDBLOCK):
                     os.close(self._fd)
-                    raise StoreError(f"cannot lock {self.path}: {exc.strerror or exc}") from exc
+                    raise StoreError(f"cannot lock {self.path}: {cause(exc)}") from exc
                 if time.monotonic() >= deadline:
                     os.close(self._fd)
                     raise StoreError(

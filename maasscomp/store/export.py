@@ -6,6 +6,10 @@ token for nan/inf; they are written as the strings ``"nan"``, ``"inf"``, ``"-inf
 (in CSV they appear as ``nan``, ``inf``, ``-inf``, which ``float()`` reads).  Complex
 coefficients are ``{"re": .., "im": ..}`` objects in JSON and Python literals such as
 ``(0.5-1.25j)`` in CSV, which ``complex()`` reads.
+
+Every form carries its character and the data of the cusps its coefficient rows belong to
+(name, representative a/c, width, scaling matrix), so coefficients at N > 1 can be used
+without knowing this package's cusp order.  Damaged forms are left out and named.
 """
 
 from __future__ import annotations
@@ -16,11 +20,13 @@ import os
 from pathlib import Path
 from typing import Any, Iterable
 
+import numpy as np
+
 from maasscomp import __version__
 from maasscomp.errors import InputError, StoreError
 from maasscomp.store import _atomic
 from maasscomp.store._codec import to_plain_json
-from maasscomp.store.store import Store, utc_now_iso
+from maasscomp.store.store import FormRecord, Store, utc_now_iso, warn_damaged
 
 #: ``format`` field of an exported JSON document.
 JSON_FORMAT = "maasscomp-export"
@@ -30,8 +36,9 @@ SUMMARY_COLUMNS = (
     "key", "level", "symmetry", "parity", "al_signs", "R", "R_error", "hecke_residual",
     "is_new", "multiplicity", "basis_index", "n_cusps", "M",
     "solver_Y", "solver_M0", "solver_Q", "solver_eps", "run_id", "created_utc", "extra",
+    "character", "conductor", "cusps",
 )
-COEFF_COLUMNS = ("key", "cusp", "n", "c", "error")
+COEFF_COLUMNS = ("key", "cusp", "n", "c", "error", "cusp_name")
 
 
 def _keys(st: Store, keys: Iterable[str] | None) -> list[str]:
@@ -44,56 +51,87 @@ def _keys(st: Store, keys: Iterable[str] | None) -> list[str]:
     return keys
 
 
-def form_record(st: Store, key: str, attachments: bool = False) -> dict[str, Any]:
+def _plain_array(a: np.ndarray) -> list:
+    """Nested lists of a float or complex array, fast for the common all-finite case."""
+    if np.iscomplexobj(a):
+        re, im = a.real, a.imag
+        if np.isfinite(re).all() and np.isfinite(im).all():
+            return [[{"re": x, "im": y} for x, y in zip(r.tolist(), i.tolist())]
+                    for r, i in zip(re, im)]
+        return to_plain_json(a)
+    if np.isfinite(a).all():
+        return a.tolist()
+    return to_plain_json(a)
+
+
+def record_of(rec: FormRecord) -> dict[str, Any]:
     """All fields of one stored form as plain JSON-ready data."""
-    f = st.get(key)
-    prov = st.provenance(key)
-    rec: dict[str, Any] = {
-        "key": key,
-        "level": f.level,
-        "R": f.R,
-        "eigenvalue": f.eigenvalue,
+    out: dict[str, Any] = {
+        "key": rec.key,
+        "label": rec.label,
+        "level": rec.level,
+        "R": rec.R,
+        "eigenvalue": 0.25 + rec.R * rec.R,
         "symmetry": {
-            "label": f.symmetry.label,
-            "parity": f.symmetry.parity,
-            "al_signs": [list(ps) for ps in f.symmetry.al_signs],
+            "label": rec.symmetry,
+            "parity": rec.parity,
+            "al_signs": [list(ps) for ps in rec.al_signs],
         },
-        "R_error": f.R_error,
-        "hecke_residual": f.hecke_residual,
-        "solver": f.params.as_dict(),
-        "is_new": f.is_new,
-        "multiplicity": f.multiplicity,
-        "basis_index": f.basis_index,
-        "n_cusps": int(f.coeffs.shape[0]),
-        "M": int(f.coeffs.shape[1]),
-        "extra": f.extra,
-        "provenance": prov,
-        "coeffs": f.coeffs,
-        "coeff_errors": f.coeff_errors,
+        "character": rec.character,
+        "cusps": [c.as_dict() for c in rec.cusps],
+        "R_error": rec.R_error,
+        "hecke_residual": rec.hecke_residual,
+        "solver": rec.solver,
+        "is_new": rec.is_new,
+        "multiplicity": rec.multiplicity,
+        "basis_index": rec.basis_index,
+        "n_cusps": int(rec.coeffs.shape[0]),
+        "M": int(rec.coeffs.shape[1]),
+        "extra": rec.extra,
+        "provenance": rec.provenance,
     }
+    if rec.fields:
+        out["fields"] = rec.fields
+    out = to_plain_json(out)
+    out["coeffs"] = _plain_array(rec.coeffs)
+    out["coeff_errors"] = _plain_array(rec.coeff_errors)
+    return out
+
+
+def form_record(st: Store, key: str, attachments: bool = False) -> dict[str, Any]:
+    """All fields of the stored form ``key`` (DamagedFormError if it is damaged)."""
+    out = record_of(FormRecord.from_stored(st.read(key)))
     if attachments:
-        rec["attachments"] = {name: st.get_attachment(key, name) for name in st.attachments(key)}
-    return to_plain_json(rec)
+        out["attachments"] = to_plain_json(
+            {name: st.get_attachment(key, name) for name in st.attachments(key)})
+    return out
 
 
 def export_json(store_path: str | os.PathLike, out_path: str | os.PathLike,
                 keys: Iterable[str] | None = None, *, attachments: bool = False,
-                indent: int | None = 1) -> int:
+                indent: int | None = 1, damaged: list[tuple[str, str]] | None = None) -> int:
     """Write one JSON document with the store's metadata and every field of its forms.
 
     The document is ``{"format": "maasscomp-export", "format_version": 1, "source": ...,
     "store": {root attributes}, "runs": {...}, "exported_utc": ..., "package_version": ...,
-    "forms": [record, ...]}`` with records as built by :func:`form_record` (coefficient
-    arrays as nested lists ``[cusp][n-1]``; complex numbers as ``{"re", "im"}``).
+    "forms": [record, ...], "damaged": [{"key", "reason"}, ...]}`` with records as built
+    by :func:`form_record` (coefficient arrays as nested lists ``[cusp][n-1]``; complex
+    numbers as ``{"re", "im"}``).  The document is written record by record (one form per
+    line), so memory does not grow with the store.
+
+    Damaged forms (and damaged attachments of intact forms) are left out, listed in the
+    document's ``damaged`` field, appended to ``damaged`` when a list is given, and
+    otherwise reported by one DamagedDataWarning.
 
     Returns
     -------
     int
         Number of forms written.
     """
+    n = 0
     with Store.open(store_path, "r") as st:
         ks = _keys(st, keys)
-        doc = {
+        head = {
             "format": JSON_FORMAT,
             "format_version": JSON_FORMAT_VERSION,
             "source": str(Path(store_path)),
@@ -102,12 +140,40 @@ def export_json(store_path: str | os.PathLike, out_path: str | os.PathLike,
                                    for r in st.runs()}),
             "exported_utc": utc_now_iso(),
             "package_version": __version__,
-            "forms": [form_record(st, k, attachments) for k in ks],
         }
-    with _atomic.atomic_text_writer(out_path) as fh:
-        json.dump(doc, fh, indent=indent, allow_nan=False)
-        fh.write("\n")
-    return len(ks)
+        bad: dict[str, str] = {}
+        with _atomic.atomic_text_writer(out_path) as fh:
+            text = json.dumps(head, indent=indent, allow_nan=False)
+            fh.write(text[:-1].rstrip() + ',\n "forms": [')
+            first = True
+            for fr in st.iter_records(ks):
+                rec = record_of(fr)
+                if attachments:
+                    atts = {}
+                    for name in st.attachments(fr.key):
+                        try:
+                            atts[name] = st.get_attachment(fr.key, name)
+                        except StoreError as exc:
+                            bad[f"{fr.key} [attachment {name}]"] = str(exc)
+                    rec["attachments"] = to_plain_json(atts)
+                fh.write(("\n  " if first else ",\n  ")
+                         + json.dumps(rec, allow_nan=False, separators=(",", ":")))
+                first = False
+                n += 1
+            for k, why in st.damaged().items():
+                bad.setdefault(k, why)
+            fh.write("\n ],\n \"damaged\": ")
+            fh.write(json.dumps([{"key": k, "reason": why} for k, why in bad.items()]))
+            fh.write("\n}\n")
+    _report(bad, damaged, store_path)
+    return n
+
+
+def _report(bad: dict[str, str], damaged: list | None, path: Any) -> None:
+    if damaged is not None:
+        damaged.extend(bad.items())
+    else:
+        warn_damaged(bad, path)
 
 
 def _num(x: Any) -> str:
@@ -121,7 +187,8 @@ def _num(x: Any) -> str:
 
 def export_csv(store_path: str | os.PathLike, out_path: str | os.PathLike,
                keys: Iterable[str] | None = None, n_coeffs: int = 10, *,
-               coeffs_path: str | os.PathLike | None = None) -> int:
+               coeffs_path: str | os.PathLike | None = None,
+               damaged: list[tuple[str, str]] | None = None) -> int:
     """Write a CSV with one row per form, and optionally a long-format coefficient CSV.
 
     Parameters
@@ -133,10 +200,14 @@ def export_csv(store_path: str | os.PathLike, out_path: str | os.PathLike,
         Number K of coefficients at infinity in columns ``c1`` .. ``cK`` of the summary
         (cells are empty for forms with fewer than K coefficients).
     coeffs_path : path-like, optional
-        Also write every coefficient, one row each: ``key, cusp, n, c, error``.
+        Also write every coefficient, one row each: ``key, cusp, n, c, error, cusp_name``.
+    damaged : list, optional
+        Damaged forms are left out and appended here as (key, reason); without a list
+        they are reported by one DamagedDataWarning.
 
     Summary columns: :data:`SUMMARY_COLUMNS` then ``c1..cK``.  ``al_signs`` is written as
-    ``p:+1;q:-1``; ``is_new`` as ``true``/``false``/empty; ``extra`` as JSON text.
+    ``p:+1;q:-1``; ``is_new`` as ``true``/``false``/empty; ``extra`` as JSON text;
+    ``character`` as its label, ``cusps`` as the cusp names of the rows, ``;``-separated.
 
     Returns
     -------
@@ -145,35 +216,42 @@ def export_csv(store_path: str | os.PathLike, out_path: str | os.PathLike,
     """
     if isinstance(n_coeffs, bool) or not isinstance(n_coeffs, int) or n_coeffs < 0:
         raise InputError(f"n_coeffs {n_coeffs!r} is not allowed; use an integer >= 0")
+    n = 0
     with Store.open(store_path, "r") as st:
         ks = _keys(st, keys)
+        written = []
         with _atomic.atomic_text_writer(out_path, newline="") as fh:
             w = csv.writer(fh)
             w.writerow(list(SUMMARY_COLUMNS) + [f"c{n}" for n in range(1, n_coeffs + 1)])
-            for k in ks:
-                f = st.get(k)
-                prov = st.provenance(k)
+            for fr in st.iter_records(ks):
+                prov = fr.provenance
                 row = [
-                    k, f.level, f.symmetry.label, f.symmetry.parity,
-                    ";".join(f"{p}:{s:+d}" for p, s in f.symmetry.al_signs),
-                    _num(f.R), _num(f.R_error), _num(f.hecke_residual),
-                    "" if f.is_new is None else ("true" if f.is_new else "false"),
-                    f.multiplicity, f.basis_index, f.coeffs.shape[0], f.coeffs.shape[1],
-                    _num(f.params.Y), f.params.M0, f.params.Q, _num(f.params.eps),
+                    fr.key, fr.level, fr.symmetry, fr.parity,
+                    ";".join(f"{p}:{s:+d}" for p, s in fr.al_signs),
+                    _num(fr.R), _num(fr.R_error), _num(fr.hecke_residual),
+                    "" if fr.is_new is None else ("true" if fr.is_new else "false"),
+                    fr.multiplicity, fr.basis_index, fr.coeffs.shape[0], fr.coeffs.shape[1],
+                    _num(fr.solver["Y"]), fr.solver["M0"], fr.solver["Q"], _num(fr.solver["eps"]),
                     prov["run_id"], prov["created_utc"],
-                    json.dumps(to_plain_json(f.extra), allow_nan=False, sort_keys=True),
+                    json.dumps(to_plain_json(fr.extra), allow_nan=False, sort_keys=True),
+                    fr.character["label"], fr.character["conductor"],
+                    ";".join(c.name for c in fr.cusps),
                 ]
-                c0 = f.coeffs[0]
+                c0 = fr.coeffs[0]
                 row += [_num(c0[n].item()) if n < c0.size else "" for n in range(n_coeffs)]
                 w.writerow(row)
+                written.append(fr.key)
+                n += 1
         if coeffs_path is not None:
             with _atomic.atomic_text_writer(coeffs_path, newline="") as fh:
                 w = csv.writer(fh)
                 w.writerow(COEFF_COLUMNS)
-                for k in ks:
-                    f = st.get(k)
-                    for j in range(f.coeffs.shape[0]):
-                        cj, ej = f.coeffs[j].tolist(), f.coeff_errors[j].tolist()
-                        for n in range(len(cj)):
-                            w.writerow((k, j, n + 1, _num(cj[n]), _num(ej[n])))
-    return len(ks)
+                for fr in st.iter_records(written):
+                    for j in range(fr.coeffs.shape[0]):
+                        cj, ej = fr.coeffs[j].tolist(), fr.coeff_errors[j].tolist()
+                        name = fr.cusps[j].name
+                        w.writerows((fr.key, j, m + 1, _num(cj[m]), _num(ej[m]), name)
+                                    for m in range(len(cj)))
+        bad = st.damaged()
+    _report(bad, damaged, store_path)
+    return n

@@ -1,11 +1,29 @@
-"""The HDF5 store schema: every group, dataset and attribute name lives here.
+"""The store schema: every group, dataset, attribute and field name lives here.
 
 Nothing else in the package spells a name that appears inside a store file; readers, writers
-and exporters import these constants.  ``docs/store-schema.md`` documents the same layout for
+and exporters import these constants (the byte layouts of rows, blobs and commit records are
+in :mod:`maasscomp.store._layout`).  ``docs/store-schema.md`` documents the same layout for
 people (types, units, versioning policy).  A change to anything below that an older reader
 could misread requires a new :data:`SCHEMA_VERSION`.
 
-Layout (schema version 1)::
+Layout of schema version 2 (the HDF5 part, after a 512-byte file header)::
+
+    /                         attrs: format, schema_version, created_utc, package_version,
+                                     next_seq, store_id, compacted_utc
+    /forms/rows               one index row per form (compound, _layout.ROW_DTYPE)
+    /forms/values             float64 pool: coefficient and error arrays
+    /forms/meta               uint8 pool: per-form metadata blobs (JSON + arrays)
+    /forms/labels             uint8 pool: per-form "key TAB symmetry TAB character NEWLINE"
+    /forms/block_sums         uint8 (n_blocks, 16): checksum of each block of rows
+    /attachments/rows         one row per attachment (compound, ATTACHMENT_DTYPE)
+    /attachments/names        uint8 pool of attachment names
+    /attachments/blobs        uint8 pool of attachment blobs
+    /runs/<run_id>            attrs created_utc, package_version; datasets config, tasks
+    /texts/<id>               config texts referenced by forms (id: checksum of the text)
+
+followed by the commit records of the transactions made since the last compaction.
+
+Layout of schema version 1 (read, and migrated on the first write)::
 
     /                                 attrs: format, schema_version, created_utc,
                                              package_version, next_seq
@@ -25,8 +43,12 @@ from __future__ import annotations
 
 import re
 
-#: Integer version of the layout described above; readers refuse files with a larger value.
-SCHEMA_VERSION = 1
+import numpy as np
+
+#: Integer version of the layout written by this package; readers refuse larger values.
+SCHEMA_VERSION = 2
+#: Versions this package reads.
+READABLE_VERSIONS = (1, 2)
 
 #: Value of the root attribute :data:`ROOT_FORMAT` that marks a file as a maasscomp store.
 FORMAT_NAME = "maasscomp-store"
@@ -38,11 +60,43 @@ ROOT_CREATED_UTC = "created_utc"
 ROOT_PACKAGE_VERSION = "package_version"
 #: Counter giving every form a write sequence number (and the store its insertion order).
 ROOT_NEXT_SEQ = "next_seq"
+#: Random id of the store (hex), kept by compaction; also in the file header.
+ROOT_STORE_ID = "store_id"
+#: When the base was last rewritten (compaction or migration).
+ROOT_COMPACTED_UTC = "compacted_utc"
 
 FORMS_GROUP = "forms"
 RUNS_GROUP = "runs"
 
-# ---------------------------------------------------------------- one form group
+# ---------------------------------------------------------------- version 2
+D_ROWS = "forms/rows"
+D_VALUES = "forms/values"
+D_META = "forms/meta"
+D_LABELS = "forms/labels"
+D_BLOCK_SUMS = "forms/block_sums"
+#: Rows per block of ``/forms/block_sums``.
+BLOCK_ROWS = 1024
+ATT_GROUP = "attachments"
+D_ATT_ROWS = "attachments/rows"
+D_ATT_NAMES = "attachments/names"
+D_ATT_BLOBS = "attachments/blobs"
+TEXTS_GROUP = "texts"
+RUN_D_TASKS = "tasks"
+
+ATTACHMENT_DTYPE = np.dtype([
+    ("form_seq", "<i8"), ("name_at", "<i8"), ("name_len", "<i8"),
+    ("blob_at", "<i8"), ("blob_len", "<i8"), ("sum", "u1", (16,)),
+])
+
+# keys of a form's metadata blob document
+M_SYMMETRY = "symmetry"
+M_CHARACTER = "character"
+M_CUSPS = "cusps"
+M_EXTRA = "extra"
+M_FIELDS = "fields"
+M_PROVENANCE = "provenance"
+
+# ---------------------------------------------------------------- version 1: one form group
 A_LEVEL = "level"
 A_R = "R"
 A_R_ERROR = "R_error"
@@ -104,17 +158,25 @@ def symmetry_slug(label: str) -> str:
     return label.replace(",", "_").replace("+", "p").replace("-", "m")
 
 
-def form_key_base(level: int, label: str, R: float, basis_index: int, multiplicity: int) -> str:
-    """Readable group name of a form before de-duplication, e.g. ``N11_even_11p_R3.4536492130``.
+def form_key_base(level: int, label: str, R: float, basis_index: int, multiplicity: int,
+                  character: str) -> str:
+    """Readable key of a form before de-duplication, e.g. ``N11_X11.0_even_11p_R3.4536492130``.
 
-    R is printed with 10 decimals (well below any estimated R error); the basis index is
-    appended (``_b1``) only inside a degenerate eigenspace.  A counter ``_v2``, ``_v3``...
-    is appended by the writer when the name is already taken.
+    ``character`` is the label of the form's character (``X11.0`` for the trivial
+    character mod 11).  R is printed with 10 decimals (well below any estimated R error);
+    the basis index is appended (``_b1``) only inside a degenerate eigenspace.  A counter
+    ``_v2``, ``_v3``... is appended by the writer when the name is already taken.
+    (Schema-version-1 keys lack the character part; keys never change once written.)
     """
-    key = f"N{int(level)}_{symmetry_slug(label)}_R{float(R):.10f}"
+    key = f"N{int(level)}_{character}_{symmetry_slug(label)}_R{float(R):.10f}"
     if multiplicity > 1 or basis_index != 0:
         key += f"_b{int(basis_index)}"
     return key
+
+
+def form_label(level: int, character: str, symmetry: str, R: float) -> str:
+    """Human-readable label of a form: ``N11 X11.0 even,11+ R=3.4536492130``."""
+    return f"N{int(level)} {character} {symmetry} R={float(R):.10f}"
 
 
 def escape_name(text: str) -> str:

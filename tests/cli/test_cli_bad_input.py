@@ -80,7 +80,103 @@ CONFIG_CASES = [
     ("output dir missing", ('output = "out.h5"', 'output = "nowhere/out.h5"'), ["does not exist"]),
     ("window needs too much memory", ("n_coeffs = 20", "n_coeffs = 20000\n[executor]\nmemory_limit_gb = 0.5"),
      ["one task needs about", "memory_limit_gb"]),
+    ("bool as a number", ("R_min = 9.4", "R_min = true"), ["R_min=True is not allowed"]),
+    ("bool as workers", ('backend = "serial"', 'backend = "serial"\nworkers = true'),
+     ["workers=True is not allowed"]),
+    ("log is the config", ('output = "out.h5"', 'output = "out.h5"\nlog = "job.toml"'),
+     ["is the config file itself"]),
+    ("log is the store", ('output = "out.h5"', 'output = "out.h5"\nlog = "out.h5"'), ["is the store"]),
+    ("output is the config", ('output = "out.h5"', 'output = "job.toml"'), ["is the config file itself"]),
+    ("log under a file", ('output = "out.h5"', 'output = "out.h5"\nlog = "job.toml/run.log"'),
+     ["job.toml does not exist"]),
+    ("over-long output name", ('output = "out.h5"', 'output = "' + "x" * 300 + '.h5"'),
+     ["bytes long", "per name"]),
+    ("over-long log path", ('output = "out.h5"', 'output = "out.h5"\nlog = "' + "d/" * 2100 + 'l.log"'),
+     ["bytes long"]),
+    ("NUL in a path", ('output = "out.h5"', 'output = "out\\u0000.h5"'), ["NUL character"]),
+    ("address not a url", ('backend = "serial"', 'backend = "dask"\naddress = "not a url"'),
+     ["is not a scheduler address"]),
+    ("address port", ('backend = "serial"', 'backend = "dask"\naddress = "tcp://localhost:99999"'),
+     ["port '99999' is not a number in 1..65535"]),
+    ("address scheme", ('backend = "serial"', 'backend = "dask"\naddress = "http://localhost:80"'),
+     ["scheme 'http' is not supported"]),
+    ("size_limits type", ('output = "out.h5"', 'output = "out.h5"\nsize_limits = "no"'),
+     ["size_limits='no' must be true or false"]),
 ]
+
+#: Configs that used to run for minutes, eat memory or fail only in the workers: each must
+#: now be refused at once (the test fails if one takes more than HANG_SECONDS).
+HANG_SECONDS = 60
+HANG_CASES = [
+    ("R_max 1e9", ("R_max = 9.7", "R_max = 1e9"), ["R_max=1e+09 is beyond the supported range",
+                                                    "R <= 10000"]),
+    ("R_max 1e300", ("R_max = 9.7", "R_max = 1e300"), ["beyond the supported range"]),
+    ("R_max at the limit", ("R_min = 9.4\nR_max = 9.7", "R_min = 9999.0\nR_max = 10000.0"),
+     ["use R_max <= 9999.999"]),
+    ("all levels up to 100000", ("levels = [1]", 'levels = "all up to 100000"'),
+     ["100000 levels, more than the 100 of one job", "size_limits = false"]),
+    ("a level beyond planning", ("levels = [1]", "levels = [1009]"), ["level 1009 is above 1000"]),
+    ("step 1e-300", ("step = 0.05", "step = 1e-300"), ["step=1e-300 is below the resolution of R"]),
+    ("step that explodes", ("step = 0.05", "step = 1e-8"), ["one task would scan 3e+07 grid points"]),
+    ("chunks that explode", ("R_min = 9.4\nR_max = 9.7", "R_min = 1.0\nR_max = 2000.0\nchunk_width = 0.01"),
+     ["search tasks, more than 100,000"]),
+]
+
+
+@pytest.mark.parametrize("what,edit,fragments", HANG_CASES, ids=[c[0] for c in HANG_CASES])
+@pytest.mark.parametrize("command", ["run", "check"])
+def test_config_that_would_hang(tmp_path, monkeypatch, capsys, command, what, edit, fragments):
+    import signal
+
+    monkeypatch.chdir(tmp_path)
+    cfg = tmp_path / "job.toml"
+    cfg.write_text(GOOD.replace(*edit))
+
+    def too_slow(signum, frame):
+        raise AssertionError(f"{command} did not refuse the config within {HANG_SECONDS} s")
+
+    old = signal.signal(signal.SIGALRM, too_slow)
+    signal.alarm(HANG_SECONDS)
+    try:
+        _expect_error(capsys, tmp_path, [command, cfg], *fragments)
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)
+    assert not (tmp_path / "out.h5").exists()
+
+
+def test_size_limits_can_be_lifted_explicitly(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    cfg = tmp_path / "job.toml"
+    cfg.write_text(GOOD.replace("step = 0.05", "step = 1e-7"))
+    _expect_error(capsys, tmp_path, ["check", cfg], "size_limits = false")
+    code, out, err = _call(capsys, ["check", cfg, "--no-size-limits"])
+    assert code == 0 and "3e+06 determinant evaluations" in out, err
+    cfg.write_text(GOOD.replace("step = 0.05", "step = 1e-7").replace(
+        'output = "out.h5"', 'output = "out.h5"\nsize_limits = false'))
+    code, out, err = _call(capsys, ["check", cfg])
+    assert code == 0, err
+
+
+def test_read_only_store_is_refused_before_any_work(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    from maasscomp.store import Store
+
+    with Store.open(tmp_path / "out.h5", "w"):
+        pass
+    os.chmod(tmp_path / "out.h5", 0o444)
+    cfg = tmp_path / "job.toml"
+    cfg.write_text(GOOD)
+    for command in ("check", "run"):
+        _expect_error(capsys, tmp_path, [command, cfg], "not writable by this user",
+                      "mode 0444")
+    assert not (tmp_path / "out.h5.log").exists()
+
+
+def test_scan_of_a_mistyped_store_creates_nothing(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    _expect_error(capsys, tmp_path, ["scan", tmp_path / "typo.h5"], "does not exist")
+    assert not (tmp_path / "typo.h5").exists()
 
 
 @pytest.mark.parametrize("what,edit,fragments", CONFIG_CASES, ids=[c[0] for c in CONFIG_CASES])
@@ -197,3 +293,31 @@ def test_changed_result_settings_are_refused(tmp_path, monkeypatch, capsys):
     assert code == 0, err
     assert "1 tasks (1 already done)" in out
     assert os.path.exists(tmp_path / "out.h5.log")
+
+
+def test_no_numeric_key_takes_a_boolean():
+    """TOML true/false are Python bools, which are ints: every key documented as a number
+    must still refuse them (all keys of config.KEYS are tried)."""
+    import copy
+
+    from maasscomp.config import KEYS, parse
+    from maasscomp.errors import InputError
+
+    base = {"job": {"output": "x.h5"}, "search": {"R_min": 1.0, "R_max": 2.0}}
+    tried = 0
+    for sec, key, typ, _, _ in KEYS:
+        if "bool" in typ or typ.startswith("string") or typ.startswith("path"):
+            continue
+        for v in (True, False):
+            d = copy.deepcopy(base)
+            if key == "windows":
+                del d["search"]["R_min"], d["search"]["R_max"]
+                d["search"]["windows"] = [[v, 2.0]]
+            elif key == "levels":
+                d["search"]["levels"] = [v]
+            else:
+                d.setdefault(sec, {})[key] = v
+            with pytest.raises(InputError, match="window" if key == "windows" else key):
+                parse(d)
+            tried += 1
+    assert tried >= 2 * 14

@@ -32,11 +32,13 @@ def sweep_stores(tmp_path_factory):
         summary = run_job(cfg, quiet=True)
         out[backend] = (cfg, summary)
     # an existing scheduler, reached by its address: the one line a user changes to move
-    # a sweep onto a cluster (here a cluster of this process's threads)
+    # a sweep onto a cluster (here a cluster of this process's threads behind a real TCP
+    # scheduler, which the preflight probes before any work)
     from distributed import LocalCluster
 
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, protocol="tcp://",
                       dashboard_address=None) as cluster:
+        assert cluster.scheduler_address.startswith("tcp://")
         cfg_path = write_config(d / "address.toml", output=str(d / "address.h5"),
                                 levels="[1, 2]", parities='["even", "odd"]', R=(9.3, 9.8),
                                 backend="dask", workers=1, name="sweep",

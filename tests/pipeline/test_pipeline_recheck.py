@@ -13,7 +13,7 @@ from tests.pipeline.pipeline_helpers import assert_same_content, store_content, 
 
 
 def _drop(path, lo, hi) -> int:
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         keys = [k for k in st.keys() if lo < st.get(k).R < hi]
         for k in keys:
             st.delete_form(k)

@@ -23,7 +23,7 @@ def test_missing_file_names_the_file(tmp_path):
 def test_missing_directory_in_write_mode(tmp_path):
     p = tmp_path / "no" / "such" / "dir.h5"
     with pytest.raises(StoreError, match=rf"directory {p.parent} does not exist"):
-        Store.open(p, "a")
+        Store.open(p, "a", create=True)
 
 
 def test_text_file_is_not_hdf5(tmp_path):
@@ -35,15 +35,28 @@ def test_text_file_is_not_hdf5(tmp_path):
     assert p.read_text() == "level,R\n1,9.53\n"
 
 
-def test_truncated_store_is_refused(tmp_path):
+def test_truncated_store(tmp_path):
+    """Cut inside the last commit record: that commit is gone (as after a killed writer),
+    the earlier ones stay.  Cut inside the HDF5 part: the store still opens for reading,
+    reports the damage, and refuses writers."""
     p = tmp_path / "cut.h5"
-    with Store.open(p, "a") as st:
+    with Store.open(p, "a", create=True) as st:
         st.add_forms([indexed_form(0)])
+        st.add_forms([indexed_form(1)])
     data = p.read_bytes()
-    p.write_bytes(data[: len(data) // 2])
-    with pytest.raises(StoreError, match=str(p)):
-        with Store.open(p, "r") as st:
-            st.get(st.keys()[0])
+    p.write_bytes(data[:-100])
+    with Store.open(p, "r") as st:
+        assert len(st) == 1 and st.damaged() == {}
+        assert st.info()["unfinished_bytes"] > 0
+    with Store.open(p, "a") as st:  # the next writer cuts the unfinished commit off
+        assert len(st) == 1
+    assert len(p.read_bytes()) < len(data) - 100
+    p.write_bytes(data[:2000])  # inside the HDF5 part
+    with Store.open(p, "r") as st:
+        assert len(st) == 0
+        assert any("HDF5 part" in why for why in st.damaged().values())
+    with pytest.raises(StoreError, match="damaged.*salvage"):
+        Store.open(p, "a")
 
 
 def test_foreign_hdf5_is_refused(tmp_path):
@@ -61,7 +74,7 @@ def test_foreign_hdf5_is_refused(tmp_path):
 
 def test_newer_schema_is_refused(tmp_path):
     p = tmp_path / "future.h5"
-    with Store.open(p, "a") as st:
+    with Store.open(p, "a", create=True) as st:
         st.add_forms([indexed_form(0)])
     with h5py.File(p, "a") as h:
         h.attrs["schema_version"] = np.int64(SCHEMA_VERSION + 1)
@@ -77,7 +90,7 @@ def test_newer_schema_is_refused(tmp_path):
 
 def test_damaged_store_missing_group(tmp_path):
     p = tmp_path / "damaged.h5"
-    Store.open(p, "a").close()
+    Store.open(p, "a", create=True).close()
     with h5py.File(p, "a") as h:
         del h["runs"]
     with pytest.raises(StoreError, match=r"damaged: group /runs"):
@@ -86,6 +99,6 @@ def test_damaged_store_missing_group(tmp_path):
 
 def test_export_to_missing_directory(tmp_path):
     p = tmp_path / "s.h5"
-    Store.open(p, "a").close()
+    Store.open(p, "a", create=True).close()
     with pytest.raises(StoreError, match="cannot write"):
         export_csv(p, tmp_path / "nodir" / "o.csv")

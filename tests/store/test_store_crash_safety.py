@@ -20,9 +20,10 @@ ROOT = Path(maasscomp.__file__).resolve().parents[1]
 WRITER = Path(__file__).with_name("store_crash_writer.py")
 
 
-def _start_writer(path: Path, start: int, batch: int) -> subprocess.Popen:
+def _start_writer(path: Path, start: int, batch: int, compact_every: int = 0) -> subprocess.Popen:
     env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
-    proc = subprocess.Popen([sys.executable, str(WRITER), str(path), str(start), str(batch)],
+    proc = subprocess.Popen([sys.executable, str(WRITER), str(path), str(start), str(batch),
+                             str(10**9), str(compact_every)],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env, cwd=ROOT)
     line = proc.stdout.readline()
     if line.strip() != b"ready":
@@ -50,14 +51,17 @@ def _check_prefix(path: Path, batch: int, at_least: int) -> int:
     return n
 
 
-@pytest.mark.parametrize("batch", [1, 7])
-def test_sigkill_at_random_moments_keeps_a_complete_prefix(tmp_path, batch):
-    rnd = random.Random(1234 + batch)
+@pytest.mark.parametrize("batch,compact_every", [(1, 0), (7, 0), (7, 2)],
+                         ids=["txn1", "txn7", "txn7-compacting"])
+def test_sigkill_at_random_moments_keeps_a_complete_prefix(tmp_path, batch, compact_every):
+    """Also with compactions (a new file renamed over the store) every second transaction:
+    a kill inside one leaves the old file or the new one, never a mix."""
+    rnd = random.Random(1234 + batch + compact_every)
     path = tmp_path / "crash.h5"
     n = 0
     kills = 0
     for _ in range(5):
-        proc = _start_writer(path, n, batch)
+        proc = _start_writer(path, n, batch, compact_every)
         deadline = time.monotonic() + rnd.uniform(0.0, 0.4)
         while time.monotonic() < deadline:
             # readers in this process while the writer commits: each sees a whole snapshot
@@ -74,6 +78,6 @@ def test_sigkill_at_random_moments_keeps_a_complete_prefix(tmp_path, batch):
     assert kills == 5
     assert n > 0, "no transaction committed in 5 runs; the test did not exercise anything"
     # a stale temporary of the last kill may remain; the next writer removes it
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         assert len(st) == n
     assert not [p for p in tmp_path.iterdir() if ".tmp." in p.name]

@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 
 from maasscomp.errors import InputError, StoreError
+from maasscomp.groups import gamma0, unit_generators
 from maasscomp.spectrum.form import Form
 from maasscomp.store import Store, export_csv, export_json
 from maasscomp.store.export import SUMMARY_COLUMNS
@@ -26,11 +27,11 @@ def store(tmp_path):
     forms = [random_form(rng, M=int(rng.integers(3, 15))) for _ in range(8)]
     f = forms[0]
     forms[1] = Form(level=f.level, R=f.R + 1.0, symmetry=f.symmetry, coeffs=f.coeffs.copy(),
-                    coeff_errors=np.full_like(f.coeff_errors, np.nan), R_error=f.R_error,
+                    coeff_errors=np.full_like(f.coeff_errors, np.inf), R_error=f.R_error,
                     hecke_residual=math.inf, params=f.params, is_new=True, extra={})
     forms.append(random_form(rng, level=6, M=5, complex_coeffs=True))
     p = tmp_path / "s.h5"
-    with Store.open(p, "a") as st:
+    with Store.open(p, "a", create=True) as st:
         rid = st.begin_run("demo-run", config_text="level = 6\n")
         keys = st.add_forms(forms, config_text="level = 6\n", run_id=rid)
         st.mark_task_done("t0", keys[:3], run_id=rid)
@@ -43,7 +44,8 @@ def test_json_export_parses_back_identical(store, tmp_path):
     out = tmp_path / "o.json"
     assert export_json(p, out, attachments=True) == len(forms)
     doc = json.loads(out.read_text())  # strict JSON: no NaN tokens
-    assert doc["format"] == "maasscomp-export" and doc["store"]["schema_version"] == 1
+    assert doc["format"] == "maasscomp-export" and doc["store"]["schema_version"] == 2
+    assert doc["damaged"] == []
     assert doc["runs"]["demo-run"]["done_tasks"] == {"t0": keys[:3]}
     assert [r["key"] for r in doc["forms"]] == keys
     for rec, f in zip(doc["forms"], forms):
@@ -59,8 +61,17 @@ def test_json_export_parses_back_identical(store, tmp_path):
             c = np.array(rec["coeffs"], dtype=float)
         assert c.tobytes() == f.coeffs.tobytes()
         e = np.array([[_from_json_float(x) for x in row] for row in rec["coeff_errors"]])
-        np.testing.assert_array_equal(e, f.coeff_errors)  # equal_nan by default
-    assert doc["forms"][1]["coeff_errors"][0][0] == "nan"
+        np.testing.assert_array_equal(e, f.coeff_errors)
+        # the cusp rows and the character come with every form (trivial character mod N)
+        g = gamma0(f.level)
+        assert [c["name"] for c in rec["cusps"]] == [c.name for c in g.cusps[:f.coeffs.shape[0]]]
+        for c, cusp in zip(rec["cusps"], g.cusps):
+            assert [c["a"], c["c"]] == list(cusp.representative)
+            assert c["width"] == cusp.width and c["scaling"] == [list(r) for r in cusp.scaling]
+        assert rec["character"]["modulus"] == f.level and rec["character"]["conductor"] == 1
+        assert set(rec["character"]["exponents"]) <= {0}
+        assert rec["character"]["label"] in rec["key"] and rec["character"]["label"] in rec["label"]
+    assert doc["forms"][1]["coeff_errors"][0][0] == "inf"
     assert doc["forms"][2]["attachments"]["scan"] == {"peak": [0.5, 1.25], "sup": 2.0}
     assert "attachments" not in json.loads(_export(p, tmp_path, keys[:1]))["forms"][0]
 
@@ -104,6 +115,8 @@ def test_csv_exports_parse_back(store, tmp_path):
             else:
                 assert cell == ""
         json.loads(r["extra"])
+        assert r["character"] == f"X{f.level}" + ".0" * len(unit_generators(f.level))
+        assert r["cusps"] == ";".join(c.name for c in gamma0(f.level).cusps[:f.coeffs.shape[0]])
     with open(long, newline="") as fh:
         crow = list(csv.DictReader(fh))
     assert len(crow) == sum(f.coeffs.size for f in forms)
@@ -114,8 +127,8 @@ def test_csv_exports_parse_back(store, tmp_path):
         want = f.coeffs[j, n - 1]
         got = complex(r["c"]) if np.iscomplexobj(f.coeffs) else float(r["c"])
         assert got == want and type(got) is type(want.item())
-        err = float(r["error"])
-        assert err == f.coeff_errors[j, n - 1] or (math.isnan(err) and math.isnan(f.coeff_errors[j, n - 1]))
+        assert float(r["error"]) == f.coeff_errors[j, n - 1]
+        assert r["cusp_name"] == gamma0(f.level).cusps[j].name
 
 
 def test_csv_bad_n_coeffs(store, tmp_path):
@@ -129,3 +142,16 @@ def test_exports_leave_no_temporaries(store, tmp_path):
     export_json(p, tmp_path / "a.json")
     export_csv(p, tmp_path / "a.csv")
     assert not [x for x in tmp_path.iterdir() if ".tmp." in x.name]
+
+
+def test_fast_records_equal_the_records_of_whole_forms(store):
+    """Exports read plain records without building Form objects; they must give exactly
+    what the full reader gives."""
+    from maasscomp.store.export import record_of
+    from maasscomp.store.store import FormRecord
+
+    p, keys, _ = store
+    with Store.open(p) as st:
+        fast = [record_of(r) for r in st.iter_records()]
+        full = [record_of(FormRecord.from_stored(st.read(k))) for k in keys]
+    assert json.dumps(fast, sort_keys=True) == json.dumps(full, sort_keys=True)

@@ -11,7 +11,7 @@ import pytest
 from maasscomp.errors import InputError, StoreError
 from maasscomp.hejhal.types import SymmetryClass
 from maasscomp.spectrum.form import Form
-from maasscomp.store import Store, schema
+from maasscomp.store import Store, _layout, schema
 from tests.store.store_form_factory import assert_forms_equal, indexed_form, random_form
 
 
@@ -34,7 +34,7 @@ def test_random_forms_round_trip_bit_identical(path):
     forms.append(random_form(rng, level=6, M=200, complex_coeffs=True))
     forms.append(random_form(rng, level=1, M=1))
     cfg = '[search]\nlevel = 11\nR = [1.0, 10.0]\n# caf\u00e9\n'
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         keys = st.add_forms(forms, config_text=cfg, on_duplicate="error")
     assert len(set(keys)) == len(forms)
     with Store.open(path, "r") as st:
@@ -49,41 +49,52 @@ def test_random_forms_round_trip_bit_identical(path):
         for got, f in zip(st, forms):  # iteration yields forms in write order
             assert_forms_equal(got, f)
         meta = st.metadata
-        assert meta["format"] == "maasscomp-store" and meta["schema_version"] == 1
+        assert meta["format"] == "maasscomp-store" and meta["schema_version"] == 2
 
 
 def test_layout_matches_schema_module(path):
+    """The file is a header, an HDF5 base with the documented datasets, then records; after
+    compaction the HDF5 part alone holds every form (readable with h5py)."""
     f = random_form(np.random.default_rng(5), level=6, with_al=True)
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         (k,) = st.add_forms([f])
+        assert st.info()["log_forms"] == 1
+        assert st.compact()
+        assert st.info()["log_forms"] == 0
+    assert path.read_bytes()[:16] == _layout.FILE_MAGIC
     with h5py.File(path, "r") as h:
         assert h.attrs[schema.ROOT_FORMAT] == schema.FORMAT_NAME
         assert int(h.attrs[schema.ROOT_SCHEMA_VERSION]) == schema.SCHEMA_VERSION
-        g = h[schema.FORMS_GROUP][k]
-        assert g[schema.D_COEFFS].shape == f.coeffs.shape
-        assert g.attrs[schema.A_SYMMETRY_LABEL] == f.symmetry.label
-        assert g[schema.D_AL_SIGNS].shape == (2, 2)
-        assert set(g.attrs) >= {schema.A_LEVEL, schema.A_R, schema.A_SOLVER_Y, schema.A_IS_NEW}
+        rows = h[schema.D_ROWS][...]
+        assert rows.dtype == _layout.ROW_DTYPE and len(rows) == 1
+        r = rows[0]
+        assert (r["level"], r["R"], r["n_cusps"], r["M"]) == (6, f.R, *f.coeffs.shape)
+        # the documented way to read coefficients with plain h5py
+        n = f.coeffs.size
+        c = h[schema.D_VALUES][r["coeffs_at"]:r["coeffs_at"] + n].reshape(f.coeffs.shape)
+        assert c.tobytes() == f.coeffs.tobytes()
+        lab = h[schema.D_LABELS][r["labels_at"]:r["labels_at"] + r["labels_len"]].tobytes()
+        assert lab.decode() == "\t".join([k, f.symmetry.label, "X6.0"]) + "\n"
 
 
 def test_keys_are_readable_and_unique(path):
     f = _with(indexed_form(0), level=6, symmetry=SymmetryClass("even", ((2, 1), (3, -1))),
               R=9.533695261353)
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         k1 = st.add_form(f)
         # same name but a different basis index is not a duplicate -> suffix _b1
         k2 = st.add_form(_with(f, multiplicity=2, basis_index=1))
         # same key base, R differs below the printed digits but above the tolerance
         k3 = st.add_form(_with(f, R=f.R + 2e-11), tol=1e-12)
-    assert k1 == "N6_even_2p_3m_R9.5336952614"
-    assert k2 == "N6_even_2p_3m_R9.5336952614_b1"
-    assert k3 == "N6_even_2p_3m_R9.5336952614_v2"
+    assert k1 == "N6_X6.0_even_2p_3m_R9.5336952614"
+    assert k2 == "N6_X6.0_even_2p_3m_R9.5336952614_b1"
+    assert k3 == "N6_X6.0_even_2p_3m_R9.5336952614_v2"
 
 
 def test_filters_and_summary_rows(path):
     rng = np.random.default_rng(7)
     forms = [random_form(rng, M=12) for _ in range(30)]
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         keys = st.add_forms(forms)
         got = st.forms(level=6, parity="odd", R_min=5.0, R_max=30.0)
         want = [f for f in forms if f.level == 6 and f.parity == "odd" and 5.0 <= f.R <= 30.0]
@@ -104,7 +115,7 @@ def test_filters_and_summary_rows(path):
 def test_duplicates_skip_replace_error(path):
     f = indexed_form(3)
     near = _with(f, R=f.R + 1e-9, hecke_residual=1e-3)
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         (k,) = st.add_forms([f])
         assert st.find_duplicate(near) == k
         assert st.find_duplicate(near, tol=1e-10) is None
@@ -126,7 +137,7 @@ def test_duplicates_skip_replace_error(path):
 
 
 def test_failed_batch_writes_nothing(path):
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         st.add_forms([indexed_form(0)])
         with pytest.raises(StoreError):
             st.add_forms([indexed_form(1), indexed_form(2), indexed_form(0)])
@@ -152,7 +163,7 @@ def test_failed_batch_writes_nothing(path):
 
 
 def test_transaction_commits_once_and_nests(path):
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         with st.transaction():
             keys = st.add_forms([indexed_form(i) for i in range(3)])
             with st.transaction():
@@ -167,7 +178,7 @@ def test_transaction_commits_once_and_nests(path):
 
 
 def test_attachments_round_trip(path):
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         (k,) = st.add_forms([indexed_form(1)])
         data = {"peaks_z": np.array([0.1 + 2j, -0.3 + 0.9j]), "values": np.arange(6.0).reshape(2, 3),
                 "sup": 3.25, "n": 17, "ok": True, "where": "cusp 0", "missing": None,
@@ -192,19 +203,27 @@ def test_attachments_round_trip(path):
     assert got["where"] == "cusp 0" and got["missing"] is None
 
 
-def test_replacing_attachments_does_not_grow_the_file(path):
-    with Store.open(path, "a") as st:
+def test_replacing_attachments_costs_what_is_written_and_compaction_frees_it(path):
+    """Replacing an attachment appends the new one (the file grows by about its size, not
+    by a copy of the file); compaction drops the replaced ones."""
+    with Store.open(path, "a", create=True) as st:
         (k,) = st.add_forms([indexed_form(1)])
         st.put_attachment(k, "scan", {"v": np.zeros(20_000)})
         size1 = os.path.getsize(path)
         for i in range(6):
             st.put_attachment(k, "scan", {"v": np.full(20_000, float(i))})
+        grown = os.path.getsize(path) - size1
+        assert 6 * 160_000 <= grown <= 6 * 160_000 + 6 * 4096
+        assert st.get_attachment(k, "scan")["v"][0] == 5.0
+        assert st.compact()
         assert os.path.getsize(path) <= size1 * 1.1
         assert st.get_attachment(k, "scan")["v"][0] == 5.0
+    with Store.open(path) as st:
+        assert st.get_attachment(k, "scan")["v"][0] == 5.0 and st.attachments(k) == ["scan"]
 
 
 def test_runs_and_task_manifest(path):
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         rid = st.begin_run(config_text="level = 1\n")
         assert st.begin_run(rid, config_text="changed") == rid  # resuming keeps the record
         keys = st.add_forms([indexed_form(i) for i in range(2)], run_id=rid)
@@ -225,7 +244,7 @@ def test_runs_and_task_manifest(path):
 
 def test_bad_input_is_refused_with_clear_errors(path):
     f = indexed_form(0)
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         with pytest.raises(InputError, match=r"Form.coeffs .*2-d"):
             st.add_forms([_with(f, coeffs=f.coeffs[0])])
         with pytest.raises(InputError, match="does not match"):
@@ -240,6 +259,21 @@ def test_bad_input_is_refused_with_clear_errors(path):
             st.add_forms([_with(f, level=0)])
         with pytest.raises(InputError, match="Form.R nan"):
             st.add_forms([_with(f, R=float("nan"))])
+        bad = f.coeffs.copy()
+        bad[0, 3] = np.nan
+        with pytest.raises(InputError, match=r"Form.coeffs\[0, 3\] \(cusp 0, n = 4\) is nan"):
+            st.add_forms([_with(f, coeffs=bad)])
+        bad = f.coeff_errors.copy()
+        bad[-1, -1] = np.nan
+        with pytest.raises(InputError, match="Form.coeff_errors.*NaN values cannot be stored"):
+            st.add_forms([_with(f, coeff_errors=bad)])
+        with pytest.raises(InputError, match="float64 or complex128"):
+            st.add_forms([_with(f, coeffs=f.coeffs.astype(np.float32))])
+        with pytest.raises(InputError, match="hecke_residual nan"):
+            st.add_forms([_with(f, hecke_residual=float("nan"))])
+        with pytest.raises(InputError, match="Gamma0\\(1\\) has only 1 cusps"):
+            st.add_forms([_with(f, coeffs=np.vstack([f.coeffs, f.coeffs]),
+                                coeff_errors=np.vstack([f.coeff_errors, f.coeff_errors]))])
         assert len(st) == 0
     with pytest.raises(InputError, match="store mode 'x'"):
         Store.open(path, "x")
@@ -248,10 +282,10 @@ def test_bad_input_is_refused_with_clear_errors(path):
 
 
 def test_second_writer_is_locked_out_and_readers_see_snapshots(path):
-    with Store.open(path, "a") as w:
+    with Store.open(path, "a", create=True) as w:
         w.add_forms([indexed_form(0)])
         with pytest.raises(StoreError, match="open for writing by another process"):
-            Store.open(path, "a")
+            Store.open(path, "a", create=True)
         r = Store.open(path, "r")
         w.add_forms([indexed_form(1), indexed_form(2)])
         assert len(r) == 1  # the reader's snapshot is unchanged ...
@@ -259,12 +293,12 @@ def test_second_writer_is_locked_out_and_readers_see_snapshots(path):
         r.close()
         with Store.open(path, "r") as r2:  # ... a new reader sees the commit
             assert len(r2) == 3
-    with Store.open(path, "a") as w2:  # the lock is released on close
+    with Store.open(path, "a", create=True) as w2:  # the lock is released on close
         assert len(w2) == 3
 
 
 def test_mode_w_starts_empty_but_never_clobbers_foreign_files(path, tmp_path):
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         st.add_forms([indexed_form(0)])
     with Store.open(path, "w") as st:
         assert len(st) == 0
@@ -279,13 +313,51 @@ def test_mode_w_starts_empty_but_never_clobbers_foreign_files(path, tmp_path):
 
 
 def test_stale_temporary_is_cleaned_on_next_write_open(path):
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         st.add_forms([indexed_form(0)])
     stale = path.with_name(f".{path.name}.tmp.99999.deadbeef")
     stale.write_bytes(b"half-written")
     with Store.open(path, "r") as st:  # readers ignore it
         assert len(st) == 1
     assert stale.exists()
-    with Store.open(path, "a") as st:
+    with Store.open(path, "a", create=True) as st:
         assert len(st) == 1
     assert not stale.exists()
+
+
+def test_form_fields_unknown_to_the_store_are_kept(path):
+    """A field the Form class gains later (here through a subclass) is stored generically,
+    like ``extra``, and handed back (as ``unknown_fields`` while this Form lacks it)."""
+    import dataclasses
+
+    @dataclasses.dataclass(frozen=True, eq=False)
+    class LaterForm(Form):
+        spectral_gap: float = 0.0
+        neighbours: tuple = ()
+        weights: np.ndarray = dataclasses.field(default_factory=lambda: np.zeros(0))
+
+    f = indexed_form(2)
+    g = LaterForm(**{k.name: getattr(f, k.name) for k in dataclasses.fields(Form)},
+                  spectral_gap=0.125, neighbours=(1.5, "x"), weights=np.arange(3, dtype=np.int16))
+    with Store.open(path, "a", create=True) as st:
+        (k,) = st.add_forms([g])
+    with Store.open(path) as st:
+        sf = st.read(k)
+        assert_forms_equal(sf.form, f)
+        assert sf.unknown_fields["spectral_gap"] == 0.125
+        assert sf.unknown_fields["neighbours"] == (1.5, "x")
+        w = sf.unknown_fields["weights"]
+        assert w.dtype == np.int16 and w.tolist() == [0, 1, 2]
+    kw = {k.name: getattr(f, k.name) for k in dataclasses.fields(Form)}
+    kw["R"] = f.R + 1
+    with Store.open(path, "a") as st, pytest.raises(InputError, match=r"Form.neighbours\[0\]"):
+        st.add_forms([LaterForm(**kw, neighbours=({1},))])
+    with Store.open(path) as st:
+        assert len(st) == 1
+    from maasscomp.store import export_json
+
+    export_json(path, path.with_suffix(".json"))
+    import json
+
+    rec = json.loads(path.with_suffix(".json").read_text())["forms"][0]
+    assert rec["fields"] == {"spectral_gap": 0.125, "neighbours": [1.5, "x"], "weights": [0, 1, 2]}
