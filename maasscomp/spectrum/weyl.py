@@ -1,57 +1,71 @@
-"""Weyl's law with explicit lower-order terms for Gamma0(N), and completeness reports.
+"""Weyl's law with lower-order terms for Gamma0(N), every level N, and completeness reports.
 
 The counting function is
 
-    N_N(T) = #{Maass cusp forms on Gamma0(N) (with multiplicity, all symmetry classes)
-               with 0 < R_j <= T},
+    N_N(T) = #{Maass cusp forms on Gamma0(N) (with multiplicity, all symmetry classes,
+               newforms and oldforms) with 0 < R_j <= T},
 
-and for squarefree N the smooth part of the trace-formula expansion is
+and the smooth part of its trace-formula expansion, for every level N, is
+(docs/theory-additions/weyl.md §W2-W3, derived by the project)
 
-    W_N(T) = (mu/12) T^2 - (2 h T / pi) log((T/e) sqrt(2N/pi))
-             - mu/144 + nu2/8 + 2 nu3/9 - h/4 - 1
-             - (h/pi) arg zeta(1 + 2iT) - (h/(2 pi)) sum_{p | N} arg(1 - p^{-1-2iT}),
+    W_N(T) = (mu/12) T^2 - (2 h T / pi) log((T/e) sqrt(2/pi)) - (T/pi) log A_N + C_N
+             + osc_N(T),
+    C_N    = -mu/144 + nu2/8 + 2 nu3/9 - h/4 + (k - n_1)/2 - 1,
 
-with mu the index of Gamma0(N) in SL2(Z), h = 2^omega(N) the number of cusps and nu2, nu3
-the numbers of elliptic points of order 2 and 3.  N_N(T) = W_N(T) + S_N(T) + O(1/T) where
-S_N is a mean-zero remainder (the argument of the Selberg zeta function on the critical
-line).
+with mu the index of Gamma0(N) in SL2(Z), h the number of cusps, nu2, nu3 the numbers of
+elliptic points of order 2 and 3, and the scattering data of Gamma0(N)
+(:mod:`maasscomp.spectrum.scattering`): k = the multiplicity of the eigenvalue -1 of the
+involution Phi(1/2) (so that Tr(I - Phi(1/2)) = 2k), n_1 the number of zeta-ratio factors
+in det Phi, A_N the "scattering conductor" (the linear growth of the phase of det Phi on
+Re s = 1/2), and osc_N a bounded oscillating term: -(1/pi) times the sum of
+n_chi arg L(1 + 2iT, chi*) over the primitive characters chi* in det Phi, plus one periodic
+term per prime p | N (period 2 pi / log p).  N_N(T) = W_N(T) + S_N(T) + O(1/T) with S_N a
+mean-zero remainder.
 
-Sources:
+Special cases (exact reductions, tested):
 
-* general structure (area term, cusp terms, winding of the scattering determinant):
-  H. Iwaniec, *Spectral Methods of Automorphic Forms*, 2nd ed. (2002), Thm 10.2 (trace
-  formula) and Ch. 11 (Weyl's law); D. A. Hejhal, *The Selberg Trace Formula for
-  PSL(2,R)*, Vol. 2, Springer LNM 1001 (1983);
-* level 1: N(T) = T^2/12 - (2T/pi) log(T/(e sqrt(pi/2))) - 131/144 + S(T), e.g. R. Steil,
-  DESY report 94-028 (1994), and H. Then, Math. Comp. 74 (2005) 363-381 (from memory of
-  these sources); the arg zeta(1 + 2iT) term is the part of the scattering phase
-  Lambda(2s-1)/Lambda(2s) that those papers keep inside the remainder;
-* squarefree level: the scattering determinant
-  det Phi_N(s) = phi_1(s)^h prod_{p|N} ((p^{2-2s} - 1)/(p^{2s} - 1))^{h/2}
-  (structure as in M. N. Huxley, "Scattering matrices for congruence subgroups", in
-  *Modular Forms*, ed. R. A. Rankin, Ellis Horwood 1984, 141-156).  The resulting
-  T log T, T and constant terms are *derived* by the project from these two ingredients;
-  they reduce exactly to the published level-1 formula and were checked against a
-  complete list of eigenvalues for N = 2 only.  Treat other levels as derived, not
-  verified.
+* N = 1: W(T) = T^2/12 - (2T/pi) log(T/(e sqrt(pi/2))) - 131/144 - (1/pi) arg zeta(1+2iT)
+  (R. Steil, DESY report 94-028 (1994); H. Then, Math. Comp. 74 (2005) 363-381; from memory
+  of these sources; the arg zeta term is the part of the scattering phase that those
+  papers keep inside the remainder);
+* squarefree N: det Phi_N(s) = phi_1(s)^h prod_{p|N} ((p^{2-2s} - 1)/(p^{2s} - 1))^{h/2},
+  h = 2^omega(N), k = n_1 = h, A_N = N^h, osc_N = -(h/pi) arg zeta(1+2iT)
+  - (h/(2 pi)) sum_{p|N} arg(1 - p^{-1-2iT}) (structure as in M. N. Huxley, "Scattering
+  matrices for congruence subgroups", in *Modular Forms*, ed. R. A. Rankin, Ellis Horwood
+  1984, 141-156); this closed form is used for squarefree levels, the general
+  computation agrees with it (tests);
+* every other N: the scattering determinant is computed from the exact constant terms of
+  the Eisenstein series (:mod:`maasscomp.spectrum.scattering`); for example A_4 = 2^5,
+  A_8 = 2^10, A_9 = 3^7, and k < h first at N = 25 (k = 5, h = 6).
 
-Elliptic points of order m contribute (m^2 - 1)/(12 m) each (1/8 for m = 2, 2/9 for
-m = 3), every cusp -1/4, the identity -area/(48 pi) = -mu/144, and the removed constant
-eigenfunction -1.
+General structure (area term, elliptic and cusp terms, Tr(I - Phi(1/2)), winding of the
+scattering determinant): H. Iwaniec, *Spectral Methods of Automorphic Forms*, 2nd ed.
+(2002), Thm 10.2 (trace formula) and Ch. 11; D. A. Hejhal, *The Selberg Trace Formula for
+PSL(2,R)*, Vol. 2, Springer LNM 1001 (1983).  The constants: every elliptic point of order
+m contributes (m^2 - 1)/(12 m), every cusp -1/4, the identity -area/(48 pi) = -mu/144, the
+removed constant eigenfunction -1, and (1/4) Tr(I - Phi(1/2)) = k/2 with -n_1/2 from the
+value -pi/2 of arg zeta(1 + 2iT) at T -> 0+.
 
-Non-squarefree levels are not available: their scattering matrices have cusps not related
-by Atkin-Lehner involutions, and the project has no checked formula for their determinant.
+Checks: the level-1 formula is the published one; for N = 2 and for N = 4, 8, 9 the counts
+of complete lists of eigenvalues computed here agree with W_N within the size of the
+remainder (tests/spectrum/test_weyl_law.py).  The formula assumes no exceptional
+eigenvalues 0 < lambda < 1/4 (Selberg's conjecture, true for the small levels used here).
 
 Counts per symmetry class (parity, Atkin-Lehner signs) are **not** provided: the
 lower-order terms of the split are not known to the project in a checked form, so only
 the total over all classes is returned.
+
+The module also holds the completeness report (:func:`completeness`: window counts,
+a Turing-style integral test and a small-gap test) and the old/new count identity
+(:func:`count_identity`).
 """
 
 from __future__ import annotations
 
+import functools
 import math
-from dataclasses import dataclass
-from typing import Sequence
+from dataclasses import dataclass, field
+from typing import Any, Sequence
 
 import mpmath
 import numpy as np
@@ -63,9 +77,14 @@ __all__ = [
     "weyl_density",
     "expected_in_window",
     "weyl_constant",
+    "weyl_terms",
+    "WeylTerms",
     "CompletenessWindow",
     "CompletenessReport",
     "completeness",
+    "turing_bound",
+    "count_identity",
+    "CountIdentityRow",
 ]
 
 
@@ -73,123 +92,131 @@ __all__ = [
 
 
 @dataclass(frozen=True)
-class _LevelData:
+class WeylTerms:
+    """The level-dependent constants of Weyl's law for Gamma0(N) (module docstring).
+
+    Attributes
+    ----------
+    level : int
+    mu : int
+        Index [SL2(Z) : Gamma0(N)].
+    n_cusps : int
+        h.
+    nu2, nu3 : int
+        Elliptic points of order 2 and 3.
+    minus_one_multiplicity : int
+        k: multiplicity of the eigenvalue -1 of Phi(1/2); Tr(I - Phi(1/2)) = 2k.
+    n_zeta : int
+        n_1: number of zeta(2s-1)/zeta(2s) factors in det Phi.
+    log_conductor : float
+        log A_N.
+    constant : float
+        C_N.
+    closed_form : bool
+        True for squarefree levels (closed form), False where the scattering determinant
+        is computed (:mod:`maasscomp.spectrum.scattering`).
+    """
+
     level: int
-    primes: tuple[int, ...]
-    mu: int  # index [SL2(Z) : Gamma0(N)]
-    h: int  # number of cusps
+    mu: int
+    n_cusps: int
     nu2: int
     nu3: int
+    minus_one_multiplicity: int
+    n_zeta: int
+    log_conductor: float
+    constant: float
+    closed_form: bool
+
+    def as_text(self) -> str:
+        """One line per term, for reports."""
+        N, h = self.level, self.n_cusps
+        return "\n".join([
+            f"Weyl's law for Gamma0({N}): mu = {self.mu}, h = {h} cusps, nu2 = {self.nu2}, nu3 = {self.nu3}",
+            f"  W(T) = ({self.mu}/12) T^2 - ({2 * h}/pi) T log((T/e) sqrt(2/pi)) - (T/pi) log A + C + osc(T)",
+            f"  log A = {self.log_conductor:.12g} (A = {math.exp(self.log_conductor):.12g}),"
+            f" Tr(I - Phi(1/2)) = {2 * self.minus_one_multiplicity}, zeta factors n_1 = {self.n_zeta}",
+            f"  C = -mu/144 + nu2/8 + 2 nu3/9 - h/4 + (k - n_1)/2 - 1 = {self.constant:.12g}",
+            "  (scattering data: " + ("closed form for squarefree N)" if self.closed_form else
+                                     "computed from the Eisenstein constant terms)"),
+        ])
 
 
-def _level_data(level: object) -> _LevelData:
-    """Index, cusps and elliptic points of Gamma0(N), N squarefree.
-
-    The invariants come from :func:`maasscomp.groups.gamma0` (Shimura 1971, Prop. 1.43;
-    Diamond & Shurman 2005, §3.9).
-    """
-    from maasscomp.groups import gamma0
-
+def _check_level(level: object) -> int:
     if isinstance(level, bool) or not isinstance(level, (int, np.integer)):
         raise InputError(f"level {level!r} is not allowed; use a positive integer")
     N = int(level)
     if N < 1:
         raise InputError(f"level {N} is not allowed; use a positive integer")
+    return N
+
+
+@functools.lru_cache(maxsize=64)
+def weyl_terms(level: int) -> WeylTerms:
+    """Constants of Weyl's law for Gamma0(level), any level (module docstring).
+
+    Index, cusps and elliptic points come from :func:`maasscomp.groups.gamma0` (Shimura
+    1971, Prop. 1.43; Diamond & Shurman 2005, §3.8-3.9); k, n_1 and A_N from the
+    scattering determinant (closed form for squarefree N, else
+    :func:`maasscomp.spectrum.scattering.scattering_determinant`, a few seconds for
+    N around 100 the first time a level is used).
+    """
+    from maasscomp.groups import gamma0
+
+    N = _check_level(level)
     g = gamma0(N)
-    if not g.is_squarefree:
-        raise InputError(
-            f"Weyl's law for level {N} is not available: only squarefree levels are "
-            "supported (the scattering determinant of non-squarefree levels has no checked "
-            "formula in this project)"
-        )
-    return _LevelData(N, tuple(sorted(g.primes)), g.index, g.n_cusps, g.nu2, g.nu3)
+    h = g.n_cusps
+    if g.is_squarefree:
+        k = n1 = h
+        logA = h * math.log(N)
+        closed = True
+    else:
+        from maasscomp.spectrum.scattering import scattering_determinant
+
+        D = scattering_determinant(N)
+        k, n1, logA = D.minus_one_multiplicity, D.n_trivial, D.log_conductor
+        closed = False
+    C = -g.index / 144.0 + g.nu2 / 8.0 + 2.0 * g.nu3 / 9.0 - h / 4.0 + (k - n1) / 2.0 - 1.0
+    return WeylTerms(N, g.index, h, g.nu2, g.nu3, k, n1, float(logA), float(C), closed)
 
 
 def weyl_constant(level: int) -> float:
-    """Constant term of Weyl's law for Gamma0(level), squarefree level.
+    """Constant term C_N of Weyl's law for Gamma0(level), any level.
 
-    -mu/144 (identity) + nu2/8 + 2 nu3/9 (elliptic points, (m^2-1)/(12m) each)
-    - h/4 (cusps) - 1 (the constant eigenfunction).  Equals -131/144 for level 1.
+    C_N = -mu/144 (identity) + nu2/8 + 2 nu3/9 (elliptic points, (m^2-1)/(12m) each)
+    - h/4 (cusps) + (k - n_1)/2 (Tr(I - Phi(1/2))/4 and the zeta-ratio factors' value at
+    T = 0) - 1 (the constant eigenfunction).  Equals -131/144 for level 1 and
+    -mu/144 + nu2/8 + 2 nu3/9 - h/4 - 1 for squarefree levels (k = n_1 = h there).
 
     Parameters
     ----------
     level : int
-        Squarefree positive integer N.
+        Positive integer N.
 
     Returns
     -------
     float
     """
-    d = _level_data(level)
-    return -d.mu / 144.0 + d.nu2 / 8.0 + 2.0 * d.nu3 / 9.0 - d.h / 4.0 - 1.0
+    return weyl_terms(level).constant
 
 
 # --------------------------------------------------------------------------- oscillatory terms
 
-# sigma nodes for tracking arg zeta(sigma + it) from sigma = 2 (where |zeta - 1| < 1, so the
-# principal value is the continuous branch) down to sigma = 1; each step changes the
-# argument by much less than pi (|d arg/d sigma| = |Im zeta'/zeta| is O(log t) there).
-_SIGMA_PATH = (2.0, 1.6, 1.35, 1.18, 1.08, 1.0)
-
-# B_{2k}/(2k)! for k = 1..12, the Euler-Maclaurin coefficients (DLMF 24.2.1, 25.2.9)
-_EM_COEF = np.array(
-    [float(mpmath.bernoulli(2 * k) / mpmath.factorial(2 * k)) for k in range(1, 13)]
-)
-
 
 def _zeta_em(s: np.ndarray) -> np.ndarray:
-    """zeta(s) for Re s >= 1, s != 1, by Euler-Maclaurin summation (DLMF 25.2.9).
+    """zeta(s) for Re s >= 1, s != 1, by Euler-Maclaurin summation (DLMF 25.2.9); see
+    :func:`maasscomp.spectrum.scattering.dirichlet_L` (vectorised, relative error < 1e-12)."""
+    from maasscomp.spectrum.scattering import dirichlet_L
 
-    zeta(s) = sum_{n<N} n^{-s} + N^{1-s}/(s-1) + N^{-s}/2
-              + sum_{k=1}^{12} B_{2k}/(2k)! s(s+1)...(s+2k-2) N^{-s-2k+1} + E,
-    with N > |s|/2 + 20 so that successive correction terms shrink by about
-    (|s|/(2 pi N))^2 < 1/pi^2 and |E| < 1e-12 relative.  Vectorised over s; used
-    instead of mpmath because completeness reports need thousands of values.
-    """
-    s = np.asarray(s, dtype=complex)
-    out = np.empty_like(s)
-    flat = s.ravel()
-    res = out.ravel()
-    order = np.argsort(np.abs(flat.imag))
-    chunk = 256
-    for i0 in range(0, flat.size, chunk):
-        idx = order[i0 : i0 + chunk]
-        ss = flat[idx]
-        N = int(np.max(np.abs(ss)) / 2) + 20
-        logn = np.log(np.arange(1, N, dtype=float))
-        acc = np.zeros(ss.size, dtype=complex)
-        # sum in blocks to bound memory
-        for j0 in range(0, logn.size, 4096):
-            acc += np.exp(-np.outer(ss, logn[j0 : j0 + 4096])).sum(axis=1)
-        lnN = math.log(N)
-        NmS = np.exp(-ss * lnN)
-        acc += N * NmS / (ss - 1.0) + 0.5 * NmS
-        poch = ss.copy()  # s (s+1) ... (s + 2k - 2)
-        term_pow = NmS / N  # N^{-s-1}
-        for k, c in enumerate(_EM_COEF, start=1):
-            acc += c * poch * term_pow
-            poch = poch * (ss + 2 * k - 1) * (ss + 2 * k)
-            term_pow = term_pow / (N * N)
-        res[idx] = acc
-    return out
+    return dirichlet_L(s, np.ones(1))
 
 
 def _arg_zeta_1_plus_it(t: np.ndarray) -> np.ndarray:
-    """Continuous branch of arg zeta(1 + it), zero at sigma -> +infinity (vectorised).
+    """Continuous branch of arg zeta(1 + it), zero at sigma -> +infinity (vectorised); -pi/2
+    at t = 0 (the limit from t > 0)."""
+    from maasscomp.spectrum.scattering import arg_L_1_plus_it
 
-    The branch is the one continuous on Re s >= 1 (zeta has no zeros there); it is
-    obtained by following the horizontal segment from 2 + it to 1 + it and adding
-    principal-value increments.  At t = 0 (the pole) the value 0 is returned.
-    """
-    t = np.asarray(t, dtype=float)
-    prev = _zeta_em(_SIGMA_PATH[0] + 1j * t)
-    total = np.angle(prev)
-    for sig in _SIGMA_PATH[1:]:
-        safe = np.where(t == 0, 1.0, t) if sig == 1.0 else t
-        cur = _zeta_em(sig + 1j * safe)
-        total = total + np.angle(cur / prev)
-        prev = cur
-    return np.where(t == 0, 0.0, total)
+    return arg_L_1_plus_it(t, np.ones(1))
 
 
 def _zeta_logderiv_1_plus_it(t: float) -> complex:
@@ -208,17 +235,58 @@ def _as_T(T: float | np.ndarray, name: str = "T") -> tuple[np.ndarray, bool]:
     return arr, scalar
 
 
-def _oscillatory(d: _LevelData, T: np.ndarray) -> np.ndarray:
-    """-(h/pi) arg zeta(1+2iT) - (h/(2pi)) sum_{p|N} arg(1 - p^{-1-2iT})."""
+def _oscillatory(level: int, T: np.ndarray) -> np.ndarray:
+    """osc_N(T): the bounded oscillating part of W_N (module docstring)."""
+    from maasscomp.groups import gamma0
+
+    g = gamma0(level)
     # unique values only: completeness reports evaluate window edges repeatedly
     uniq, inv = np.unique(T, return_inverse=True)
-    az = _arg_zeta_1_plus_it(2.0 * uniq)[inv].reshape(T.shape)
-    out = -(d.h / math.pi) * az
-    for p in d.primes:
-        # principal value: |p^{-1-2iT}| < 1, so 1 - p^{-1-2iT} stays in the right half-plane
-        w = 1.0 - p ** (-1.0) * np.exp(-2j * T * math.log(p))
-        out -= (d.h / (2 * math.pi)) * np.angle(w)
-    return out
+    if g.is_squarefree:
+        h = g.n_cusps
+        out = -(h / math.pi) * _arg_zeta_1_plus_it(2.0 * uniq)
+        for p in g.primes:
+            # principal value: |p^{-1-2iT}| < 1, so 1 - p^{-1-2iT} stays in the right half-plane
+            w = 1.0 - p ** (-1.0) * np.exp(-2j * uniq * math.log(p))
+            out = out - (h / (2 * math.pi)) * np.angle(w)
+    else:
+        from maasscomp.spectrum.scattering import scattering_determinant
+
+        out = scattering_determinant(level).oscillatory(uniq)
+    return out[inv].reshape(T.shape)
+
+
+def _oscillatory_derivative(level: int, T: np.ndarray) -> np.ndarray:
+    from maasscomp.groups import gamma0
+
+    g = gamma0(level)
+    uniq, inv = np.unique(T, return_inverse=True)
+    if g.is_squarefree:
+        h = g.n_cusps
+        zl = np.array([_zeta_logderiv_1_plus_it(2.0 * x).real for x in uniq])
+        out = -(2 * h / math.pi) * zl
+        for p in g.primes:
+            q = p ** (-1.0) * np.exp(-2j * uniq * math.log(p))
+            # d/dT arg(1 - q) with dq/dT = -2i log p q
+            out = out - (h / math.pi) * math.log(p) * np.real(q / (1.0 - q))
+    else:
+        from maasscomp.spectrum.scattering import scattering_determinant
+
+        D = scattering_determinant(level)
+        out = np.zeros(uniq.shape)
+        with mpmath.workdps(20):
+            for f, chi, n in D.characters:
+                v = [mpmath.mpc(complex(c).real, complex(c).imag) for c in chi]
+                for i, x in enumerate(uniq):
+                    s = mpmath.mpc(1, 2 * x)
+                    if f == 1:
+                        ld = mpmath.zeta(s, derivative=1) / mpmath.zeta(s)
+                    else:
+                        ld = mpmath.dirichlet(s, v, derivative=1) / mpmath.dirichlet(s, v)
+                    out[i] -= (2 * n / math.pi) * float(mpmath.re(ld))
+        for pp in D.primes:
+            out = out + (pp.derivative(uniq) - pp.slope) / (2 * math.pi)
+    return out[inv].reshape(T.shape)
 
 
 # --------------------------------------------------------------------------- public API
@@ -229,13 +297,15 @@ def weyl_count(
 ) -> float | np.ndarray:
     """Weyl's law with lower-order terms: expected number of cusp forms with R <= T.
 
-    For squarefree N (derived for N > 1, published for N = 1; see the module docstring)
+    For every level N (module docstring; published for N = 1, derived by the project for
+    N > 1)
 
-        W_N(T) = (mu/12) T^2 - (2hT/pi) log((T/e) sqrt(2N/pi)) + C_N
-                 - (h/pi) arg zeta(1+2iT) - (h/(2pi)) sum_{p|N} arg(1 - p^{-1-2iT}),
+        W_N(T) = (mu/12) T^2 - (2hT/pi) log((T/e) sqrt(2/pi)) - (T/pi) log A_N + C_N
+                 + osc_N(T).
 
-    C_N = -mu/144 + nu2/8 + 2 nu3/9 - h/4 - 1.  For N = 1:
-    W(T) = T^2/12 - (2T/pi) log(T/(e sqrt(pi/2))) - 131/144 - (1/pi) arg zeta(1+2iT).
+    For N = 1: W(T) = T^2/12 - (2T/pi) log(T/(e sqrt(pi/2))) - 131/144
+    - (1/pi) arg zeta(1+2iT).  For squarefree N, log A_N = h log N and
+    osc_N(T) = -(h/pi) arg zeta(1+2iT) - (h/(2pi)) sum_{p|N} arg(1 - p^{-1-2iT}).
     The count is the total over **all** symmetry classes (even and odd, all
     Atkin-Lehner sign classes, oldforms with multiplicity); a split by class is not
     provided because it is not verified.
@@ -243,13 +313,13 @@ def weyl_count(
     Parameters
     ----------
     level : int
-        Squarefree level N >= 1.
+        Level N >= 1.
     T : float or ndarray
         Spectral parameter(s) T >= 0.  The expansion is asymptotic: it is meaningful for
         T above a few units.
     oscillatory : bool, optional
-        Include the arg zeta and arg(1 - p^{-1-2iT}) terms (zeta by vectorised
-        Euler-Maclaurin summation, checked against mpmath in the tests).  Default True.
+        Include osc_N (arg zeta and Dirichlet L-functions by vectorised Euler-Maclaurin
+        summation, checked against mpmath in the tests).  Default True.
 
     Returns
     -------
@@ -259,17 +329,18 @@ def weyl_count(
     Raises
     ------
     InputError
-        For non-squarefree or non-positive levels, negative or non-finite T.
+        For non-positive or non-integer levels, negative or non-finite T.
     """
-    d = _level_data(level)
+    d = weyl_terms(level)
     t, scalar = _as_T(T)
     with np.errstate(divide="ignore", invalid="ignore"):
         logterm = np.where(
-            t > 0, t * np.log(np.where(t > 0, t, 1.0) / math.e * math.sqrt(2 * d.level / math.pi)), 0.0
+            t > 0, t * np.log(np.where(t > 0, t, 1.0) / math.e * math.sqrt(2 / math.pi)), 0.0
         )
-    w = d.mu / 12.0 * t**2 - (2 * d.h / math.pi) * logterm + weyl_constant(level)
+    w = (d.mu / 12.0 * t**2 - (2 * d.n_cusps / math.pi) * logterm
+         - (t / math.pi) * d.log_conductor + d.constant)
     if oscillatory:
-        w = w + _oscillatory(d, t)
+        w = w + _oscillatory(d.level, t)
     return float(w[0]) if scalar else w
 
 
@@ -278,39 +349,34 @@ def weyl_density(
 ) -> float | np.ndarray:
     """Derivative dW_N/dT of :func:`weyl_count` (mean number of forms per unit of R).
 
-        W'_N(T) = (mu/6) T - (2h/pi) log(T sqrt(2N/pi))
-                  [ - (2h/pi) Re zeta'/zeta(1+2iT)
-                    - (h/pi) sum_{p|N} log p Re( p^{-1-2iT} / (1 - p^{-1-2iT}) ) ]
+        W'_N(T) = (mu/6) T - (2h/pi) log(T sqrt(2/pi)) - (1/pi) log A_N  [ + osc_N'(T) ]
 
-    The bracket is included only when ``oscillatory`` is True (default False: the mean
-    density is what a scan-step rule needs).
+    For squarefree N, osc_N'(T) = -(2h/pi) Re zeta'/zeta(1+2iT)
+    - (h/pi) sum_{p|N} log p Re(p^{-1-2iT}/(1 - p^{-1-2iT})).  The bracket is included
+    only when ``oscillatory`` is True (default False: the mean density is what a
+    scan-step rule needs).
 
     Parameters
     ----------
     level : int
-        Squarefree level N >= 1.
+        Level N >= 1.
     T : float or ndarray
         T > 0.
     oscillatory : bool, optional
-        Include the derivative of the oscillating terms.
+        Include the derivative of the oscillating terms (mpmath per distinct T).
 
     Returns
     -------
     float or ndarray
     """
-    d = _level_data(level)
+    d = weyl_terms(level)
     t, scalar = _as_T(T)
     if np.any(t <= 0):
         raise InputError("weyl_density needs T > 0 (the log T term is singular at 0)")
-    w = d.mu / 6.0 * t - (2 * d.h / math.pi) * np.log(t * math.sqrt(2 * d.level / math.pi))
+    w = (d.mu / 6.0 * t - (2 * d.n_cusps / math.pi) * np.log(t * math.sqrt(2 / math.pi))
+         - d.log_conductor / math.pi)
     if oscillatory:
-        uniq, inv = np.unique(t, return_inverse=True)
-        zl = np.array([_zeta_logderiv_1_plus_it(2.0 * x).real for x in uniq])[inv]
-        w = w - (2 * d.h / math.pi) * zl
-        for p in d.primes:
-            q = p ** (-1.0) * np.exp(-2j * t * math.log(p))
-            # d/dT arg(1 - q) with dq/dT = -2i log p q
-            w = w - (d.h / math.pi) * math.log(p) * np.real(q / (1.0 - q))
+        w = w + _oscillatory_derivative(d.level, t)
     return float(w[0]) if scalar else w
 
 
@@ -322,7 +388,7 @@ def expected_in_window(
     Parameters
     ----------
     level : int
-        Squarefree level.
+        Level N >= 1.
     T1, T2 : float or ndarray
         Window ends, 0 <= T1 <= T2 (broadcast together).
     oscillatory : bool, optional
@@ -522,7 +588,7 @@ def completeness(
     -------
     CompletenessReport
     """
-    d = _level_data(level)
+    d = weyl_terms(_check_level(level))
     if not (math.isfinite(T_min) and math.isfinite(T_max)) or T_min < 0 or T_max <= T_min:
         raise InputError(f"need 0 <= T_min < T_max, got T_min={T_min!r}, T_max={T_max!r}")
     Rall = np.sort(np.asarray(found_R, dtype=float).ravel())
