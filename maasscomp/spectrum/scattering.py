@@ -508,10 +508,29 @@ def _tail_ratio_mp(sd: ScatteringData, chi: DirichletCharacter, t: int) -> "mpma
 
 
 def _L_ratio_mp(chi: DirichletCharacter, s) -> "mpmath.mpc":
-    if chi.modulus == 1:
-        return mpmath.zeta(2 * s - 1) / mpmath.zeta(2 * s)
-    v = [chi.exact_value(n) for n in range(chi.modulus)]
-    return mpmath.dirichlet(2 * s - 1, v) / mpmath.dirichlet(2 * s, v)
+    """L(2s-1, chi)/L(2s, chi) for chi mod N, from the primitive character:
+    L(s, chi) = L(s, chi*) prod_{p | N} (1 - chi*(p) p^{-s})."""
+    N, f = chi.modulus, chi.conductor
+    if f == 1:
+        num, den = mpmath.zeta(2 * s - 1), mpmath.zeta(2 * s)
+        prim = lambda n: mpmath.mpf(1)  # noqa: E731
+    else:
+        def prim(n: int):
+            m = n
+            while math.gcd(m, N) != 1:
+                m += f
+            return chi.exact_value(m)
+
+        v = [prim(n) if math.gcd(n, f) == 1 else mpmath.mpc(0) for n in range(f)]
+        num, den = mpmath.dirichlet(2 * s - 1, v), mpmath.dirichlet(2 * s, v)
+    from maasscomp.groups import factorint
+
+    for p in factorint(N):
+        if f % p:
+            c = prim(p)
+            num *= 1 - c * mpmath.mpf(p) ** (1 - 2 * s)
+            den *= 1 - c * mpmath.mpf(p) ** (-2 * s)
+    return num / den
 
 
 def scattering_matrix_at_half(level: int) -> np.ndarray:
@@ -572,19 +591,34 @@ def _hurwitz_em(s: np.ndarray, a: float) -> np.ndarray:
 def dirichlet_L(s: np.ndarray, chi: np.ndarray) -> np.ndarray:
     """L(s, chi) = f^{-s} sum_{a=1}^{f} chi(a) zeta(s, a/f) for Re s >= 1 (vectorised).
 
-    ``chi``: values mod f (length f; chi = [1] is the Riemann zeta function).
+    ``chi``: values mod f (length f; chi = [1] is the Riemann zeta function).  For a
+    non-trivial character the Hurwitz poles at s = 1 cancel; within 1e-4 of s = 1 the value
+    is taken from L(1, chi) = -(1/f) sum_a chi(a) psi(a/f) (DLMF 25.11.18 with the digamma
+    function) plus a first-order term.
     """
     chi = np.asarray(chi, dtype=complex)
     f = chi.size
     s = np.asarray(s, dtype=complex)
     if f == 1:
         return _hurwitz_em(s, 1.0)
+    near = np.abs(s - 1.0) < 1e-4
+    safe = np.where(near, 2.0 + 0j, s)
     out = np.zeros_like(s)
     for a in range(1, f + 1):
         c = chi[a % f]
         if c != 0:
-            out = out + c * _hurwitz_em(s, a / f)
-    return out * np.exp(-s * math.log(f))
+            out = out + c * _hurwitz_em(safe, a / f)
+    out = out * np.exp(-safe * math.log(f))
+    if np.any(near):
+        from scipy.special import digamma
+
+        L1 = -sum(chi[a % f] * digamma(a / f) for a in range(1, f + 1)) / f
+        hstep = 1e-3
+        pm = dirichlet_L(np.array([1.0 + hstep + 0j]), chi)
+        # one-sided slope from L(1 + h): error O(h), times |s - 1| < 1e-4
+        slope = (pm[0] - L1) / hstep
+        out = np.where(near, L1 + (s - 1.0) * slope, out)
+    return out
 
 
 # sigma nodes for following arg L(sigma + it) from sigma = 2 (|L - 1| < 1 there, so the
