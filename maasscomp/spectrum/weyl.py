@@ -411,6 +411,37 @@ def expected_in_window(
 
 # --------------------------------------------------------------------------- completeness
 
+# The unit-step change-point rule on the remainder values (the "count" test) was measured
+# where the remainder is small (r.m.s. 0.3-0.4 for PSL(2,Z) below R = 20); its false-alarm
+# rate per report grows quickly with the remainder's scale (a complete list is flagged when
+# S at the top drops below -(1/2 + threshold)), so it is applied only while the model scale
+# of the remainder at T_max (spectral_checks.remainder_scale, calibrated on complete lists;
+# the list's own scale would be inflated by the very misses looked for) stays below this.
+_COUNT_RULE_MAX_SCALE = 0.5
+
+LIMITATIONS = (
+    "What the tests can and cannot show:\n"
+    "* count: the window count sees a missing form only while the Weyl remainder S is small "
+    "(r.m.s. below ~0.5, low R); at R ~ 1000 on PSL(2,Z) S fluctuates by several units and a "
+    "single miss is invisible in the counts (the change-point rule is then switched off).\n"
+    "* turing: a missed form at t0 lowers the integral of S over [s, t] by (t - t0) for "
+    "s < t0 < t; it is flagged once that exceeds the bound B (a statistical bound from "
+    "complete lists, not a proof). A miss within about B of the upper end of the searched "
+    "range shifts the integral too little: search beyond both ends of the range of interest "
+    "(complete_to) so that every form of interest lies more than B inside. One accepted false "
+    "candidate cancels one miss in all these tests. With the count below the range unknown, "
+    "only changes inside the range are visible.\n"
+    "* spacing: compares the number of same-class gaps below a fraction of the mean spacing "
+    "with the Poisson expectation; it detects the systematic loss of close pairs, not a single "
+    "miss. Poisson statistics is a conjecture for arithmetic groups; at level N > 1 it applies "
+    "to the newforms of one class only (oldforms repeat R exactly), so it needs class labels "
+    "and new/old classification.\n"
+    "Recommended stopping rule for re-searching: search the research intervals again with a "
+    "4x finer grid and other heights; recompute the report; stop when no window is flagged, "
+    "or when a round adds no new confirmed form inside the flagged intervals (report those "
+    "windows as unresolved), and after at most 3 rounds."
+)
+
 
 @dataclass(frozen=True)
 class CompletenessWindow:
@@ -421,7 +452,7 @@ class CompletenessWindow:
     T_lo, T_hi : float
         The window is T_lo < R <= T_hi.
     found : int
-        Number of supplied eigenvalues in the window.
+        Number of supplied forms in the window (with multiplicity).
     expected : float
         W(T_hi) - W(T_lo).
     deficit : float
@@ -429,12 +460,30 @@ class CompletenessWindow:
     remainder_end : float
         Running remainder N(T_hi) - W(T_hi) (N counted from the supplied list).
     drop_score : float
-        Smallest change-point statistic C_g (see :func:`completeness`) over the gaps
-        that overlap this window, for the supplied list: negative near a missing
-        eigenvalue (about -n/2 with n eigenvalues above it), positive elsewhere.
+        Smallest change-point statistic C_g (count test, see :func:`completeness`) over the
+        gaps that overlap this window: negative near a missing eigenvalue, positive elsewhere.
     flagged : bool
-        True if eigenvalues are probably missing in this window (rule in
-        :func:`completeness`).
+        True if forms are probably missing (or falsely accepted) here: any entry of
+        ``reasons``.
+    turing_integral : float
+        int_{T_lo}^{T_hi} S(t) dt, S = N - W of the list.
+    turing_bound : float
+        B at T_hi: the bound on |int S| over any interval used by the Turing test.
+    missing_min : int
+        Least net number of forms missing below T_hi implied by the Turing band.
+    missing_max : int or None
+        Largest net number that can be missing below T_hi (needs the list beyond T_hi;
+        0 certifies the count below T_hi up to the bound; None: no data beyond T_hi).
+    n_gaps, small_gaps : int
+        Same-class gaps in the window and those below ``gap_fraction`` x mean spacing.
+    small_gaps_expected : float
+        Poisson expectation n_gaps (1 - exp(-gap_fraction)).
+    spacing_p : float
+        P(Binomial <= small_gaps); small values mean too few small gaps.
+    reasons : tuple of str
+        Tests that flag this window: "count", "turing", "spacing".
+    research : tuple of (float, float)
+        Sub-intervals of this window to search again.
     """
 
     T_lo: float
@@ -445,11 +494,35 @@ class CompletenessWindow:
     remainder_end: float
     drop_score: float
     flagged: bool
+    turing_integral: float = 0.0
+    turing_bound: float = 0.0
+    missing_min: int = 0
+    missing_max: int | None = None
+    n_gaps: int = 0
+    small_gaps: int = 0
+    small_gaps_expected: float = 0.0
+    spacing_p: float = 1.0
+    reasons: tuple[str, ...] = ()
+    research: tuple[tuple[float, float], ...] = ()
+
+    def as_row(self) -> dict[str, Any]:
+        """Machine-readable row (plain Python values)."""
+        return {
+            "T_lo": self.T_lo, "T_hi": self.T_hi, "found": self.found,
+            "expected": round(self.expected, 6), "deficit": round(self.deficit, 6),
+            "remainder_end": round(self.remainder_end, 6), "drop_score": round(self.drop_score, 6),
+            "turing_integral": round(self.turing_integral, 6), "turing_bound": round(self.turing_bound, 6),
+            "missing_min": self.missing_min, "missing_max": self.missing_max,
+            "n_gaps": self.n_gaps, "small_gaps": self.small_gaps,
+            "small_gaps_expected": round(self.small_gaps_expected, 6), "spacing_p": self.spacing_p,
+            "flagged": self.flagged, "reasons": ";".join(self.reasons),
+            "research": ";".join(f"{a:.6f}-{b:.6f}" for a, b in self.research),
+        }
 
 
 @dataclass(frozen=True)
 class CompletenessReport:
-    """Found-vs-expected table for a list of eigenvalues (see :func:`completeness`).
+    """Completeness tests of a list of eigenvalues against Weyl's law (:func:`completeness`).
 
     Attributes
     ----------
@@ -457,20 +530,39 @@ class CompletenessReport:
     T_min, T_max : float
     windows : tuple of CompletenessWindow
     R : ndarray
-        The supplied eigenvalues in (T_min, T_max], sorted.
+        The supplied eigenvalues in (T_min, T_max], sorted (with multiplicity).
     remainder : ndarray
         N(R_j) - W(R_j) at each R_j with the midpoint convention N(R_j) = (number below)
         + (multiplicity at R_j)/2, which makes the remainder mean-zero for a complete list.
     mean_remainder, rms_remainder : float
         Mean and root mean square of ``remainder``.
     drop_threshold : float
-        Threshold of the change-point statistic used for flags.
+        Threshold of the change-point statistic used for the count flags.
     suspect_gaps : tuple of (float, float)
-        Intervals between consecutive supplied eigenvalues (or the range ends) in which
-        an eigenvalue is probably missing, one entry per missing eigenvalue.
+        Count test: intervals between consecutive supplied eigenvalues (or the range ends)
+        in which an eigenvalue is probably missing, one entry per missing eigenvalue.
     total_found : int
     total_expected : float
     oscillatory : bool
+    remainder_scale : float
+        Robust scale of the list's remainder (1.4826 x median absolute deviation).
+    remainder_scale_model : float
+        r.m.s. of S expected for a complete list at T_max
+        (:func:`maasscomp.spectrum.spectral_checks.remainder_scale`).
+    count_test_active : bool
+        The count (change-point) rule is applied only while ``remainder_scale_model``
+        <= 0.5.
+    turing_missing, turing_surplus : tuple of float
+        Positions located by the Turing test (missed forms; falsely accepted entries).
+    turing_suspect : tuple of (float, float)
+        Intervals around those positions.
+    turing_offset_estimated : bool
+        True when the count below T_min was unknown (the mean of S was removed).
+    complete_to : float
+        The list was taken as complete up to here (>= T_max; look-ahead of the Turing test).
+    gap_fraction, spacing_alpha : float
+        Parameters of the spacing test.
+    spacing_applicable : bool
     """
 
     level: int
@@ -486,10 +578,21 @@ class CompletenessReport:
     total_found: int
     total_expected: float
     oscillatory: bool
+    remainder_scale: float = 0.0
+    remainder_scale_model: float = 0.0
+    count_test_active: bool = True
+    turing_missing: tuple[float, ...] = ()
+    turing_surplus: tuple[float, ...] = ()
+    turing_suspect: tuple[tuple[float, float], ...] = ()
+    turing_offset_estimated: bool = False
+    complete_to: float = 0.0
+    gap_fraction: float = 0.1
+    spacing_alpha: float = 0.01
+    spacing_applicable: bool = False
 
     @property
     def flagged(self) -> tuple[CompletenessWindow, ...]:
-        """Windows where eigenvalues are probably missing."""
+        """Windows where forms are probably missing (or falsely accepted)."""
         return tuple(w for w in self.windows if w.flagged)
 
     @property
@@ -497,27 +600,79 @@ class CompletenessReport:
         """True when no window is flagged (evidence, not proof, of completeness)."""
         return not any(w.flagged for w in self.windows)
 
-    def as_text(self) -> str:
-        """A plain-text table, one line per window."""
+    def research_intervals(self) -> tuple[tuple[float, float], ...]:
+        """Merged sub-intervals of all flagged windows to search again."""
+        iv = sorted(iv for w in self.windows for iv in w.research)
+        out: list[list[float]] = []
+        for a, b in iv:
+            if out and a <= out[-1][1] + 1e-12:
+                out[-1][1] = max(out[-1][1], b)
+            else:
+                out.append([a, b])
+        return tuple((float(a), float(b)) for a, b in out)
+
+    def rows(self) -> list[dict[str, Any]]:
+        """One machine-readable dict per window (``CompletenessWindow.as_row`` plus level)."""
+        return [dict(level=self.level, **w.as_row()) for w in self.windows]
+
+    def summary_row(self) -> dict[str, Any]:
+        """One machine-readable dict for the whole range."""
+        return {
+            "level": self.level, "T_min": self.T_min, "T_max": self.T_max,
+            "found": self.total_found, "expected": round(self.total_expected, 6),
+            "remainder_mean": round(self.mean_remainder, 6), "remainder_rms": round(self.rms_remainder, 6),
+            "remainder_scale": round(self.remainder_scale, 6),
+            "remainder_scale_model": round(self.remainder_scale_model, 6),
+            "count_test_active": self.count_test_active,
+            "turing_bound_at_T_max": round(self.windows[-1].turing_bound, 6) if self.windows else None,
+            "turing_missing": ";".join(f"{x:.6f}" for x in self.turing_missing),
+            "turing_surplus": ";".join(f"{x:.6f}" for x in self.turing_surplus),
+            "turing_offset_estimated": self.turing_offset_estimated, "complete_to": self.complete_to,
+            "spacing_applicable": self.spacing_applicable,
+            "flagged_windows": len(self.flagged), "is_complete": self.is_complete,
+            "research": ";".join(f"{a:.6f}-{b:.6f}" for a, b in self.research_intervals()),
+        }
+
+    def as_text(self, *, limitations: bool = True) -> str:
+        """A plain-text table, one line per window, then the located positions and (by
+        default) what the tests can and cannot show."""
+        ct = ("on" if self.count_test_active else
+              f"off: expected remainder scale {self.remainder_scale_model:.2f} > {_COUNT_RULE_MAX_SCALE}")
+        B = self.windows[-1].turing_bound if self.windows else float("nan")
         lines = [
             f"level {self.level}: {self.total_found} found, {self.total_expected:.2f} expected "
             f"in ({self.T_min:g}, {self.T_max:g}]; remainder mean {self.mean_remainder:+.3f}, "
             f"rms {self.rms_remainder:.3f}, drop threshold {self.drop_threshold:.2f}",
+            f"tests: count ({ct}); turing (bound B = {B:.3f} at T_max, list complete to "
+            f"{self.complete_to:g}{', offset estimated' if self.turing_offset_estimated else ''}); "
+            f"spacing ({'gaps < %.2f x mean spacing, alpha %.3g' % (self.gap_fraction, self.spacing_alpha) if self.spacing_applicable else 'not applicable: needs class labels and new/old at level > 1'})",
             f"{'T_lo':>10} {'T_hi':>10} {'found':>6} {'expected':>9} {'deficit':>8} "
-            f"{'N-W(end)':>9} {'drop':>6}  flag",
+            f"{'N-W(end)':>9} {'drop':>6} {'intS':>7} {'B':>6} {'miss':>5} {'gaps':>5} {'small':>5} "
+            f"{'exp':>5} {'p':>7}  flag",
         ]
         for w in self.windows:
+            miss = f"{w.missing_min}" + ("" if w.missing_max is None else f"-{w.missing_max}")
             lines.append(
                 f"{w.T_lo:10.4f} {w.T_hi:10.4f} {w.found:6d} {w.expected:9.2f} "
-                f"{w.deficit:+8.2f} {w.remainder_end:+9.2f} {w.drop_score:+6.2f}  "
-                f"{'MISSING?' if w.flagged else ''}"
+                f"{w.deficit:+8.2f} {w.remainder_end:+9.2f} {w.drop_score:+6.2f} "
+                f"{w.turing_integral:+7.3f} {w.turing_bound:6.3f} {miss:>5} {w.n_gaps:5d} "
+                f"{w.small_gaps:5d} {w.small_gaps_expected:5.1f} {w.spacing_p:7.1e}  "
+                f"{('MISSING? (' + ', '.join(w.reasons) + ')') if w.flagged else ''}"
             )
+        if self.turing_missing:
+            lines.append("turing: forms probably missing near " + ", ".join(f"{x:.4f}" for x in self.turing_missing))
+        if self.turing_surplus:
+            lines.append("turing: probably false entries near " + ", ".join(f"{x:.4f}" for x in self.turing_surplus))
+        if self.flagged:
+            lines.append("search again: " + ", ".join(f"[{a:.4f}, {b:.4f}]" for a, b in self.research_intervals()))
+        if limitations:
+            lines.append(LIMITATIONS)
         return "\n".join(lines)
 
 
 def completeness(
     level: int,
-    found_R: Sequence[float] | np.ndarray,
+    found: Sequence[Any] | np.ndarray,
     T_min: float,
     T_max: float,
     window: float | Sequence[float] | None = None,
@@ -525,50 +680,53 @@ def completeness(
     count_below: int | None = None,
     oscillatory: bool = True,
     drop_threshold: float = 0.4,
+    complete_to: float | None = None,
+    turing_z: float = 4.0,
+    gap_fraction: float = 0.1,
+    spacing_alpha: float = 0.01,
 ) -> CompletenessReport:
-    """Compare a list of eigenvalues with Weyl's law, window by window.
+    """Test a list of eigenvalues for completeness against Weyl's law, window by window.
 
-    Pure bookkeeping: no search is done.  The running remainder
-    S(T) = N(T) - W(T) of a complete list is a mean-zero quantity of size O(1) for the
-    heights this tool reaches (numerically |S| is a few tenths r.m.s. for T <= 25 on
-    SL2(Z); docs/theory.md §2.2, and H. Then, arXiv:1212.3149, for its distribution at
-    large T).  A missing eigenvalue lowers S by 1 from its position on, and a window
-    with a missing eigenvalue shows a deficit (expected - found) of about 1 on top of the
-    remainder noise.
+    Pure bookkeeping: no search is done.  Three tests (their power and false-alarm rates
+    are measured in docs/theory-additions/weyl.md §W6 by
+    benchmarks/bench_completeness_power.py):
 
-    Flag rule: a missing eigenvalue lowers S by 1 from where it should be on.  Since S
-    has mean 0 for a complete list, the list is scanned for such a unit drop with the
-    likelihood-ratio statistic of a known-size step in a known mean (a standard
-    change-point test): for the gap g between consecutive supplied eigenvalues (and
-    above the last one),
+    1. **count** (change-point on the remainder): S(T) = N(T) - W(T) is mean-zero for a
+       complete list, and a missing eigenvalue lowers it by 1 from its position on.  For
+       the gap g between consecutive supplied eigenvalues (and above the last one),
 
-        C_g = sum_{j >= g} (S_j + 1/2) + (S(T_max) + 1/2),
+           C_g = sum_{j >= g} (S_j + 1/2) + (S(T_max) + 1/2)
 
-    is the change of the squared residual sum when S from gap g on is modelled as -1
-    instead of 0 (up to a factor -2).  C_g < 0 favours a missing eigenvalue in gap g.
-
-    1. The gap g* with the smallest C_g is taken; if C_{g*} <= -``drop_threshold``
-       (default 0.4), it is reported in ``suspect_gaps``, and the windows overlapping
-       it with a positive deficit (expected - found) are flagged (if none, the one with
-       the largest deficit).
-    2. S above the gap is raised by 1 and the scan repeats, so several missing
-       eigenvalues give several gaps.
-
-    On the ten PSL(2,Z) forms below R = 20 this rule gives no flag for the complete
-    list and locates every single and every pair of deleted eigenvalues (measured for
-    thresholds 0.25-0.5).  The rule relies on the constant term of Weyl's law: for
-    levels whose constant is only derived (all N > 1, see the module docstring) a bias
-    of the mean of S weakens it.  With few eigenvalues per window, read the table, not
-    only the flags; completeness is made plausible this way, never proved.
+       is the change of the squared residual when S from gap g on is modelled as -1 (a
+       standard change-point statistic).  While C_{g*} <= -``drop_threshold`` for the
+       smallest C_g*, the gap is reported in ``suspect_gaps``, the windows overlapping it
+       with a positive deficit (else the one with the largest deficit) are flagged, S above
+       the gap is raised by 1 and the scan repeats.  Applied only while the expected r.m.s.
+       of the remainder at T_max is <= 0.5 (PSL(2,Z) up to R ~ 35; it was measured on
+       PSL(2,Z) below R = 20, where every single and every pair of deleted eigenvalues is
+       located with no flag on the complete list).
+    2. **turing** (:func:`maasscomp.spectrum.spectral_checks.turing_test`): the integral of
+       S over any interval of a complete list stays within +-B (B = ``turing_z`` sigma_F,
+       sigma_F calibrated on complete lists computed here); a missed form adds slope -1 to
+       the integral from its position on.  Windows overlapping the interval around a located
+       change point are flagged; per window the Turing band also gives a lower bound on the
+       forms missing below T_hi and, with the list complete beyond T_hi (``complete_to``),
+       an upper bound.
+    3. **spacing** (:func:`maasscomp.spectrum.spectral_checks.spacing_test`): too few
+       same-class gaps below ``gap_fraction`` x the mean spacing (Poisson expectation,
+       p-value below ``spacing_alpha``) flags the window; re-search the whole window.
 
     Parameters
     ----------
     level : int
-        Squarefree level (Weyl's law as in :func:`weyl_count`).
-    found_R : array_like
-        Eigenvalues found (all symmetry classes, each repeated by multiplicity).  Values
-        outside (T_min, T_max] are ignored apart from those <= T_min, which are counted
-        as ``count_below`` if that is not given.
+        Level N >= 1 (Weyl's law as in :func:`weyl_count`).
+    found : sequence
+        Eigenvalues found, all symmetry classes: plain numbers R (repeat a value for its
+        multiplicity) or Form-like objects with ``.R``, ``.symmetry`` (``.label``,
+        ``.parity``), ``.is_new`` and ``.multiplicity``
+        (:func:`maasscomp.spectrum.spectral_checks.as_entries`).  Values outside
+        (T_min, complete_to] are ignored apart from those <= T_min, which are counted as
+        ``count_below`` if that is not given.
     T_min, T_max : float
         Range of the report, 0 <= T_min < T_max.
     window : float or sequence of float, optional
@@ -576,37 +734,65 @@ def completeness(
         chosen so that each window expects about 4 eigenvalues, and at least width 0.5.
     count_below : int, optional
         Number of eigenvalues with R <= T_min.  Default: the number of supplied values
-        <= T_min if T_min is below the first eigenvalue region or any are supplied;
-        if none are supplied and T_min > 0, W(T_min) is used (remainder measured
-        relative to T_min).
+        <= T_min if T_min is 0 or any are supplied; otherwise unknown (the remainder is
+        measured relative to W(T_min) and the Turing test removes the mean of S).
     oscillatory : bool, optional
         Use the oscillating terms of Weyl's law (default True).
     drop_threshold : float, optional
-        Threshold of the change-point statistic C_g (default 0.4).
+        Threshold of the change-point statistic of the count test (default 0.4).
+    complete_to : float, optional
+        The list is complete up to here (>= T_max; default T_max).  Forms in
+        (T_max, complete_to] are used by the Turing test only (look-ahead beyond the top
+        window, which a miss near T_max needs).
+    turing_z : float, optional
+        B = turing_z sigma_F (default 4).
+    gap_fraction : float, optional
+        Small gaps are those below this fraction of the mean spacing (default 0.1).
+    spacing_alpha : float, optional
+        Flag when P(Binomial <= small gaps) is below this (default 0.01).
 
     Returns
     -------
     CompletenessReport
     """
-    d = weyl_terms(_check_level(level))
+    from maasscomp.spectrum.spectral_checks import (
+        as_entries,
+        remainder_scale,
+        spacing_test,
+        turing_bound,
+        turing_test,
+    )
+
+    N = _check_level(level)
+    d = weyl_terms(N)
     if not (math.isfinite(T_min) and math.isfinite(T_max)) or T_min < 0 or T_max <= T_min:
         raise InputError(f"need 0 <= T_min < T_max, got T_min={T_min!r}, T_max={T_max!r}")
-    Rall = np.sort(np.asarray(found_R, dtype=float).ravel())
-    if Rall.size and (not np.all(np.isfinite(Rall)) or Rall[0] <= 0):
-        raise InputError("found_R must contain finite positive spectral parameters R")
+    if complete_to is None:
+        complete_to = T_max
+    if not (math.isfinite(complete_to) and complete_to >= T_max):
+        raise InputError(f"complete_to={complete_to!r} is not allowed; it must be >= T_max={T_max!r}")
+    for name, v in (("turing_z", turing_z), ("gap_fraction", gap_fraction), ("spacing_alpha", spacing_alpha)):
+        if not (isinstance(v, (int, float)) and math.isfinite(v) and v > 0):
+            raise InputError(f"{name}={v!r} is not allowed; use a positive number")
+    ent = as_entries(found)
+    Rall = ent.R
     below = int(np.sum(Rall <= T_min))
     R = Rall[(Rall > T_min) & (Rall <= T_max)]
-    W_min = float(weyl_count(level, T_min, oscillatory=oscillatory)) if T_min > 0 else 0.0
+    R_ext = Rall[(Rall > T_min) & (Rall <= complete_to)]
+    W_min = float(weyl_count(N, T_min, oscillatory=oscillatory)) if T_min > 0 else 0.0
     if count_below is not None:
         base = float(count_below)
+        known = True
     elif below > 0 or T_min == 0:
         base = float(below)
+        known = True
     else:
         base = W_min
+        known = False
 
     # window edges
     if window is None:
-        dens = float(weyl_density(level, max(T_max, 1.0)))
+        dens = float(weyl_density(N, max(T_max, 1.0)))
         width = max(0.5, 4.0 / max(dens, 1e-9))
         n = max(1, int(math.ceil((T_max - T_min) / width)))
         edges = np.linspace(T_min, T_max, n + 1)
@@ -628,36 +814,34 @@ def completeness(
         ):
             raise InputError("window edges must increase strictly from T_min to T_max")
 
-    W_edges = np.asarray(weyl_count(level, edges, oscillatory=oscillatory), dtype=float)
+    W_edges = np.asarray(weyl_count(N, edges, oscillatory=oscillatory), dtype=float)
     if T_min == 0:
         W_edges[0] = 0.0
 
     # midpoint remainder at each eigenvalue; equal values share the jump
     if R.size:
-        W_R = np.asarray(weyl_count(level, R, oscillatory=oscillatory), dtype=float)
+        W_R = np.asarray(weyl_count(N, R, oscillatory=oscillatory), dtype=float)
         left = np.searchsorted(R, R, side="left")
         right = np.searchsorted(R, R, side="right")
-        N_mid = base + 0.5 * (left + right)
-        S = N_mid - W_R
+        S = base + 0.5 * (left + right) - W_R
         mean = float(np.mean(S))
         rms = float(np.sqrt(np.mean(S**2)))
+        scale = float(1.4826 * np.median(np.abs(S - np.median(S)))) if S.size > 2 else 0.0
     else:
-        W_R = np.zeros(0)
         S = np.zeros(0)
-        mean = float("nan")
-        rms = float("nan")
+        mean = rms = float("nan")
+        scale = 0.0
 
     nwin = edges.size - 1
-    found = np.array([int(np.sum((R > edges[k]) & (R <= edges[k + 1]))) for k in range(nwin)])
+    found_w = np.array([int(np.sum((R > edges[k]) & (R <= edges[k + 1]))) for k in range(nwin)])
     expected = np.diff(W_edges)
-    deficit = expected - found
+    deficit = expected - found_w
     S_top = base + R.size - float(W_edges[-1])
-    # gap g (0..n) lies between R[g-1] and R[g] (T_min / T_max at the ends)
     gap_lo = np.concatenate([[T_min], R])
     gap_hi = np.concatenate([R, [T_max]])
 
+    # ---- 1. count test (change-point on the remainder values)
     def scores(Sc: np.ndarray, top: float) -> np.ndarray:
-        # C_g = sum_{j >= g} (S_j + 1/2) + (S(T_max) + 1/2), g = 0..n
         x = np.concatenate([Sc + 0.5, [top + 0.5]])
         return np.cumsum(x[::-1])[::-1]
 
@@ -666,43 +850,85 @@ def completeness(
     for k in range(nwin):
         ov = (gap_lo < edges[k + 1]) & (gap_hi > edges[k])
         drop_w[k] = float(np.min(C0[ov])) if np.any(ov) else 0.0
-
-    flagged = np.zeros(nwin, dtype=bool)
+    scale_model = float(remainder_scale(N, T_max))
+    count_active = scale_model <= _COUNT_RULE_MAX_SCALE
+    flag_count = np.zeros(nwin, dtype=bool)
+    research: list[list[tuple[float, float]]] = [[] for _ in range(nwin)]
     gaps: list[tuple[float, float]] = []
-    Sc = S.copy()
-    top = S_top
-    for _ in range(R.size + nwin):
-        C = scores(Sc, top)
-        g = int(np.argmin(C))
-        if not C[g] <= -drop_threshold:
-            break
-        ov = np.nonzero((edges[:-1] < gap_hi[g]) & (edges[1:] > gap_lo[g]))[0]
-        if ov.size == 0:  # pragma: no cover - every gap overlaps some window
-            break
-        # the gap is where the eigenvalue is missing; inside it, the windows with a
-        # deficit are the candidates (at least the one with the largest deficit)
-        cand = ov[deficit[ov] > 0.0]
-        if cand.size == 0:
-            cand = ov[[int(np.argmax(deficit[ov]))]]
-        flagged[cand] = True
-        gaps.append((float(gap_lo[g]), float(gap_hi[g])))
-        Sc[g:] += 1.0
-        top += 1.0
+    if count_active:
+        Sc = S.copy()
+        top = S_top
+        for _ in range(R.size + nwin):
+            C = scores(Sc, top)
+            g = int(np.argmin(C))
+            if not C[g] <= -drop_threshold:
+                break
+            ov = np.nonzero((edges[:-1] < gap_hi[g]) & (edges[1:] > gap_lo[g]))[0]
+            if ov.size == 0:  # pragma: no cover - every gap overlaps some window
+                break
+            cand = ov[deficit[ov] > 0.0]
+            if cand.size == 0:
+                cand = ov[[int(np.argmax(deficit[ov]))]]
+            for k in cand:
+                flag_count[k] = True
+                research[k].append((max(float(edges[k]), float(gap_lo[g])), min(float(edges[k + 1]), float(gap_hi[g]))))
+            gaps.append((float(gap_lo[g]), float(gap_hi[g])))
+            Sc[g:] += 1.0
+            top += 1.0
+
+    # ---- 2. Turing-style integral test
+    W_fun = lambda x: weyl_count(N, x, oscillatory=oscillatory)  # noqa: E731
+    tr = turing_test(N, R_ext, T_min, float(complete_to), W_fun,
+                     count_below=base if known else None, z=turing_z, extra_points=edges)
+    flag_turing = np.zeros(nwin, dtype=bool)
+    # a change located by the count test (a gap between two eigenvalues) is finer than the
+    # Turing interval around it: those Turing intervals add no flag
+    t_sus = [(a, b) for a, b in tr.suspect
+             if not any(ga < b and gb > a for ga, gb in gaps)]
+    for a, b in t_sus:
+        for k in range(nwin):
+            lo, hi = float(edges[k]), float(edges[k + 1])
+            if a < hi and b > lo:
+                flag_turing[k] = True
+                research[k].append((max(lo, a), min(hi, b)))
+    t_int = np.diff(tr.F_at(edges))
+    B_edges = np.asarray(turing_bound(N, edges[1:], turing_z), dtype=float)
+    mmin = [tr.missing_lower_bound(float(edges[k + 1])) for k in range(nwin)]
+    mmax = [tr.missing_upper_bound(float(edges[k + 1])) for k in range(nwin)]
+
+    # ---- 3. spacing test (windows of the report; class densities over the whole range)
+    span = (T_min, float(complete_to))
+    sp = [spacing_test(N, ent, float(edges[k]), float(edges[k + 1]), gap_fraction, span) for k in range(nwin)]
+    flag_spacing = np.array([s.applicable and s.n_gaps > 0 and s.p_value < spacing_alpha for s in sp])
+    for k in range(nwin):
+        if flag_spacing[k]:
+            research[k].append((float(edges[k]), float(edges[k + 1])))
 
     windows = []
     for k in range(nwin):
         hi = float(edges[k + 1])
         N_end = base + int(np.sum(R <= hi))
+        reasons = tuple(r for r, f in (("count", flag_count[k]), ("turing", flag_turing[k]),
+                                        ("spacing", flag_spacing[k])) if f)
+        merged: list[list[float]] = []
+        for a, b in sorted(research[k]):
+            if merged and a <= merged[-1][1] + 1e-12:
+                merged[-1][1] = max(merged[-1][1], b)
+            else:
+                merged.append([a, b])
         windows.append(
             CompletenessWindow(
-                float(edges[k]), hi, int(found[k]), float(expected[k]), float(deficit[k]),
-                N_end - float(W_edges[k + 1]), float(drop_w[k]), bool(flagged[k]),
+                float(edges[k]), hi, int(found_w[k]), float(expected[k]), float(deficit[k]),
+                N_end - float(W_edges[k + 1]), float(drop_w[k]), bool(reasons),
+                float(t_int[k]), float(B_edges[k]), int(mmin[k]), mmax[k],
+                sp[k].n_gaps, sp[k].small, float(sp[k].expected), float(sp[k].p_value),
+                reasons, tuple((float(a), float(b)) for a, b in merged),
             )
         )
 
     total_expected = float(W_edges[-1] - W_edges[0]) if T_min > 0 else float(W_edges[-1])
     return CompletenessReport(
-        level=d.level,
+        level=N,
         T_min=float(T_min),
         T_max=float(T_max),
         windows=tuple(windows),
@@ -715,4 +941,39 @@ def completeness(
         total_found=int(R.size),
         total_expected=total_expected,
         oscillatory=oscillatory,
+        remainder_scale=scale,
+        remainder_scale_model=scale_model,
+        count_test_active=bool(count_active),
+        turing_missing=tr.missing,
+        turing_surplus=tr.surplus,
+        turing_suspect=tr.suspect,
+        turing_offset_estimated=tr.offset_estimated,
+        complete_to=float(complete_to),
+        gap_fraction=float(gap_fraction),
+        spacing_alpha=float(spacing_alpha),
+        spacing_applicable=bool(sp[0].applicable) if sp else False,
     )
+
+
+def count_identity(level: int, forms: Sequence[Any], T: float):
+    """N_N(T) = sum_{M|N} sigma_0(N/M) N_M^new(T), per divisor M; see
+    :func:`maasscomp.spectrum.spectral_checks.count_identity`."""
+    from maasscomp.spectrum.spectral_checks import count_identity as _ci
+
+    return _ci(level, forms, T)
+
+
+def turing_bound(level: int, T: float | np.ndarray, z: float = 4.0):
+    """Bound B on |int S| used by the Turing test; see
+    :func:`maasscomp.spectrum.spectral_checks.turing_bound`."""
+    from maasscomp.spectrum.spectral_checks import turing_bound as _tb
+
+    return _tb(_check_level(level), T, z)
+
+
+def __getattr__(name: str):
+    if name == "CountIdentityRow":
+        from maasscomp.spectrum.spectral_checks import CountIdentityRow
+
+        return CountIdentityRow
+    raise AttributeError(name)
