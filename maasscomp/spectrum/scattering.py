@@ -714,6 +714,19 @@ class ScatteringDeterminant:
     primes: tuple[_PrimePhase, ...]
     log_conductor: float
 
+    def conductor_exponents(self) -> dict[int, float]:
+        """A_N = prod_p p^{a_p}: a_p = sum_chi n_chi v_p(f_chi) - (turns of Rt_p per period)/2."""
+        out: dict[int, float] = {}
+        for pp in self.primes:
+            a = -pp.winding / 2.0
+            for f, _, n in self.characters:
+                m = f
+                while m % pp.p == 0:
+                    a += n
+                    m //= pp.p
+            out[pp.p] = a
+        return out
+
     @property
     def n_trivial(self) -> int:
         """n_chi of the trivial character (the number of zeta-ratio factors)."""
