@@ -284,10 +284,11 @@ def turing_test(
 ) -> TuringResult:
     """Integral test on [T_min, T_end] (see the module docstring).
 
-    Misses are located one at a time: while the largest drawdown of F (F(s) - F(t), s < t)
-    exceeds B, the change point u minimising int_u^{T_end} (S + 1/2) over the gaps of the
-    list is taken as a missed form (S is raised by 1 above it); false entries likewise
-    with drawups and S - 1/2.  The suspect interval around each located change point is
+    Misses are located one at a time: while the largest drawdown or drawup of F exceeds B,
+    the unit step of S (down for a missed form, up for a false entry) that fits S best in
+    the least-squares sense is located (u minimising int_u^{T_end} (S + 1/2) for a miss
+    with the count below the range known; with it unknown the base level is fitted as
+    well), S is corrected, and the kind of step that shrinks the excess most is kept.  The suspect interval around each located change point is
     [u - B, u + B] (the location is uncertain by about B: F changes by B within that
     distance of the true position).
     """
@@ -316,28 +317,41 @@ def turing_test(
         return (float(np.max(np.maximum.accumulate(w) - w - bound)),
                 float(np.max(w - np.minimum.accumulate(w) - bound)))
 
-    ex_d, ex_u = excess_of(work)
-    for _ in range(R.size + 2):
-        excess = max(ex_d, ex_u)
-        if excess <= 0:
-            break
-        sign = -1 if ex_d >= ex_u else +1
+    def correct(w: np.ndarray, sign: int) -> tuple[np.ndarray, float]:
         # C(u) = int_u^{T_end} (S + 1/2) (missing) or -int_u^{T_end} (S - 1/2) (surplus)
-        Fu = np.interp(cand, t, work)
-        tail = work[-1] - Fu
+        Fu = np.interp(cand, t, w)
+        tail = w[-1] - Fu
         length = T_end - cand
-        C = tail + 0.5 * length if sign < 0 else -(tail - 0.5 * length)
+        # least-squares fit of a unit step at u; with the offset unknown it is fitted too,
+        # which turns the drift term length/2 into length (1 - length/L)/2
+        half = 0.5 * length * (1.0 - length / (t[-1] - t[0])) if offset_est else 0.5 * length
+        C = tail + half if sign < 0 else -(tail - half)
         u = float(cand[int(np.argmin(C))])
         step = np.where(t > u, t - u, 0.0)
-        trial = work + step if sign < 0 else work - step
+        trial = w + step if sign < 0 else w - step
         if offset_est:
             L = t[-1] - t[0]
             trial = trial - (trial[-1] / L) * (t - t[0])
-        nd, nu = excess_of(trial)
-        if max(nd, nu) >= excess:
-            break  # the correction does not help: noise, not a step
+        return trial, u
+
+    excess = max(excess_of(work))
+    for _ in range(R.size + 2):
+        if excess <= 0:
+            break
+        # try both kinds of change point; keep the one that shrinks the excess most (with
+        # the offset unknown a miss shows as a peak of F with a drawup before it and a
+        # drawdown after it, so the larger of the two does not tell the kind)
+        best = None
+        for sign in (-1, +1):
+            trial, u = correct(work, sign)
+            ex = max(excess_of(trial))
+            if best is None or ex < best[0]:
+                best = (ex, sign, u, trial)
+        ex, sign, u, trial = best
+        if ex >= excess:
+            break  # no single change point helps: noise, not a step
         (missing if sign < 0 else surplus).append(u)
-        work, ex_d, ex_u = trial, nd, nu
+        work, excess = trial, ex
     suspect = []
     for u in missing + surplus:
         Bu = float(np.interp(u, t, bound))
