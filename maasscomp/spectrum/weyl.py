@@ -734,8 +734,10 @@ def completeness(
         chosen so that each window expects about 4 eigenvalues, and at least width 0.5.
     count_below : int, optional
         Number of eigenvalues with R <= T_min.  Default: the number of supplied values
-        <= T_min if T_min is 0 or any are supplied; otherwise unknown (the remainder is
-        measured relative to W(T_min) and the Turing test removes the mean of S).
+        <= T_min if T_min is 0, or if that number agrees with W(T_min) within
+        max(3, 5 x the expected remainder scale); otherwise unknown (the remainder is
+        measured relative to W(T_min) and the Turing test removes the mean of S, so only
+        changes inside the range are visible).
     oscillatory : bool, optional
         Use the oscillating terms of Weyl's law (default True).
     drop_threshold : float, optional
@@ -783,7 +785,9 @@ def completeness(
     if count_below is not None:
         base = float(count_below)
         known = True
-    elif below > 0 or T_min == 0:
+    elif T_min == 0 or (below > 0 and abs(below - W_min) <= max(3.0, 5.0 * float(remainder_scale(N, T_min)))):
+        # the supplied values below T_min are taken as the count only when Weyl's law
+        # agrees (a list that starts above R = 0 would otherwise give a wrong base)
         base = float(below)
         known = True
     else:
