@@ -57,6 +57,21 @@ def _commit() -> str:
         return "unknown"
 
 
+SEARCH_CODE = ("maasscomp/special", "maasscomp/groups", "maasscomp/hejhal", "maasscomp/spectrum/search.py",
+               "maasscomp/spectrum/general.py", "maasscomp/spectrum/hecke.py", "maasscomp/spectrum/classify.py",
+               "maasscomp/spectrum/form.py")
+
+
+def _search_code_unchanged(commit: str) -> str:
+    """'yes' if the search code of ``commit`` equals the working tree now, else 'no'."""
+    c = commit.split("+")[0]
+    try:
+        r = subprocess.run(["git", "-C", str(ROOT), "diff", "--quiet", c, "--", *SEARCH_CODE])
+        return "yes" if r.returncode == 0 else "no"
+    except Exception:  # pragma: no cover
+        return "unknown"
+
+
 def _form_row(f) -> dict:
     ce = np.asarray(f.coeff_errors)
     return {
@@ -85,7 +100,9 @@ def run(args: argparse.Namespace) -> int:
     meta = {"level": args.level, "step": args.step, "y1": args.y1, "y2": args.y2,
             "chunk": args.chunk, "commit": _commit(),
             "method": "search_classes" if g.is_squarefree else "search_window_general"}
-    (wd / "settings.json").write_text(json.dumps(meta))
+    meta["lo"], meta["hi"] = args.lo, args.hi
+    # one settings file per run (range), so runs of one tag over different ranges coexist
+    (wd / f"settings_{args.lo:.6f}_{args.hi:.6f}.json").write_text(json.dumps(meta))
     n = max(1, int(round((args.hi - args.lo) / args.chunk)))
     edges = np.linspace(args.lo, args.hi, n + 1)
     for a, b in zip(edges[:-1], edges[1:]):
@@ -107,7 +124,7 @@ def run(args: argparse.Namespace) -> int:
                 rejected += sum(1 for c in r.candidates if not c.accepted)
         rec = {"lo": float(a), "hi": float(b), "forms": [_form_row(f) for f in forms],
                "rejected": rejected, "wall": time.perf_counter() - t0,
-               "cpu": time.process_time() - c0}
+               "cpu": time.process_time() - c0, "settings": meta}
         tmp = out.with_suffix(".tmp")
         tmp.write_text(json.dumps(rec))
         os.replace(tmp, out)
@@ -116,18 +133,37 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _load(wd: Path, lo: float, hi: float) -> tuple[dict, list[dict], float, float]:
-    meta = json.loads((wd / "settings.json").read_text())
+def _settings_for(wd: Path, a: float, b: float) -> dict:
+    """Settings of the run that wrote chunk (a, b]: the smallest run range containing it."""
+    best = None
+    for p in wd.glob("settings_*.json"):
+        m = json.loads(p.read_text())
+        if m["lo"] - 1e-9 <= a and b <= m["hi"] + 1e-9:
+            if best is None or m["hi"] - m["lo"] < best["hi"] - best["lo"]:
+                best = m
+    if best is None:
+        raise SystemExit(f"no settings file in {wd} covers the chunk ({a}, {b}]")
+    return best
+
+
+def _load(wd: Path, lo: float, hi: float) -> tuple[list[dict], list[dict], float, float]:
     rows, wall, cpu = [], 0.0, 0.0
     covered = []
+    used: list[dict] = []
     for p in sorted(wd.glob("*.json")):
-        if p.name == "settings.json":
+        if p.name.startswith("settings"):
             continue
         rec = json.loads(p.read_text())
+        if rec["hi"] <= lo + 1e-9 or rec["lo"] >= hi - 1e-9:
+            continue
         covered.append((rec["lo"], rec["hi"]))
         wall += rec["wall"]
         cpu += rec["cpu"]
         rows += [r for r in rec["forms"] if lo <= r["R"] <= hi]
+        m = rec.get("settings") or _settings_for(wd, rec["lo"], rec["hi"])
+        key = {k: m[k] for k in ("step", "y1", "y2", "chunk", "commit", "method")}
+        if key not in used:
+            used.append(key)
     covered.sort()
     pos = lo
     for a, b in covered:
@@ -136,7 +172,7 @@ def _load(wd: Path, lo: float, hi: float) -> tuple[dict, list[dict], float, floa
         pos = max(pos, b)
     if pos < hi - 1e-9:
         raise SystemExit(f"run {wd.name} does not cover [{lo}, {hi}] (covered up to {pos})")
-    return meta, rows, wall, cpu
+    return used, rows, wall, cpu
 
 
 def _dedup(rows: list[dict]) -> list[dict]:
@@ -193,12 +229,16 @@ def merge(args: argparse.Namespace) -> int:
         f"# computed here with maasscomp ({meta_method(runs)}), script {SCRIPT}, as the union of "
         f"{len(tags)} independent runs:",
     ]
-    for t, (meta, rows, wall, cpu) in runs.items():
-        header.append(
-            f"#   run {t}: grid step {meta['step']:g}, heights Y1 = {meta['y1']} Y0 and Y2 = {meta['y2']} Y0, "
-            f"chunks of {meta['chunk']:g}, commit {meta['commit']}, {len(per_run[t])} forms, "
-            f"{cpu / 3600:.2f} CPU h")
+    for t, (metas, rows, wall, cpu) in runs.items():
+        desc = "; ".join(f"grid step {m['step']:g}, heights Y1 = {m['y1']} Y0 and Y2 = {m['y2']} Y0, "
+                         f"chunks of {m['chunk']:g}, commit {m['commit']}" for m in metas)
+        header.append(f"#   run {t}: {desc}; {len(per_run[t])} forms, {cpu / 3600:.2f} CPU h")
     header += [
+        "# '+modified' marks uncommitted changes in the worktree at run time; the search code ("
+        + ", ".join(SEARCH_CODE) + ") of every run's commit equals that of "
+        + _commit().split("+")[0] + ": "
+        + ", ".join(f"run {t} " + "/".join(_search_code_unchanged(m["commit"]) for m in v[0])
+                    for t, v in runs.items()) + ".",
         "# Every form passed the search's confirmation: the two-height secant polish of the det root, "
         "agreement of the",
         "# coefficients solved at two heights (coeff_diff: largest |c(2..8)| difference at the final "
@@ -227,7 +267,7 @@ def merge(args: argparse.Namespace) -> int:
 
 
 def meta_method(runs: dict) -> str:
-    m = {meta["method"] for meta, _, _, _ in runs.values()}
+    m = {meta["method"] for metas, _, _, _ in runs.values() for meta in metas}
     names = {"search_classes": "maasscomp.spectrum.search.search_classes",
              "search_window_general": "maasscomp.spectrum.general.search_window_general"}
     return ", ".join(names[x] for x in sorted(m))
