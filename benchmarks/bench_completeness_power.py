@@ -193,6 +193,20 @@ def main() -> None:
                   f"search-again intervals); by test: {by_test}")
         totals["single"] += len(pick)
         totals["single_hit"] += hit
+        # ---- edge effect: a miss at distance d below the top of the list (no look-ahead)
+        if hi - lo >= 8 * B:
+            msg = []
+            for d in (0.25 * B, 0.5 * B, B, 1.5 * B, 2 * B):
+                xs = rng.choice(R[(R > lo + 4 * B) & (R < hi - d)], size=min(30, len(R)), replace=False)
+                hits = 0
+                for x in xs:
+                    k = int(np.searchsorted(R, x))
+                    rest = forms[:k] + forms[k + 1:]
+                    a, b = x - 4 * B, x + d
+                    rep = completeness(level, rest, a, b, count_below=None, complete_to=b)
+                    hits += any(w.T_lo < x <= w.T_hi for w in rep.flagged)
+                msg.append(f"d = {d:.2f}: {hits}/{len(xs)}")
+            print("   miss at distance d below the top of the list (count below unknown): " + ", ".join(msg))
         # ---- close pairs
         pairs = []
         for lab in sorted({f.label for f in forms}):
