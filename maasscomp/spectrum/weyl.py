@@ -475,7 +475,9 @@ class CompletenessWindow:
         Largest net number that can be missing below T_hi (needs the list beyond T_hi;
         0 certifies the count below T_hi up to the bound; None: no data beyond T_hi).
     n_gaps, small_gaps : int
-        Same-class gaps in the window and those below ``gap_fraction`` x mean spacing.
+        Same-class gaps in the spacing block of this window (consecutive windows with at
+        least ``spacing_min_gaps`` gaps together) and those below ``gap_fraction`` x mean
+        spacing.
     small_gaps_expected : float
         Poisson expectation n_gaps (1 - exp(-gap_fraction)).
     spacing_p : float
@@ -684,6 +686,7 @@ def completeness(
     turing_z: float = 4.0,
     gap_fraction: float = 0.1,
     spacing_alpha: float = 0.01,
+    spacing_min_gaps: int = 80,
 ) -> CompletenessReport:
     """Test a list of eigenvalues for completeness against Weyl's law, window by window.
 
@@ -714,7 +717,8 @@ def completeness(
        an upper bound.
     3. **spacing** (:func:`maasscomp.spectrum.spectral_checks.spacing_test`): too few
        same-class gaps below ``gap_fraction`` x the mean spacing (Poisson expectation,
-       p-value below ``spacing_alpha``) flags the window; re-search the whole window.
+       p-value below ``spacing_alpha``) in a block of consecutive windows with at least
+       ``spacing_min_gaps`` gaps flags the block's windows; re-search them whole.
 
     Parameters
     ----------
@@ -752,6 +756,10 @@ def completeness(
         Small gaps are those below this fraction of the mean spacing (default 0.1).
     spacing_alpha : float, optional
         Flag when P(Binomial <= small gaps) is below this (default 0.01).
+    spacing_min_gaps : int, optional
+        Least number of same-class gaps per spacing block (default 80: with the default
+        fraction 0.1 a block expects about 8 small gaps, and losing most of them gives
+        p < 0.01).
 
     Returns
     -------
@@ -773,7 +781,8 @@ def completeness(
         complete_to = T_max
     if not (math.isfinite(complete_to) and complete_to >= T_max):
         raise InputError(f"complete_to={complete_to!r} is not allowed; it must be >= T_max={T_max!r}")
-    for name, v in (("turing_z", turing_z), ("gap_fraction", gap_fraction), ("spacing_alpha", spacing_alpha)):
+    for name, v in (("turing_z", turing_z), ("gap_fraction", gap_fraction), ("spacing_alpha", spacing_alpha),
+                    ("spacing_min_gaps", spacing_min_gaps)):
         if not (isinstance(v, (int, float)) and math.isfinite(v) and v > 0):
             raise InputError(f"{name}={v!r} is not allowed; use a positive number")
     ent = as_entries(found)
@@ -900,13 +909,34 @@ def completeness(
     mmin = [tr.missing_lower_bound(float(edges[k + 1])) for k in range(nwin)]
     mmax = [tr.missing_upper_bound(float(edges[k + 1])) for k in range(nwin)]
 
-    # ---- 3. spacing test (windows of the report; class densities over the whole range)
+    # ---- 3. spacing test on blocks of consecutive windows with at least spacing_min_gaps
+    # same-class gaps (a window of a few forms has no power); class densities from the
+    # whole range
     span = (T_min, float(complete_to))
-    sp = [spacing_test(N, ent, float(edges[k]), float(edges[k + 1]), gap_fraction, span) for k in range(nwin)]
-    flag_spacing = np.array([s.applicable and s.n_gaps > 0 and s.p_value < spacing_alpha for s in sp])
-    for k in range(nwin):
-        if flag_spacing[k]:
-            research[k].append((float(edges[k]), float(edges[k + 1])))
+    sp_w = [spacing_test(N, ent, float(edges[k]), float(edges[k + 1]), gap_fraction, span) for k in range(nwin)]
+    blocks: list[tuple[int, int]] = []
+    k0 = 0
+    while k0 < nwin:
+        k1 = k0
+        while k1 + 1 < nwin and spacing_test(N, ent, float(edges[k0]), float(edges[k1 + 1]), gap_fraction,
+                                              span).n_gaps < spacing_min_gaps:
+            k1 += 1
+        blocks.append((k0, k1))
+        k0 = k1 + 1
+    if len(blocks) > 1 and spacing_test(N, ent, float(edges[blocks[-1][0]]), float(edges[-1]), gap_fraction,
+                                        span).n_gaps < spacing_min_gaps:
+        # a short last block joins the one before
+        blocks[-2:] = [(blocks[-2][0], blocks[-1][1])]
+    sp = list(sp_w)
+    flag_spacing = np.zeros(nwin, dtype=bool)
+    for k0, k1 in blocks:
+        res = spacing_test(N, ent, float(edges[k0]), float(edges[k1 + 1]), gap_fraction, span)
+        bad = res.applicable and res.n_gaps > 0 and res.p_value < spacing_alpha
+        for k in range(k0, k1 + 1):
+            sp[k] = res
+            if bad:
+                flag_spacing[k] = True
+                research[k].append((float(edges[k]), float(edges[k + 1])))
 
     windows = []
     for k in range(nwin):
