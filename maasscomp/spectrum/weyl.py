@@ -117,6 +117,10 @@ class WeylTerms:
         is computed (:mod:`maasscomp.spectrum.scattering`).
     """
 
+    @property
+    def squarefree(self) -> bool:
+        return self.closed_form
+
     level: int
     mu: int
     n_cusps: int
@@ -552,8 +556,8 @@ class CompletenessReport:
         r.m.s. of S expected for a complete list at T_max
         (:func:`maasscomp.spectrum.spectral_checks.remainder_scale`).
     count_test_active : bool
-        The count (change-point) rule is applied only while ``remainder_scale_model``
-        <= 0.5.
+        The count (change-point) rule is applied only at squarefree levels (where it was
+        measured) and while ``remainder_scale_model`` <= 0.5.
     turing_missing, turing_surplus : tuple of float
         Positions located by the Turing test (missed forms; falsely accepted entries).
     turing_suspect : tuple of (float, float)
@@ -638,8 +642,12 @@ class CompletenessReport:
     def as_text(self, *, limitations: bool = True) -> str:
         """A plain-text table, one line per window, then the located positions and (by
         default) what the tests can and cannot show."""
-        ct = ("on" if self.count_test_active else
-              f"off: expected remainder scale {self.remainder_scale_model:.2f} > {_COUNT_RULE_MAX_SCALE}")
+        if self.count_test_active:
+            ct = "on"
+        elif self.remainder_scale_model > _COUNT_RULE_MAX_SCALE:
+            ct = f"off: expected remainder scale {self.remainder_scale_model:.2f} > {_COUNT_RULE_MAX_SCALE}"
+        else:
+            ct = "off: level not squarefree (oldform multiplicities make S jump by several units)"
         B = self.windows[-1].turing_bound if self.windows else float("nan")
         lines = [
             f"level {self.level}: {self.total_found} found, {self.total_expected:.2f} expected "
@@ -704,10 +712,10 @@ def completeness(
        standard change-point statistic).  While C_{g*} <= -``drop_threshold`` for the
        smallest C_g*, the gap is reported in ``suspect_gaps``, the windows overlapping it
        with a positive deficit (else the one with the largest deficit) are flagged, S above
-       the gap is raised by 1 and the scan repeats.  Applied only while the expected r.m.s.
-       of the remainder at T_max is <= 0.5 (PSL(2,Z) up to R ~ 35; it was measured on
-       PSL(2,Z) below R = 20, where every single and every pair of deleted eigenvalues is
-       located with no flag on the complete list).
+       the gap is raised by 1 and the scan repeats.  Applied only at squarefree levels and
+       while the expected r.m.s. of the remainder at T_max is <= 0.5 (PSL(2,Z) up to
+       R ~ 35; it was measured on PSL(2,Z) below R = 20, where every single and every pair
+       of deleted eigenvalues is located with no flag on the complete list, and at level 2).
     2. **turing** (:func:`maasscomp.spectrum.spectral_checks.turing_test`): the integral of
        S over any interval of a complete list stays within +-B (B = ``turing_z`` sigma_F,
        sigma_F calibrated on complete lists computed here); a missed form adds slope -1 to
@@ -864,7 +872,11 @@ def completeness(
         ov = (gap_lo < edges[k + 1]) & (gap_hi > edges[k])
         drop_w[k] = float(np.min(C0[ov])) if np.any(ov) else 0.0
     scale_model = float(remainder_scale(N, T_max))
-    count_active = scale_model <= _COUNT_RULE_MAX_SCALE
+    # measured at levels 1 and 2; at non-squarefree levels the oldforms come with
+    # multiplicities up to sigma_0(N) in one parity class, so S jumps by 2-4 at once and the
+    # change-point rule raises false alarms (level 4 below R = 12: S(12) = -1.5 for a list
+    # checked complete by a second, finer search)
+    count_active = scale_model <= _COUNT_RULE_MAX_SCALE and d.squarefree
     flag_count = np.zeros(nwin, dtype=bool)
     research: list[list[tuple[float, float]]] = [[] for _ in range(nwin)]
     gaps: list[tuple[float, float]] = []
