@@ -11,8 +11,11 @@ forms_in_window, nearest_forms, NearResult
     Forms near a target R, with the Weyl expectation.
 complete_search, CompleteSearch
     Window search with Weyl's-law completeness check and automatic re-search.
-weyl_count, weyl_density, expected_in_window, weyl_constant, completeness
-    Weyl's law with lower-order terms and the completeness report.
+weyl_count, weyl_density, expected_in_window, weyl_constant, weyl_terms, completeness,
+count_identity
+    Weyl's law with lower-order terms for every level (scattering data in
+    ``spectrum.scattering``), the completeness report (window counts, Turing-style integral
+    test, small-gap test; ``spectrum.spectral_checks``) and the old/new count identity.
 functional_equation_check, predicted_root_number, sym2_L1, rankin_selberg_norm2
     L-function checks and L(1, sym^2 f).
 refine_high_precision, extend_coefficients
@@ -44,11 +47,14 @@ from maasscomp.spectrum.search import (
 from maasscomp.spectrum.weyl import (
     CompletenessReport,
     CompletenessWindow,
+    WeylTerms,
     completeness,
+    count_identity,
     expected_in_window,
     weyl_constant,
     weyl_count,
     weyl_density,
+    weyl_terms,
 )
 
 

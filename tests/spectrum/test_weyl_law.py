@@ -10,7 +10,7 @@ import pytest
 
 from maasscomp.errors import InputError
 from maasscomp.spectrum import weyl
-from maasscomp.spectrum.weyl import expected_in_window, weyl_constant, weyl_count, weyl_density
+from maasscomp.spectrum.weyl import expected_in_window, weyl_constant, weyl_count, weyl_density, weyl_terms
 
 
 def _published_level1(T: float) -> float:
@@ -113,7 +113,7 @@ def test_vectorised_matches_scalar():
 
 
 @pytest.mark.parametrize("osc", [False, True])
-@pytest.mark.parametrize("N", [1, 2, 15])
+@pytest.mark.parametrize("N", [1, 2, 15, 4, 25])
 def test_density_is_derivative(N, osc):
     T = 23.7
     h = 1e-5
@@ -130,19 +130,45 @@ def test_expected_in_window():
         expected_in_window(1, 5.0, 4.0)
 
 
-@pytest.mark.parametrize("bad", [4, 12, 18, 0, -3, 2.5, True])
+@pytest.mark.parametrize("bad", [0, -3, 2.5, True, "4"])
 def test_bad_levels_raise(bad):
     with pytest.raises(InputError) as ei:
         weyl_count(bad, 10.0)
     assert str(bad) in str(ei.value) or repr(bad) in str(ei.value)
 
 
-def test_non_squarefree_message_says_not_available():
-    with pytest.raises(InputError, match="squarefree"):
-        weyl_count(9, 10.0)
+def test_non_squarefree_levels_are_available():
+    # every level has a Weyl's law now; the leading term is still area/(4 pi) T^2
+    for N in (4, 9, 12, 18):
+        assert np.isfinite(weyl_count(N, 20.0))
 
 
 @pytest.mark.parametrize("bad", [-1.0, float("nan"), float("inf")])
 def test_bad_T_raise(bad):
     with pytest.raises(InputError):
         weyl_count(1, bad)
+
+
+def test_terms_of_non_squarefree_levels():
+    """Index, cusps and elliptic points (Diamond & Shurman 2005, §3.8-3.9: N = 4: mu = 6,
+    h = 3, nu2 = nu3 = 0; N = 9: mu = 12, h = 4; N = 25: mu = 30, h = 6, nu2 = 2) and the
+    scattering data derived by the project (docs/theory-additions/weyl.md §W3)."""
+    t4, t9, t25 = weyl_terms(4), weyl_terms(9), weyl_terms(25)
+    assert (t4.mu, t4.n_cusps, t4.nu2, t4.nu3) == (6, 3, 0, 0)
+    assert (t9.mu, t9.n_cusps) == (12, 4) and (t25.mu, t25.n_cusps, t25.nu2) == (30, 6, 2)
+    assert t4.log_conductor == pytest.approx(5 * math.log(2), abs=1e-9)
+    assert t9.log_conductor == pytest.approx(7 * math.log(3), abs=1e-9)
+    assert (t25.minus_one_multiplicity, t25.n_zeta) == (5, 4)
+    # C = -mu/144 + nu2/8 + 2 nu3/9 - h/4 + (k - n_1)/2 - 1
+    assert t25.constant == pytest.approx(-30 / 144 + 2 / 8 - 6 / 4 + 0.5 - 1)
+    assert "Tr(I - Phi(1/2))" in t4.as_text()
+
+
+@pytest.mark.parametrize("N", [4, 9, 25])
+def test_general_levels_leading_terms(N):
+    # area term mu T^2/12 and the cusp term -(2h/pi) T log T dominate (Iwaniec, Ch. 11)
+    t = weyl_terms(N)
+    T = 1e4
+    smooth = weyl_count(N, T, oscillatory=False)
+    lead = t.mu / 12 * T**2 - 2 * t.n_cusps / math.pi * T * math.log(T)
+    assert abs(smooth - lead) < 10 * T
