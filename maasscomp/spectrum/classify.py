@@ -32,6 +32,8 @@ class Classification:
     old_from_level: int | None  # smallest level M < N at which R is an eigenvalue
     old_relation_residual: float | None  # max_p |c(p) - a_g(p) - eps_p sqrt p| over p | N/M
     newform_residual: float  # max_p |c(p) + eps_p / sqrt p| over p | N
+    al_residual: float  # the Atkin-Lehner relations that fit the form's type (see classify)
+    al_relations: str  # which relations al_residual checks
 
 
 def eigen_at_level(M: int, parity: str, al_signs: dict[int, int], R: float, *, tol: float = 1e-7,
@@ -67,10 +69,22 @@ def classify(level: int, symmetry: SymmetryClass, R: float, coeffs: np.ndarray) 
     R : float
     coeffs : ndarray
         c(1..) at infinity, c(1) = 1.
+
+    Notes
+    -----
+    ``al_residual`` checks the Atkin--Lehner relations valid for the form's type: for a
+    newform c(p) = -eps_p/sqrt(p) at every p | N; for an oldform from level M (built from
+    a newform g, Atkin & Lehner 1970) c(p) = a_g(p) + eps_p sqrt(p) at p | N/M and the
+    newform relation of g, c(p) = -eps_p/sqrt(p), at p | M. (The newform relation alone is
+    meaningless for oldforms: it fails there by design.)
     """
     signs = dict(symmetry.al_signs)
     primes = sorted(signs)
-    new_res = max((abs(coeffs[p - 1] + signs[p] / math.sqrt(p)) for p in primes if p <= coeffs.size), default=0.0)
+
+    def new_rel(ps) -> float:
+        return max((abs(coeffs[p - 1] + signs[p] / math.sqrt(p)) for p in ps if p <= coeffs.size), default=0.0)
+
+    new_res = new_rel(primes)
     for M in divisors(level)[:-1]:
         ag = eigen_at_level(M, symmetry.parity, signs, R)
         if ag is None:
@@ -79,5 +93,11 @@ def classify(level: int, symmetry: SymmetryClass, R: float, coeffs: np.ndarray) 
             (abs(coeffs[p - 1] - ag[p - 1] - signs[p] * math.sqrt(p)) for p in primes if M % p and p <= min(ag.size, coeffs.size)),
             default=0.0,
         )
-        return Classification(False, M, float(rel), float(new_res))
-    return Classification(True, None, None, float(new_res))
+        # an oldform from level M keeps the newform relation of g at the primes dividing M
+        al = max(rel, new_rel([p for p in primes if M % p == 0]))
+        return Classification(False, M, float(rel), float(new_res), float(al),
+                              f"oldform from level {M}: c(p) = a_g(p) + eps_p sqrt(p) for p | {level // M}, "
+                              f"c(p) = -eps_p/sqrt(p) for p | {M}" if M > 1 else
+                              f"oldform from level 1: c(p) = a_g(p) + eps_p sqrt(p) for p | {level}")
+    return Classification(True, None, None, float(new_res), float(new_res),
+                          "newform: c(p) = -eps_p/sqrt(p) for p | N")
