@@ -314,14 +314,16 @@ class MultiCuspSystem:
                 w = np.vstack([(1.0 / Q) * np.cos(TWO_PI * np.outer(n, x)),
                                (1.0 / Q) * np.sin(TWO_PI * np.outer(n, x))])
             inv[blk.offset : blk.offset + w.shape[0], cols] = w
-        # per target block: the points expressed through its unknowns, their inversion
-        # weights and the R-independent factor sqrt(y*) cs(.) of each column
+        # per (target block, owner block): the points owned by one block (whose equations use
+        # them) and expressed through the unknowns of another, the owner's inversion weights
+        # at those points and the R-independent factor sqrt(y*) cs(.) of each target column.
+        # A row of the matrix only involves the points of its own block, so A is assembled
+        # block by block (n_blocks times fewer operations than one dense product).
         self._parts = []
         sq = np.sqrt(s.ys)
         for b, blk in enumerate(self.blocks):
             sel = np.nonzero(s.target == b)[0]
             if sel.size == 0:
-                self._parts.append((blk, sel, None, None))
                 continue
             xs = s.xs[sel]
             if blk.kind == "self":
@@ -333,7 +335,13 @@ class MultiCuspSystem:
                 sgn = np.where(is_partner, self.eps, 1.0) * sq[sel]
                 arg = TWO_PI * np.outer(xx, n)
                 ph = np.stack([sgn[:, None] * np.cos(arg), sgn[:, None] * np.sin(arg)])
-            self._parts.append((blk, sel, np.ascontiguousarray(inv[:, sel]), ph))
+            for o, own in enumerate(self.blocks):
+                pick = np.nonzero(s.owner[sel] == o)[0]
+                if pick.size == 0:
+                    continue
+                rows = slice(own.offset, own.offset + (M0 if own.kind == "self" else 2 * M0))
+                W = np.ascontiguousarray(inv[rows][:, sel[pick]])
+                self._parts.append((blk, rows, sel[pick], W, np.ascontiguousarray(ph[:, pick])))
 
     # ------------------------------------------------------------------------------------
     @property
@@ -353,14 +361,12 @@ class MultiCuspSystem:
         P = self.samples.n_points
         kb = np.asarray(k[: P * M0]).reshape(P, M0)
         A = np.zeros((self.size, self.size))
-        for blk, sel, W, ph in self._parts:
-            if W is None:
-                continue
-            K = kb[sel]
+        for blk, rows, pts, W, ph in self._parts:
+            K = kb[pts]
             off = blk.offset
-            A[:, off : off + M0] = -(W @ (K * ph[0]))
+            A[rows, off : off + M0] -= W @ (K * ph[0])
             if blk.kind == "pair":
-                A[:, off + M0 : off + 2 * M0] = -(W @ (K * ph[1]))
+                A[rows, off + M0 : off + 2 * M0] -= W @ (K * ph[1])
         diag = math.sqrt(Y) * np.asarray(k[P * M0 :])
         for blk in self.blocks:
             reps = 1 if blk.kind == "self" else 2

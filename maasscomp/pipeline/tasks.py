@@ -128,10 +128,10 @@ class SearchTask:
     def run(self) -> "SearchOutput":
         from maasscomp.groups import gamma0
         from maasscomp.hejhal.types import SymmetryClass
-        from maasscomp.spectrum.search import search
+        from maasscomp.spectrum.search import search_forms
 
         c = self.chunk
-        res = search(gamma0(self.level), c.search_lo, c.search_hi,
+        res = search_forms(gamma0(self.level), c.search_lo, c.search_hi,
                      settings=search_settings(self.eps, self.n_coeffs, self.step),
                      classes=[SymmetryClass.from_label(self.label)])
         return self.output_from(res)
@@ -174,11 +174,11 @@ class RecheckTask:
         from maasscomp.groups import gamma0
         from maasscomp.hejhal.types import SymmetryClass
         from maasscomp.spectrum.complete import research_settings
-        from maasscomp.spectrum.search import search
+        from maasscomp.spectrum.search import search_forms
 
         settings = research_settings(search_settings(self.eps, self.n_coeffs, self.step), 1)
         syms = [SymmetryClass.from_label(lab) for lab in self.labels]
-        res = search(gamma0(self.level), max(self.lo - OVERLAP, 0.5 * self.lo), self.hi + OVERLAP,
+        res = search_forms(gamma0(self.level), max(self.lo - OVERLAP, 0.5 * self.lo), self.hi + OVERLAP,
                      settings=settings, classes=syms)
         forms = tuple(f for f in res.forms if self.lo <= f.R <= self.hi)
         rejected = tuple((c.R, c.reason) for c in res.candidates
@@ -311,7 +311,7 @@ def execute_group(group: TaskGroup) -> list[TaskOutcome]:
     """Run the tasks of a group in this process (see :class:`TaskGroup`).
 
     The classes of a level and chunk are searched together by
-    :func:`maasscomp.spectrum.search.search`, which shares the sample points and K-Bessel
+    :func:`maasscomp.spectrum.search.search_forms`, which shares the sample points and K-Bessel
     values between them (the result of each class is the one a search of that class alone
     gives: the expansion points depend on the level, not on the classes searched); the
     time of the joint search is shared equally among the tasks.
@@ -327,14 +327,14 @@ def execute_group(group: TaskGroup) -> list[TaskOutcome]:
         return [execute(t) for t in tasks]
     from maasscomp.groups import gamma0
     from maasscomp.hejhal.types import SymmetryClass
-    from maasscomp.spectrum.search import search
+    from maasscomp.spectrum.search import search_forms
 
     t0 = time.perf_counter()
     where = f"{socket.gethostname()}:{os.getpid()}"
     syms = [SymmetryClass.from_label(t.label) for t in tasks]
     c = first.chunk
     try:
-        res = search(gamma0(first.level), c.search_lo, c.search_hi,
+        res = search_forms(gamma0(first.level), c.search_lo, c.search_hi,
                      settings=search_settings(first.eps, first.n_coeffs, first.step), classes=syms)
         outs = [t.output_from(res) for t in tasks]
     except Exception as exc:  # noqa: BLE001 - reported per task, the sweep goes on

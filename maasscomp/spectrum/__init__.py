@@ -3,7 +3,7 @@ high-precision refinement.
 
 Public API
 ----------
-search, SearchSettings, SearchResult, symmetry_classes
+search_forms, SearchSettings, SearchResult, symmetry_classes
     The eigenvalue search for any level: every eigenvalue of every symmetry class in a
     window, with multiplicities (Atkin--Lehner classes at squarefree levels, parity
     classes of the multi-cusp system elsewhere).
@@ -34,7 +34,7 @@ from maasscomp.spectrum.lfunction import (
     sym2_L1,
 )
 from maasscomp.spectrum.near import NearResult, forms_in_window, nearest_forms
-from maasscomp.spectrum.search import SearchResult, SearchSettings, search, symmetry_classes
+from maasscomp.spectrum.search import SearchResult, SearchSettings, search_forms, symmetry_classes
 from maasscomp.spectrum.weyl import (
     CompletenessReport,
     CompletenessWindow,

@@ -1,7 +1,7 @@
 """Window search with a completeness check against Weyl's law and automatic re-search.
 
 A data set of Maass forms is only useful if it is complete in each window. After the
-search of all symmetry classes of a level (:func:`maasscomp.spectrum.search.search`), the
+search of all symmetry classes of a level (:func:`maasscomp.spectrum.search.search_forms`), the
 forms found are compared with Weyl's law window by window
 (:func:`maasscomp.spectrum.weyl.completeness`, given the :class:`Form` objects, so that it
 can count multiplicities and classes). Re-search rule:
@@ -27,7 +27,7 @@ from typing import Callable, Sequence
 
 from maasscomp.errors import InputError
 from maasscomp.spectrum.form import Form
-from maasscomp.spectrum.search import SearchSettings, search
+from maasscomp.spectrum.search import SearchSettings, search_forms
 
 _GOLDEN = 0.5 * (math.sqrt(5.0) - 1.0)
 
@@ -144,7 +144,7 @@ def weyl_report(level: int, forms: Sequence[Form], T_min: float, T_max: float, w
 
 
 def _search(group, parities, a, b, settings, progress) -> list[Form]:
-    return list(search(group, a, b, tuple(parities), settings, progress=progress).forms)
+    return list(search_forms(group, a, b, tuple(parities), settings, progress=progress).forms)
 
 
 def complete_search(

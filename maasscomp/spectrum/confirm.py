@@ -111,6 +111,22 @@ def store_height(R: float, m: int) -> float:
     return (R + 2.0 * R ** (1.0 / 3.0) + 6.0) / (2.0 * math.pi * m)
 
 
+def _bucket(R: float) -> float:
+    """R rounded up to the next multiple of 1/4: systems built for it serve every R below
+    (their truncation M0 grows with R), so nearby eigenvalues share them."""
+    return math.ceil(4.0 * R) / 4.0
+
+
+@lru_cache(maxsize=64)
+def _system_at(level: int, symmetry: SymmetryClass, kind: str, Y: float, R_top: float, eps: float):
+    """The system of one class at height Y with parameters for R <= R_top (cached: the
+    sample points and pullbacks are the expensive part)."""
+    from maasscomp.groups import gamma0
+
+    p = choose_params(R_top + 0.5, Y, eps)
+    return build_family(gamma0(level), [symmetry], p, kind).systems[symmetry]
+
+
 def _null_at(system, R: float, m: int, extra: int = 2):
     """Null basis of ``system`` at R (direct Kt values): (sv, vectors in unknowns, column scale)."""
     A = system.matrix_from_k(system.samples.k_values(R))
@@ -158,10 +174,7 @@ def build_forms(group, symmetry: SymmetryClass, kind: str, r1: Root, r2: Root, s
         sa, sva, Ua, dca = r2.system, r2.sv, r2.vectors, r2.unknown_scale
         sb, svb, Ub, dcb = third(R, m)
     else:
-        systems = []
-        for Y in (Ya, 0.9 * Ya):
-            p = choose_params(R + 0.5, Y, settings.eps)
-            systems.append(build_family(group, [symmetry], p, kind).systems[symmetry])
+        systems = [_system_at(group.level, symmetry, kind, Y, _bucket(R), settings.eps) for Y in (Ya, 0.9 * Ya)]
         (sva, Ua, dca), (svb, Ub, dcb) = (_null_at(s, R, m) for s in systems)
         sa, sb = systems
     worst = max(sva[m - 1], svb[m - 1])
@@ -344,8 +357,8 @@ def _old_dimension(group, parity: str, R: float, settings):
     lam_lower: list[dict[int, float]] = []
     for M in divisors(N)[:-1]:
         G = gamma0(M)
-        p = choose_params(R + 1.0, 0.9 * G.fundamental_domain_height, settings.eps)
-        sysM = build_family(G, [SymmetryClass(parity)], p, "multi-cusp").systems[SymmetryClass(parity)]
+        sysM = _system_at(M, SymmetryClass(parity), "multi-cusp", 0.9 * G.fundamental_domain_height,
+                          _bucket(R), settings.eps)
         k = 2 * len(divisors(M)) + 2
         while True:
             sv, U, dc = _null_at(sysM, R, k, extra=0)

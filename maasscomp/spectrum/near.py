@@ -3,7 +3,7 @@
 At large R the eigenvalues are dense (mean spacing about 6/R on PSL(2,Z), shared by the
 symmetry classes; docs/theory.md §2.2), so a user asks for forms *near* an R rather than for a
 whole range. Both functions run the one search of the project
-(:func:`maasscomp.spectrum.search.search`, any level) over all symmetry classes of the
+(:func:`maasscomp.spectrum.search.search_forms`, any level) over all symmetry classes of the
 level together, and compare the number found with Weyl's law where it is available
 (squarefree levels).
 """
@@ -18,7 +18,7 @@ from maasscomp.errors import InputError
 from maasscomp.hejhal.types import SymmetryClass
 from maasscomp.spectrum.complete import merge_forms
 from maasscomp.spectrum.form import Form
-from maasscomp.spectrum.search import SearchSettings, mean_spacing, search
+from maasscomp.spectrum.search import SearchSettings, mean_spacing, search_forms
 
 
 @dataclass(frozen=True)
@@ -64,7 +64,7 @@ def _expected(level: int, a: float, b: float) -> float | None:
 
 
 def _search(group, parities, a, b, settings, progress):
-    res = search(group, a, b, tuple(parities), settings, progress=progress)
+    res = search_forms(group, a, b, tuple(parities), settings, progress=progress)
     return list(res.forms), len(res.rejected)
 
 

@@ -53,6 +53,12 @@ from maasscomp.spectrum.form import Form
 #: interpolant of Kt in R.
 PATCHES_PER_CHUNK = 64
 
+#: The null spaces of the two heights are compared on the coefficients whose column scale
+#: is within this factor of the best one (errors amplified at most this much). Measured at
+#: level 12: a two-dimensional eigenspace whose double root is split by 5e-11 at one height
+#: gives angles 8e-9 (factor 1e3), 8e-8 (1e4) and 3e-6 (1e6).
+COMPARE_AMPLIFICATION = 1e4
+
 #: Pencil eigenvalues are collected up to (1/2 + OVERLAP) point spacings from the point
 #: (the linearisation moves roots by O(d^2); neighbouring points overlap).
 OVERLAP = 0.35
@@ -73,7 +79,11 @@ class SearchSettings:
         term). Pairs closer than the point spacing are found all the same; the density only
         trades the cost of the local eigenvalue problems against Newton steps.
     max_step : float
-        Largest distance between expansion points.
+        Largest distance between expansion points. The linearisation moves a root at distance
+        d from its point by about kappa d^2 (kappa about 0.5 at R = 1000, up to about 6 at
+        small R); a point whose observed kappa times its width exceeds
+        :data:`KAPPA_WIDTH_MAX` is searched again as two halves, so every root stays inside
+        the collection interval of a point.
     offset : float
         Shift of the lattice of expansion points, in point spacings, in [0, 1). The set of
         eigenvalues found does not depend on it (a check of the search, used by tests and
@@ -83,7 +93,9 @@ class SearchSettings:
     hecke_tol : float
         Largest accepted Hecke residual at confirmation.
     R_tol : float
-        Largest accepted distance, relative to max(1, R), between the roots at the two heights.
+        Largest accepted distance, relative to max(1, R), between the roots at the two heights
+        (measured: below 3e-15 relative for R <= 1000; spurious roots of the two heights
+        meet this closely with probability about R_tol R times the density of roots).
     mult_tol : float
         Relative singular values (equilibrated matrix) below this count as zero. At a
         refined eigenvalue the null ones lie between 1e-17 and 3e-13 (levels 1-30, R <= 1000);
@@ -106,7 +118,7 @@ class SearchSettings:
     offset: float = 0.0
     coeff_tol: float = 1e-6
     hecke_tol: float = 1e-6
-    R_tol: float = 1e-9
+    R_tol: float = 1e-11
     mult_tol: float = 1e-8
     n_coeffs: int = 60
     hecke_nmax: int = 30
@@ -152,7 +164,7 @@ class Candidate:
 
 @dataclass(frozen=True)
 class SearchResult:
-    """Outcome of :func:`search`.
+    """Outcome of :func:`search_forms`.
 
     Attributes
     ----------
@@ -170,8 +182,9 @@ class SearchResult:
     grid_step : float
         Largest distance between expansion points used.
     stats : dict
-        Counts: expansion points, pencil eigenvalues, Newton steps, relinearisations, roots
-        per height, spurious roots.
+        Counts: expansion points, pencil eigenvalues, Newton steps (factorisations),
+        relinearisations, starts that led nowhere, roots found at one height by testing the
+        other height's root, spurious roots (roots of one height only).
     """
 
     level: int
@@ -300,6 +313,8 @@ class _Counts:
     newton_steps: int = 0
     relinearised: int = 0
     lost: int = 0
+    recovered: int = 0
+    splits: int = 0
 
 
 def _null_count(kind: str, size: int, level: int) -> int:
@@ -324,10 +339,39 @@ def _examine(system, R: float, A: np.ndarray, dA: np.ndarray, lu, dc: np.ndarray
     return m, nb.sv, dc[:, None] * nb.vectors[:, :m], kappa
 
 
+#: Largest accepted kappa w, with kappa = max |start - root| / d^2 observed at a point of
+#: width w: a root at d = w/2 then moves by at most 0.35 w / 2, half the overlap of the
+#: collection intervals. A point above it is searched again as two halves.
+KAPPA_WIDTH_MAX = 0.7
+
+#: Levels of halving of one expansion point at most.
+MAX_SPLITS = 4
+
+
+def _scan_adaptive(system, ksrc: KSource, c: float, kdk, width: float, j: int, height: int,
+                   settings: SearchSettings, counts: _Counts, group, kind: str, known: list[Root],
+                   depth: int = 0) -> list[Root]:
+    """:func:`_scan_point`, repeated on the two halves of the point where the linearisation
+    was seen to be too coarse (observed kappa w above :data:`KAPPA_WIDTH_MAX`, or a start whose
+    root was found only by linearising again). The decision depends on the point alone, so
+    the result does not depend on the window."""
+    k, dk = kdk if kdk is not None else ksrc.values_and_derivative(c)
+    roots, kappa, trouble = _scan_point(system, ksrc, c, k, dk, width, j, height, settings, counts, group,
+                                        kind, known)
+    if depth < MAX_SPLITS and (trouble or kappa * width > KAPPA_WIDTH_MAX):
+        counts.splits += 1
+        for cc in (c - 0.25 * width, c + 0.25 * width):
+            roots += _scan_adaptive(system, ksrc, cc, None, 0.5 * width, j, height, settings, counts, group,
+                                    kind, known + roots, depth + 1)
+    return roots
+
+
 def _scan_point(system, ksrc: KSource, c: float, k: np.ndarray, dk: np.ndarray, width: float,
                 j: int, height: int, settings: SearchSettings, counts: _Counts, group, kind: str,
-                known: list[Root]) -> list[Root]:
-    """The roots of ``system`` near the expansion point c that are not in ``known``.
+                known: list[Root]) -> tuple[list[Root], float, bool]:
+    """The roots of ``system`` near the expansion point c that are not in ``known``, the
+    observed linearisation constant kappa = max |start - root| / d^2, and whether a start
+    needed a second linearisation to reach its root.
 
     Every pencil eigenvalue within (1/2 + OVERLAP) widths of c is polished by Newton's
     method, except one that lies within 2 % of the width of a root found already (from
@@ -352,6 +396,7 @@ def _scan_point(system, ksrc: KSource, c: float, k: np.ndarray, dk: np.ndarray, 
     pool: list[Root] = [r for r in known if abs(r.R - c) <= 2.0 * radius]
     n_known = len(pool)
     members: dict[int, int] = {}  # index in pool -> pencil eigenvalues of this point there
+    reach: dict[int, float] = {}  # index in pool -> farthest start that arrived there
 
     def find(R: float, within: float) -> int | None:
         best, bd = None, within
@@ -361,8 +406,9 @@ def _scan_point(system, ksrc: KSource, c: float, k: np.ndarray, dk: np.ndarray, 
                 best, bd = i, d
         return best
 
-    def arrive(i: int) -> None:
+    def arrive(i: int, start: float) -> None:
         members[i] = members.get(i, 0) + 1
+        reach[i] = max(reach.get(i, 0.0), abs(start - pool[i].R))
 
     def polish(start: float, v: np.ndarray, max_move: float) -> bool:
         nr = pn.newton_root(mats, start, v, tol=tol, max_move=max_move)
@@ -375,24 +421,37 @@ def _scan_point(system, ksrc: KSource, c: float, k: np.ndarray, dk: np.ndarray, 
             pool.append(Root(R=nr.R, height=height, m=m, sv=sv, vectors=U, unknown_scale=dc, system=system,
                              kappa=kappa, steps=nr.steps, start=start, patch=j))
             i = len(pool) - 1
-        arrive(i)
+        arrive(i, start)
         return True
 
     retry: list[float] = []
-    for d, v in zip(pr.delta, pr.vectors.T):
+    # nearest first: their starts are the most accurate, and their observed errors
+    # |start - root| / d^2 calibrate how far the farther starts may be from their roots
+    kappa_lin = 0.0
+    for idx in np.argsort(np.abs(pr.delta)):
+        d, v = pr.delta[idx], pr.vectors[:, idx]
         start = c + float(d.real)
-        i = find(start, near_tol)
+        i = find(start, min(max(near_tol, 4.0 * kappa_lin * abs(d) ** 2), 0.25 * width))
         if i is not None:
-            arrive(i)
+            arrive(i, start)
             continue
+        n_before = len(pool)
         if not polish(start, np.real(v), max_move=2.0 * radius):
             retry.append(start)
+        elif len(pool) > n_before and abs(d) > 1e-3 * width:
+            kappa_lin = max(kappa_lin, abs(pool[-1].R - start) / abs(d) ** 2)
     # a start that did not converge: linearise again there (its root is near, if any)
+    trouble = False
     for start in retry:
         counts.relinearised += 1
         for s2, v2 in _local_pencil(mats, start, 0.5 * radius):
-            if find(s2, 1e-9 * max(1.0, s2)) is None and not polish(s2, v2, max_move=radius):
+            if find(s2, 1e-9 * max(1.0, s2)) is not None:
+                continue
+            n_before = len(pool)
+            if not polish(s2, v2, max_move=radius):
                 counts.lost += 1
+            elif len(pool) > n_before:
+                trouble = True
     # more arrivals than null dimensions: a neighbour was skipped; look again from the root
     done: set[int] = set()
     for _round in range(4):
@@ -403,11 +462,43 @@ def _scan_point(system, ksrc: KSource, c: float, k: np.ndarray, dk: np.ndarray, 
             done.add(i)
             counts.relinearised += 1
             r = pool[i]
-            for s2, v2 in _local_pencil(mats, r.R, near_tol + 1e-6 * radius):
+            # the skipped neighbour lies within the reach of the starts that arrived here
+            look = min(2.0 * reach.get(i, 0.0) + near_tol, radius)
+            for s2, v2 in _local_pencil(mats, r.R, look):
                 if abs(s2 - r.R) <= 1e-9 * max(1.0, r.R) or find(s2, 1e-9 * max(1.0, s2)) is not None:
                     continue
-                polish(s2, v2, max_move=2.0 * near_tol + 1e-3 * radius)
-    return pool[n_known:]
+                polish(s2, v2, max_move=2.0 * look)
+    return pool[n_known:], kappa_lin, trouble
+
+
+def _other_height(system, ksrc: KSource, r: Root, height: int, settings: SearchSettings, counts: _Counts,
+                  group, kind: str) -> Root | None:
+    """The root of ``system`` at r.R if the system is singular there (smallest relative
+    singular value below 1e-9), refined by Newton's method; None otherwise."""
+    k, dk = ksrc.values_and_derivative(r.R)
+    A = system.matrix_from_k(k)
+    dr, dc = pn.scalings(A)
+    As = pn.scale(A, dr, dc)
+    lu = sla.lu_factor(As, check_finite=False)
+    counts.newton_steps += 1
+    nb = pn.null_basis(As, lu, 2)
+    if not nb.sv[0] <= 1e-9:
+        return None
+
+    def mats(R: float):
+        kk, dd = ksrc.values_and_derivative(R)
+        return pn.scale(system.matrix_from_k(kk), dr, dc), pn.scale(system.matrix_from_k(dd), dr, dc)
+
+    tol = settings.R_tol * max(1.0, r.R)
+    nr = pn.newton_root(mats, r.R, nb.vectors[:, 0], tol=4e-16 * max(1.0, r.R), max_move=tol)
+    counts.newton_steps += nr.steps
+    if not nr.converged:
+        return None
+    counts.recovered += 1
+    k_null = _null_count(kind, system.size, group.level)
+    m, sv, U, kappa = _examine(system, nr.R, nr.A, nr.dA, nr.lu, dc, nr.vector, k_null, settings)
+    return Root(R=nr.R, height=height, m=m, sv=sv, vectors=U, unknown_scale=dc, system=system, kappa=kappa,
+                steps=nr.steps, start=r.R, patch=r.patch)
 
 
 def _local_pencil(mats, R: float, radius: float):
@@ -422,7 +513,7 @@ def _local_pencil(mats, R: float, radius: float):
 # ----------------------------------------------------------------------------------------
 
 
-def search(
+def search_forms(
     group,
     R_min: float,
     R_max: float,
@@ -489,23 +580,43 @@ def search(
         lo, hi = lattice.edge(q0), lattice.edge(q1 + 1)
         w_lo, w_hi = lattice.width(q0), lattice.width(q1)
         k_lo, k_hi = max(lo - 2.0 * w_lo, 0.5 * lo), hi + 2.0 * w_hi
+        fams: list[SystemFamily] = []
+        ksrcs: list[KSource] = []
+        first: dict = {}
         for h, frac in enumerate(fracs):
             params = choose_params(k_hi + 0.5, frac * Y0, settings.eps)
-            fam: SystemFamily = build_family(group, classes, params, kind)
-            ksrc = KSource(fam.k_points, k_lo, k_hi)
+            fams.append(build_family(group, classes, params, kind))
+            ksrcs.append(KSource(fams[h].k_points, k_lo, k_hi))
+            for cls in classes:
+                first[(cls, h)] = len(roots[cls][h])
             for j in js:
                 c = lattice.center(j)
                 w = lattice.width(j)
                 grid_step = max(grid_step, w)
-                k, dk = ksrc.values_and_derivative(c)
+                kdk = ksrcs[h].values_and_derivative(c)
                 counts.points += 1
                 for cls in classes:
                     roots[cls][h].extend(
-                        _scan_point(fam.systems[cls], ksrc, c, k, dk, w, j, h + 1, settings, counts, group,
-                                    kind, roots[cls][h][-64:]))
+                        _scan_adaptive(fams[h].systems[cls], ksrcs[h], c, kdk, w, j, h + 1, settings, counts,
+                                       group, kind, roots[cls][h][-64:]))
                 done += 1
                 if progress is not None:
                     progress(done, total)
+        # a root of this chunk at one height only: is the other height's system singular
+        # there too? (a pencil eigenvalue that Newton could not follow at that height)
+        for cls in classes:
+            for h in (0, 1):
+                other = 1 - h
+                theirs = np.array([r.R for r in roots[cls][other]])
+                for r in list(roots[cls][h][first[(cls, h)]:]):
+                    tol = settings.R_tol * max(1.0, r.R)
+                    if theirs.size and np.min(np.abs(theirs - r.R)) <= tol:
+                        continue
+                    got = _other_height(fams[other].systems[cls], ksrcs[other], r, other + 1, settings,
+                                        counts, group, kind)
+                    if got is not None:
+                        roots[cls][other].append(got)
+                        theirs = np.append(theirs, got.R)
 
     # null spaces at a third height 0.9 Y2 for the coefficient errors, from an interpolant
     # per chunk built when the chunk holds an eigenvalue
@@ -550,7 +661,9 @@ def search(
     stats = {
         "expansion_points": counts.points, "pencil_eigenvalues": counts.pencil,
         "newton_steps": counts.newton_steps, "relinearised": counts.relinearised,
-        "lost_starts": counts.lost, "spurious_roots": spurious,
+        "halved_points": counts.splits,
+        "lost_starts": counts.lost, "recovered_at_other_height": counts.recovered,
+        "spurious_roots": spurious,
     }
     return SearchResult(level=group.level, classes=tuple(classes), R_min=float(R_min), R_max=float(R_max),
                         forms=tuple(forms), candidates=tuple(sorted(candidates, key=lambda c: c.R)),
@@ -595,10 +708,8 @@ def _accept(group, cls: SymmetryClass, kind: str, a: Root, b: Root, settings: Se
         return False, "no null direction", []
     sa, sb = a.system, b.system
     M = min(sa.params.M0, sb.params.M0)
-    from maasscomp.spectrum.confirm import GOOD_AMPLIFICATION
-
-    mask = ((sa.storage_scale(a.unknown_scale)[:, :M] <= GOOD_AMPLIFICATION * a.unknown_scale.min())
-            & (sb.storage_scale(b.unknown_scale)[:, :M] <= GOOD_AMPLIFICATION * b.unknown_scale.min()))
+    mask = ((sa.storage_scale(a.unknown_scale)[:, :M] <= COMPARE_AMPLIFICATION * a.unknown_scale.min())
+            & (sb.storage_scale(b.unknown_scale)[:, :M] <= COMPARE_AMPLIFICATION * b.unknown_scale.min()))
     C1 = sa.coefficients(a.vectors)[:, :, :M]
     C2 = sb.coefficients(b.vectors)[:, :, :M]
     gap = subspace_gap(C1, C2, mask)

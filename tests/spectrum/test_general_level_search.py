@@ -23,7 +23,7 @@ from maasscomp.hejhal.multicusp import MultiCuspSystem
 from maasscomp.hejhal.params import choose_params
 from maasscomp.hejhal.types import SymmetryClass
 from maasscomp.spectrum.hecke import hecke_residual
-from maasscomp.spectrum.search import SearchSettings, search
+from maasscomp.spectrum.search import SearchSettings, search_forms
 
 MULTIPLICITY_TOL = SearchSettings().mult_tol
 
@@ -57,7 +57,7 @@ def searches():
         (9, "odd", WIN2),
         (9, "even", WIN1),
     ]:
-        out[(N, parity, win)] = search(gamma0(N), *win, (parity,), system="multi-cusp")
+        out[(N, parity, win)] = search_forms(gamma0(N), *win, (parity,), system="multi-cusp")
     return out
 
 
@@ -149,8 +149,8 @@ def test_squarefree_level_agrees_with_the_atkin_lehner_search():
     """Level 6, odd, around R1: the general search (parity only) finds the same eigenvalue as
     the Atkin-Lehner search, with multiplicity = number of sign classes holding it."""
     G = gamma0(6)
-    general = search(G, *WIN1, ("odd",), system="multi-cusp")
-    by_class = [f.R for f in search(G, *WIN1, ("odd",)).forms]
+    general = search_forms(G, *WIN1, ("odd",), system="multi-cusp")
+    by_class = [f.R for f in search_forms(G, *WIN1, ("odd",)).forms]
     distinct = _distinct(general.forms)
     assert len(distinct) == 1
     assert len(by_class) == distinct[0].multiplicity == 4
@@ -162,15 +162,15 @@ def test_bad_input():
 
     G = gamma0(4)
     with pytest.raises(InputError, match="parity"):
-        search(G, 1.0, 2.0, ("up",))
+        search_forms(G, 1.0, 2.0, ("up",))
     with pytest.raises(InputError, match="R_min"):
-        search(G, 3.0, 2.0, ("odd",))
+        search_forms(G, 3.0, 2.0, ("odd",))
     with pytest.raises(InputError, match="R_max"):
-        search(G, 1.0, float("nan"), ("odd",))
+        search_forms(G, 1.0, float("nan"), ("odd",))
     with pytest.raises(InputError, match="mult_tol"):
         SearchSettings(mult_tol=0.1)
     with pytest.raises(InputError, match="Atkin-Lehner"):
-        search(G, 1.0, 2.0, classes=[SymmetryClass("odd", ((2, 1),))])
+        search_forms(G, 1.0, 2.0, classes=[SymmetryClass("odd", ((2, 1),))])
 
 
 def test_level25_multiplicity_two_newform_pair_related_by_the_twist_mod_5():
@@ -178,7 +178,7 @@ def test_level25_multiplicity_two_newform_pair_related_by_the_twist_mod_5():
     newform f of level 25 the twist f (x) chi_5 has level 25, the same R and the same parity,
     with Hecke eigenvalues chi_5(p) lambda_f(p) (from memory of the theory). The window
     [1.95, 2.15] was found by our own scan of level 25 (no published value is used)."""
-    res = search(gamma0(25), 1.95, 2.15, ("odd",))
+    res = search_forms(gamma0(25), 1.95, 2.15, ("odd",))
     distinct = _distinct(res.forms)
     assert len(distinct) == 1
     pair = [f for f in res.forms if f.R == distinct[0].R]

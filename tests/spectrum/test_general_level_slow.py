@@ -22,7 +22,7 @@ from maasscomp.groups import gamma0
 from maasscomp.hejhal.multicusp import MultiCuspSystem
 from maasscomp.hejhal.params import choose_params
 from maasscomp.spectrum.hecke import hecke_residual
-from maasscomp.spectrum.search import SearchSettings, search
+from maasscomp.spectrum.search import SearchSettings, search_forms
 
 MULTIPLICITY_TOL = SearchSettings().mult_tol
 
@@ -34,7 +34,7 @@ WINDOW = (1.0, 10.0)
 @pytest.fixture(scope="module")
 def spectra():
     return {
-        (N, parity): search(gamma0(N), *WINDOW, (parity,))
+        (N, parity): search_forms(gamma0(N), *WINDOW, (parity,))
         for N in (4, 8, 9)
         for parity in ("even", "odd")
     }
@@ -93,7 +93,7 @@ def test_level12_old_spectrum_from_levels_4_and_3(spectra, parity):
     """d(12/M) = 2 d(4/M) for M | 4, so an eigenvalue of multiplicity m at level 4 has
     multiplicity 2m at level 12; a level-3 newform (multiplicity d(3) = 2 at level 9) has
     d(4) = 3 oldforms at level 12 (Atkin & Lehner 1970)."""
-    twelve = _eigenvalues(search(gamma0(12), *WINDOW, (parity,)))
+    twelve = _eigenvalues(search_forms(gamma0(12), *WINDOW, (parity,)))
     four = _eigenvalues(spectra[(4, parity)])
     nine = _eigenvalues(spectra[(9, parity)])
     for R, m in four.items():
@@ -118,9 +118,9 @@ def test_level2_general_search_agrees_with_atkin_lehner_search_and_weyl():
     G = gamma0(2)
     total = 0
     for parity in ("even", "odd"):
-        general = _eigenvalues(search(G, *WINDOW, (parity,), system="multi-cusp"))
+        general = _eigenvalues(search_forms(G, *WINDOW, (parity,), system="multi-cusp"))
         by_class: dict[float, int] = {}
-        for f in search(G, *WINDOW, (parity,)).forms:
+        for f in search_forms(G, *WINDOW, (parity,)).forms:
             key = next((r for r in by_class if abs(r - f.R) <= 1e-9), f.R)
             by_class[key] = by_class.get(key, 0) + 1
         assert len(general) == len(by_class)

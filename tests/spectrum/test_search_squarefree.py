@@ -21,7 +21,7 @@ from maasscomp.groups import gamma0
 from maasscomp.hejhal.types import SymmetryClass
 from maasscomp.spectrum.hecke import atkin_lehner_residual, hecke_residual
 from maasscomp.spectrum.exceptional import search_exceptional
-from maasscomp.spectrum.search import search, symmetry_classes
+from maasscomp.spectrum.search import search_forms, symmetry_classes
 
 LEVEL1_ODD = (9.53369526135, 12.173008324679677)  # published (see module docstring)
 
@@ -31,7 +31,7 @@ def _divisor_count(n: int) -> int:
 
 
 def _search_odd_near(N: int, lo: float, hi: float):
-    return list(search(gamma0(N), lo, hi, ("odd",)).forms)
+    return list(search_forms(gamma0(N), lo, hi, ("odd",)).forms)
 
 
 @pytest.mark.parametrize("N", [2, 3, 5])
@@ -60,7 +60,7 @@ def test_level1_forms_reappear_as_oldforms_slow(N):
 
 
 def _all_forms(N: int, R_max: float):
-    return list(search(gamma0(N), 0.5, R_max).forms)
+    return list(search_forms(gamma0(N), 0.5, R_max).forms)
 
 
 def _check_newforms(forms, N):
