@@ -644,19 +644,23 @@ def search_forms(
     forms: list[Form] = []
     candidates: list[Candidate] = []
     spurious = 0
+    proposed = []
     for cls in classes:
         r1 = _dedupe(roots[cls][0], lattice)
         r2 = _dedupe(roots[cls][1], lattice)
         pairs, lone = _match(r1, r2, settings)
         spurious += lone
-        for a, b in pairs:
-            R = 0.5 * (a.R + b.R)
-            if not (R_min <= R <= R_max):
-                continue
-            ok, reason, new = _accept(group, cls, kind, a, b, settings,
-                                      third_for(cls, b.patch // PATCHES_PER_CHUNK))
-            candidates.append(Candidate(R=R, symmetry=cls, accepted=ok, reason=reason))
-            forms.extend(new)
+        proposed += [(b.patch // PATCHES_PER_CHUNK, cls, a, b) for a, b in pairs
+                     if R_min <= 0.5 * (a.R + b.R) <= R_max]
+    # chunk by chunk, so that one third-height interpolant is alive at a time
+    proposed.sort(key=lambda t: (t[0], t[2].R))
+    for q, cls, a, b in proposed:
+        for old in [k for k in thirds if k != q]:
+            del thirds[old]
+        ok, reason, new = _accept(group, cls, kind, a, b, settings, third_for(cls, q))
+        candidates.append(Candidate(R=0.5 * (a.R + b.R), symmetry=cls, accepted=ok, reason=reason))
+        forms.extend(new)
+    thirds.clear()
     forms.sort(key=lambda f: (f.R, f.symmetry.label, f.basis_index))
     stats = {
         "expansion_points": counts.points, "pencil_eigenvalues": counts.pencil,
