@@ -380,7 +380,9 @@ def estimate_task_memory(level: int, R_max: float, eps: float, n_coeffs: int) ->
     factorisation), with M = n_cusps * M0 for the multi-cusp system. M0 follows the
     truncation rule of :func:`maasscomp.hejhal.params.truncation_M0` (its starting guess,
     an upper bound), and the final solve for the stored coefficients needs M0 of about
-    3 n_coeffs (:mod:`maasscomp.spectrum.search`).
+    3 n_coeffs (:mod:`maasscomp.spectrum.confirm`). The search also keeps a Chebyshev table
+    of Kt in R at three heights (about 20 nodes times Q M0 values each, at most
+    :data:`maasscomp.hejhal.kinterp.INTERP_MAX_BYTES`).
     """
     from maasscomp.groups import gamma0
 
@@ -393,7 +395,10 @@ def estimate_task_memory(level: int, R_max: float, eps: float, n_coeffs: int) ->
     cusps = 1 if g.is_squarefree else len(g.cusps)
     M = cusps * M0
     Q = M + max(8, M // 8)
-    nbytes = 8.0 * (8 * Q * M + 3 * M * M)
+    from maasscomp.hejhal.kinterp import INTERP_MAX_BYTES
+
+    table = min(8.0 * 20 * Q * M0, INTERP_MAX_BYTES)
+    nbytes = 8.0 * (8 * Q * M + 3 * M * M) + 3 * table
     return nbytes, {"M0": M0, "Q": Q, "n_cusps": cusps, "Y": Y}
 
 

@@ -618,6 +618,8 @@ def search_forms(
                         roots[cls][other].append(got)
                         theirs = np.append(theirs, got.R)
 
+    fams = ksrcs = []  # the last chunk's tables are not needed any more
+
     # null spaces at a third height 0.9 Y2 for the coefficient errors, from an interpolant
     # per chunk built when the chunk holds an eigenvalue
     thirds: dict[int, tuple] = {}
