@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -47,15 +48,27 @@ def eigen_at_level(M: int, parity: str, al_signs: dict[int, int], R: float, *, t
 
     g = gamma0(M)
     sym = SymmetryClass(parity, tuple((p, al_signs[p]) for p in sorted(g.primes)))
-    Y0 = g.fundamental_domain_height
-    # heights low enough that M0 >= 24, so a(2..6) are far inside the accurate range (~M0/3)
-    p = choose_params(R + 0.5, 0.9 * Y0, eps)
-    Y = 0.9 * Y0 * min(1.0, p.M0 / 24.0)
-    sols = [HejhalSystem(g, sym, choose_params(R + 0.5, f * Y, eps)).solve(R) for f in (1.0, 0.85)]
+    # parameters for the next multiple of 1/4 above R: nearby forms share the systems
+    R_top = math.ceil(4.0 * R) / 4.0
+    sols = [_system(M, sym, f, R_top, eps).solve(R) for f in (1.0, 0.85)]
     k = min(7, sols[0].size, sols[1].size)
     if np.all(np.isfinite(sols[0][:k])) and np.max(np.abs(sols[0][1:k] - sols[1][1:k])) < tol:
         return sols[0]
     return None
+
+
+@lru_cache(maxsize=256)
+def _system(M: int, sym: SymmetryClass, f: float, R_top: float, eps: float) -> HejhalSystem:
+    """The system of level M used by :func:`eigen_at_level` for R <= R_top (cached: its sample
+    points and pullbacks do not depend on R)."""
+    from maasscomp.groups import gamma0
+
+    g = gamma0(M)
+    Y0 = g.fundamental_domain_height
+    # heights low enough that M0 >= 24, so a(2..6) are far inside the accurate range (~M0/3)
+    p = choose_params(R_top + 0.5, 0.9 * Y0, eps)
+    Y = 0.9 * Y0 * min(1.0, p.M0 / 24.0)
+    return HejhalSystem(g, sym, choose_params(R_top + 0.5, f * Y, eps))
 
 
 def classify(level: int, symmetry: SymmetryClass, R: float, coeffs: np.ndarray) -> Classification:
