@@ -25,7 +25,7 @@ from maasscomp.groups import gamma0
 from maasscomp.hejhal.types import SolverParams, SymmetryClass
 from maasscomp.special import ktilde
 from maasscomp.spectrum.form import Form
-from maasscomp.spectrum.search import SearchSettings, search_window, symmetry_classes
+from maasscomp.spectrum.search import SearchSettings, search_forms
 from maasscomp.supnorm import l2_norm, scan_form
 
 
@@ -33,9 +33,7 @@ def first_form(level: int, R: float, n_coeffs: int = 120) -> Form:
     g = gamma0(level)
     width = 0.6
     while True:
-        found = []
-        for sym in symmetry_classes(g, ("even", "odd")):
-            found += search_window(g, sym, R, R + width, SearchSettings(n_coeffs=n_coeffs)).forms
+        found = list(search_forms(g, R, R + width, settings=SearchSettings(n_coeffs=n_coeffs)).forms)
         found = [f for f in found if f.is_new is not False]
         if found:
             return min(found, key=lambda f: f.R)

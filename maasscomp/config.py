@@ -92,15 +92,17 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
     ("search", "n_coeffs", "int", 60,
      "Number of Fourier coefficients stored per form, in [10, 20000]."),
     ("search", "step", "float", None,
-     "Grid step of the determinant-sign scan. Default (absent): the search's own rule, a "
-     "fixed fraction of the mean eigenvalue spacing of the class (Weyl's law), at most 0.02."),
+     "Largest distance between the expansion points of the search (each finds every "
+     "eigenvalue near it, however close two are). Default (absent): the search's own rule, "
+     "one point per mean eigenvalue spacing of a class (Weyl's law), at most 0.1."),
     ("search", "chunk_width", "float", 1.0,
      "Width in R of one search task. Chunk edges sit at multiples of this width, so "
      "changing a window keeps the finished chunks it shares with the old one."),
     ("search", "recheck", "bool", True,
-     "After the search, compare the forms of every squarefree level searched in all its "
-     "classes with Weyl's law, window by window, and search each window flagged as "
-     "incomplete again with a 4x finer grid and other sample heights."),
+     "After the search, compare the forms of every level searched in all its classes with "
+     "Weyl's law where the project has it (squarefree levels), window by window, and search "
+     "each window flagged as incomplete once more with a shifted lattice of expansion "
+     "points, twice as many of them, and lower sample heights."),
     ("scan", "enabled", "bool", False,
      "After the search, scan every form of the config for the maximum of |f|/||f|| in each "
      "cusp region and on the compact part (one task per form; results stored beside the "

@@ -30,8 +30,7 @@ def level1_published() -> dict[tuple[int, str], tuple[float, int]]:
 def level1_window_9_14():
     """Both parities of PSL(2,Z) searched on [9, 14] with the default settings."""
     from maasscomp.groups import gamma0
-    from maasscomp.hejhal.types import SymmetryClass
-    from maasscomp.spectrum.search import search_window
+    from maasscomp.spectrum.search import search_forms
 
     g = gamma0(1)
-    return {p: search_window(g, SymmetryClass(p), 9.0, 14.0) for p in ("even", "odd")}
+    return {p: search_forms(g, 9.0, 14.0, (p,)) for p in ("even", "odd")}

@@ -78,14 +78,103 @@ class KInterpolator:
         coef[0] *= 0.5
         self._coef = coef
 
+    def _t(self, R: float) -> float:
+        return (2.0 * R - self.Ra - self.Rb) / (self.Rb - self.Ra)
+
     def __call__(self, R: float) -> np.ndarray:
         """Kt(R, X) for Ra <= R <= Rb, in the shape of X."""
-        t = (2.0 * R - self.Ra - self.Rb) / (self.Rb - self.Ra)
-        m = self._coef.shape[0]
-        # Clenshaw recurrence over the node index
-        b1 = np.zeros_like(self._coef[0])
-        b2 = np.zeros_like(b1)
-        for j in range(m - 1, 0, -1):
-            b1, b2 = 2.0 * t * b1 - b2 + self._coef[j], b1
-        out = t * b1 - b2 + self._coef[0]
-        return out.reshape(self.shape)
+        T, _ = _cheb_basis(self._t(R), self._coef.shape[0], derivative=False)
+        # one matrix-vector product over the coefficient table (memory bound, one pass)
+        return (T @ self._coef).reshape(self.shape)
+
+    def value_and_derivative(self, R: float) -> tuple[np.ndarray, np.ndarray]:
+        """Kt(R, X) and dKt/dR (R, X) for Ra <= R <= Rb, each in the shape of X.
+
+        The derivative of sum_j c_j T_j(t) is sum_j j c_j U_{j-1}(t) (DLMF 18.9.21); both
+        sums come from one product of a 2 x m basis table with the coefficient table.
+        """
+        T, dT = _cheb_basis(self._t(R), self._coef.shape[0], derivative=True)
+        both = np.stack([T, dT * (2.0 / (self.Rb - self.Ra))]) @ self._coef
+        return both[0].reshape(self.shape), both[1].reshape(self.shape)
+
+
+def _cheb_basis(t: float, m: int, *, derivative: bool) -> tuple[np.ndarray, np.ndarray | None]:
+    """T_0..T_{m-1}(t) and, if asked, their t-derivatives j U_{j-1}(t) (DLMF 18.9.1, 18.9.21)."""
+    T = np.empty(m)
+    T[0] = 1.0
+    if m > 1:
+        T[1] = t
+    for j in range(2, m):
+        T[j] = 2.0 * t * T[j - 1] - T[j - 2]
+    if not derivative:
+        return T, None
+    U = np.empty(m)
+    U[0] = 1.0
+    if m > 1:
+        U[1] = 2.0 * t
+    for j in range(2, m):
+        U[j] = 2.0 * t * U[j - 1] - U[j - 2]
+    dT = np.zeros(m)
+    dT[1:] = np.arange(1, m) * U[: m - 1]
+    return T, dT
+
+
+#: Beyond this many bytes of Chebyshev coefficients a :class:`KSource` evaluates Kt
+#: directly instead of interpolating in R.
+INTERP_MAX_BYTES = 600 * 2**20
+
+
+def interpolation_nodes(X_min: float, Ra: float, Rb: float) -> int:
+    """Starting number of Chebyshev nodes of :class:`KInterpolator` on [Ra, Rb] (it may add more)."""
+    omega = math.acosh(max(Rb / X_min, 1.0))
+    return int(math.ceil(1.2 * omega * 0.5 * (Rb - Ra))) + 14
+
+
+class KSource:
+    """Kt(R, x) and dKt/dR (R, x) at a fixed point set, for any R in [Ra, Rb].
+
+    The search evaluates the Hejhal matrices of a level at many R on the same points; this
+    object decides once how: by a Chebyshev interpolant in R (:class:`KInterpolator`) when its
+    coefficients fit in ``max_bytes``, otherwise by direct evaluation
+    (:func:`maasscomp.special.ktilde`) with the R-derivative from a central difference.
+    Outside [Ra, Rb] it always evaluates directly. The derivative is only used to linearise
+    the matrices and to take Newton steps; the eigenvalues found depend on the values alone.
+
+    This is the plug-in point for other ways of producing Kt at large R: any object with
+    ``values(R)`` and ``values_and_derivative(R)`` returning arrays over the points will do.
+
+    Parameters
+    ----------
+    X : ndarray
+        Points x > 0 (flattened).
+    Ra, Rb : float
+        The R range of the interpolant.
+    max_bytes : float
+        Memory allowed for the interpolant's coefficients.
+    """
+
+    def __init__(self, X: np.ndarray, Ra: float, Rb: float, *, max_bytes: float = INTERP_MAX_BYTES) -> None:
+        self.X = np.asarray(X, dtype=float).reshape(-1)
+        self.Ra, self.Rb = float(Ra), float(Rb)
+        self.interp: KInterpolator | None = None
+        nodes = interpolation_nodes(float(self.X.min()), self.Ra, self.Rb)
+        if self.Rb > self.Ra and 8.0 * nodes * self.X.size <= max_bytes:
+            self.interp = KInterpolator(self.X, self.Ra, self.Rb)
+
+    def _inside(self, R: float) -> bool:
+        return self.interp is not None and self.Ra <= R <= self.Rb
+
+    def values(self, R: float) -> np.ndarray:
+        """Kt(R, X)."""
+        if self._inside(R):
+            return self.interp(R)  # type: ignore[misc]
+        return ktilde(float(R), self.X)
+
+    def values_and_derivative(self, R: float) -> tuple[np.ndarray, np.ndarray]:
+        """(Kt(R, X), dKt/dR (R, X))."""
+        if self._inside(R):
+            return self.interp.value_and_derivative(R)  # type: ignore[union-attr]
+        # central difference: error h^2 omega^3/6 + u/h relative, h ~ 1e-5 max(1, R)^(1/3)
+        h = 1e-5 * max(1.0, abs(R)) ** (1.0 / 3.0)
+        lo, hi = ktilde(float(R) - h, self.X), ktilde(float(R) + h, self.X)
+        return ktilde(float(R), self.X), (hi - lo) / (2.0 * h)

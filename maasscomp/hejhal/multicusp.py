@@ -59,7 +59,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from fractions import Fraction
-from functools import cached_property
 
 import numpy as np
 
@@ -173,16 +172,90 @@ def _int_reflect(M):
     return [[int(a), -int(b)], [-int(c), int(d)]]
 
 
-@dataclass(frozen=True)
-class _Samples:
-    """R-independent data of the system: sample points and their pullbacks."""
+class MultiCuspSamples:
+    """R- and parity-independent data of the multi-cusp system: blocks of unknowns, sample
+    points and their pullbacks.
 
-    block_of_point: np.ndarray  # (P,) block whose equations use the point
-    ys: np.ndarray  # (P,) pulled-back heights
-    target_block: np.ndarray  # (P,) block whose unknowns express f at the point
-    inv: np.ndarray  # (n_unknowns, P) discrete inversion weights
-    phase: np.ndarray  # (P, 2, M0) R-independent trigonometric factors (second row unused for "self")
-    min_ratio: float  # min over points of y*/Y
+    Both parity classes of a level use the same points (only the cos/sin factors differ), so
+    they share one instance, hence the values Kt(R, x) at :attr:`k_points`.
+
+    Parameters
+    ----------
+    group : Gamma0
+    params : SolverParams
+        Y (below the group's fundamental-domain height Y0), M0, Q > M0.
+    """
+
+    def __init__(self, group, params: SolverParams) -> None:
+        Y0 = group.fundamental_domain_height
+        if not (0 < params.Y < Y0):
+            raise InputError(
+                f"sample height Y={params.Y!r} is not allowed for level {group.level}; "
+                f"it must lie in (0, {Y0:.6g}) so that every pullback raises the point"
+            )
+        if params.Q <= params.M0:
+            raise InputError(f"sample count Q={params.Q!r} is not allowed; it must exceed M0={params.M0}")
+        self.group = group
+        self.params = params
+        self.reflections = cusp_reflections(group)
+        M0, Q, Y = params.M0, params.Q, params.Y
+        blocks = []
+        off = 0
+        for r in self.reflections:
+            if r.self_conjugate:
+                blocks.append(Block("self", r.cusp, r.cusp, r.shift, off))
+                off += M0
+            elif r.cusp < r.image:
+                blocks.append(Block("pair", r.cusp, r.image, r.shift, off))
+                off += 2 * M0
+        self.blocks: tuple[Block, ...] = tuple(blocks)
+        self.size = off
+        self.block_of_cusp = np.empty(group.n_cusps, dtype=np.int64)
+        for b, blk in enumerate(blocks):
+            self.block_of_cusp[blk.cusp] = b
+            self.block_of_cusp[blk.partner] = b
+        pts_x, pts_y, owner, xloc = [], [], [], []
+        for b, blk in enumerate(self.blocks):
+            cusp = group.cusps[blk.cusp]
+            if blk.kind == "self":
+                m = np.arange(1, Q + 1)
+                x = (m - 0.5) / (2 * Q)
+                px, py = cusp.apply_scaling(x + blk.shift / 2, np.full_like(x, Y))
+            else:
+                m = np.arange(1 - Q, Q + 1)
+                x = (1 - 2 * m) / (4 * Q)
+                px, py = cusp.apply_scaling(x, np.full_like(x, Y))
+            pts_x.append(px)
+            pts_y.append(py)
+            owner.append(np.full(px.size, b))
+            xloc.append(x)
+        px = np.concatenate(pts_x)
+        py = np.concatenate(pts_y)
+        #: block whose equations use each point, and the point's abscissa in that block
+        self.owner = np.concatenate(owner)
+        self.x_local = np.concatenate(xloc)
+        pb = group.pullback(px, py)
+        self.cusp = np.asarray(pb.cusp, dtype=np.int64)
+        self.xs = np.asarray(pb.x, dtype=float)
+        self.ys = np.asarray(pb.y, dtype=float)
+        self.min_ratio = float(np.min(self.ys) / Y)
+        if self.min_ratio <= 1 + 1e-12:
+            raise InputError(
+                f"sample height Y={Y} is too large for level {group.level}: some pullbacks do not rise above Y"
+            )
+        #: block whose unknowns express f at each pulled-back point
+        self.target = self.block_of_cusp[self.cusp]
+        n = np.arange(1, M0 + 1)
+        # every x at which Kt is needed: the pulled-back points (P x M0), then the diagonal
+        self.k_points = np.concatenate([((TWO_PI * self.ys)[:, None] * n[None, :]).ravel(), TWO_PI * Y * n])
+
+    @property
+    def n_points(self) -> int:
+        return int(self.ys.size)
+
+    def k_values(self, R: float) -> np.ndarray:
+        """Kt(R, x) at :attr:`k_points`."""
+        return ktilde(float(R), self.k_points)
 
 
 class MultiCuspSystem:
@@ -196,6 +269,8 @@ class MultiCuspSystem:
         Symmetry under J: z -> -conj(z).
     params : SolverParams
         Y (below the group's fundamental-domain height Y0), M0, Q > M0.
+    samples : MultiCuspSamples, optional
+        Share the sample points (and the Kt values) with the other parity.
 
     Notes
     -----
@@ -208,38 +283,65 @@ class MultiCuspSystem:
     carries the factor Kt_R(2 pi n y), which is exponentially small for large n).
     """
 
-    def __init__(self, group, parity: str, params: SolverParams) -> None:
+    def __init__(self, group, parity: str, params: SolverParams, samples: MultiCuspSamples | None = None) -> None:
         if parity not in PARITIES:
             raise InputError(f"parity {parity!r} is not allowed; use 'even' or 'odd'")
-        Y0 = group.fundamental_domain_height
-        if not (0 < params.Y < Y0):
-            raise InputError(
-                f"sample height Y={params.Y!r} is not allowed for level {group.level}; "
-                f"it must lie in (0, {Y0:.6g}) so that every pullback raises the point"
-            )
-        if params.Q <= params.M0:
-            raise InputError(f"sample count Q={params.Q!r} is not allowed; it must exceed M0={params.M0}")
+        if samples is None:
+            samples = MultiCuspSamples(group, params)
+        elif samples.params != params or samples.group.level != group.level:
+            raise InputError("the shared sample set was built for other parameters or another level")
         self.group = group
         self.parity = parity
         self.params = params
+        self.samples = samples
         self.eps = 1.0 if parity == "even" else -1.0
-        self.reflections = cusp_reflections(group)
-        blocks = []
-        off = 0
-        for r in self.reflections:
-            if r.self_conjugate:
-                blocks.append(Block("self", r.cusp, r.cusp, r.shift, off))
-                off += params.M0
-            elif r.cusp < r.image:
-                blocks.append(Block("pair", r.cusp, r.image, r.shift, off))
-                off += 2 * params.M0
-        self.blocks: tuple[Block, ...] = tuple(blocks)
-        self.size = off
-        # block index of each cusp, and whether the cusp is the partner of a pair
-        self._block_of_cusp = np.empty(group.n_cusps, dtype=np.int64)
-        for b, blk in enumerate(blocks):
-            self._block_of_cusp[blk.cusp] = b
-            self._block_of_cusp[blk.partner] = b
+        self.reflections = samples.reflections
+        self.blocks = samples.blocks
+        self.size = samples.size
+        self._block_of_cusp = samples.block_of_cusp
+        M0, Q = params.M0, params.Q
+        n = np.arange(1, M0 + 1)
+        cs = np.cos if parity == "even" else np.sin
+        s = samples
+        # discrete inversion weights: rows = unknowns, columns = sample points of the owner
+        inv = np.zeros((self.size, s.n_points))
+        for b, blk in enumerate(self.blocks):
+            cols = np.nonzero(s.owner == b)[0]
+            x = s.x_local[cols]
+            if blk.kind == "self":
+                w = (2.0 / Q) * cs(TWO_PI * np.outer(n, x))
+            else:
+                w = np.vstack([(1.0 / Q) * np.cos(TWO_PI * np.outer(n, x)),
+                               (1.0 / Q) * np.sin(TWO_PI * np.outer(n, x))])
+            inv[blk.offset : blk.offset + w.shape[0], cols] = w
+        # per (target block, owner block): the points owned by one block (whose equations use
+        # them) and expressed through the unknowns of another, the owner's inversion weights
+        # at those points and the R-independent factor sqrt(y*) cs(.) of each target column.
+        # A row of the matrix only involves the points of its own block, so A is assembled
+        # block by block (n_blocks times fewer operations than one dense product).
+        self._parts = []
+        sq = np.sqrt(s.ys)
+        for b, blk in enumerate(self.blocks):
+            sel = np.nonzero(s.target == b)[0]
+            if sel.size == 0:
+                continue
+            xs = s.xs[sel]
+            if blk.kind == "self":
+                ph = (sq[sel][:, None] * cs(TWO_PI * np.outer(xs - blk.shift / 2, n)))[None]
+            else:
+                # representative: F_j(w); partner: eps F_j(t - Re w + i Im w)
+                is_partner = s.cusp[sel] == blk.partner
+                xx = np.where(is_partner, blk.shift - xs, xs)
+                sgn = np.where(is_partner, self.eps, 1.0) * sq[sel]
+                arg = TWO_PI * np.outer(xx, n)
+                ph = np.stack([sgn[:, None] * np.cos(arg), sgn[:, None] * np.sin(arg)])
+            for o, own in enumerate(self.blocks):
+                pick = np.nonzero(s.owner[sel] == o)[0]
+                if pick.size == 0:
+                    continue
+                rows = slice(own.offset, own.offset + (M0 if own.kind == "self" else 2 * M0))
+                W = np.ascontiguousarray(inv[rows][:, sel[pick]])
+                self._parts.append((blk, rows, sel[pick], W, np.ascontiguousarray(ph[:, pick])))
 
     # ------------------------------------------------------------------------------------
     @property
@@ -247,97 +349,36 @@ class MultiCuspSystem:
         """True when every cusp is self-conjugate with shift 0 (real storage arrays)."""
         return all(b.kind == "self" and b.shift == 0.0 for b in self.blocks)
 
-    @cached_property
-    def samples(self) -> _Samples:
-        p = self.params
-        M0, Q, Y = p.M0, p.Q, p.Y
-        G = self.group
-        n = np.arange(1, M0 + 1)
-        cs = np.cos if self.parity == "even" else np.sin
-        pts_x, pts_y, owner = [], [], []
-        inv_rows = []
-        for b, blk in enumerate(self.blocks):
-            cusp = G.cusps[blk.cusp]
-            if blk.kind == "self":
-                m = np.arange(1, Q + 1)
-                x = (m - 0.5) / (2 * Q)
-                px, py = cusp.apply_scaling(x + blk.shift / 2, np.full_like(x, Y))
-                w = (2.0 / Q) * cs(TWO_PI * np.outer(n, x))  # (M0, Q)
-                inv_rows.append((blk.offset, w))
-            else:
-                m = np.arange(1 - Q, Q + 1)
-                x = (1 - 2 * m) / (4 * Q)
-                px, py = cusp.apply_scaling(x, np.full_like(x, Y))
-                w = np.vstack(
-                    [(1.0 / Q) * np.cos(TWO_PI * np.outer(n, x)), (1.0 / Q) * np.sin(TWO_PI * np.outer(n, x))]
-                )
-                inv_rows.append((blk.offset, w))
-            pts_x.append(px)
-            pts_y.append(py)
-            owner.append(np.full(px.size, b))
-        px = np.concatenate(pts_x)
-        py = np.concatenate(pts_y)
-        owner = np.concatenate(owner)
-        P = px.size
-        inv = np.zeros((self.size, P))
-        col = 0
-        for off, w in inv_rows:
-            inv[off : off + w.shape[0], col : col + w.shape[1]] = w
-            col += w.shape[1]
-        pb = G.pullback(px, py)
-        kc = np.asarray(pb.cusp, dtype=np.int64)
-        xs = np.asarray(pb.x, dtype=float)
-        ys = np.asarray(pb.y, dtype=float)
-        ratio = float(np.min(ys) / Y)
-        if ratio <= 1 + 1e-12:
-            raise InputError(
-                f"sample height Y={Y} is too large for level {G.level}: some pullbacks do not rise above Y"
-            )
-        target = self._block_of_cusp[kc]
-        phase = np.zeros((P, 2, M0))
-        for b, blk in enumerate(self.blocks):
-            sel = target == b
-            if not sel.any():
-                continue
-            if blk.kind == "self":
-                arg = TWO_PI * np.outer(xs[sel] - blk.shift / 2, n)
-                phase[sel, 0, :] = cs(arg)
-            else:
-                # representative: F_j(w); partner: eps F_j(t - Re w + i Im w)
-                is_partner = kc[sel] == blk.partner
-                xx = np.where(is_partner, blk.shift - xs[sel], xs[sel])
-                sgn = np.where(is_partner, self.eps, 1.0)
-                arg = TWO_PI * np.outer(xx, n)
-                phase[sel, 0, :] = sgn[:, None] * np.cos(arg)
-                phase[sel, 1, :] = sgn[:, None] * np.sin(arg)
-        return _Samples(block_of_point=owner, ys=ys, target_block=target, inv=inv, phase=phase, min_ratio=ratio)
+    @property
+    def k_points(self) -> np.ndarray:
+        """Points x at which :meth:`matrix_from_k` needs Kt(R, x)."""
+        return self.samples.k_points
 
-    # ------------------------------------------------------------------------------------
-    def matrix(self, R: float) -> np.ndarray:
-        """The square matrix A(R) = D(R) - V(R) of size n_cusps * M0."""
-        s = self.samples
+    def matrix_from_k(self, k: np.ndarray) -> np.ndarray:
+        """A(R) from k = Kt(R, :attr:`k_points`); linear in k, so the same call with
+        dKt/dR gives dA/dR."""
         M0, Y = self.params.M0, self.params.Y
-        n = np.arange(1, M0 + 1)
-        kb = np.sqrt(s.ys)[:, None] * ktilde(float(R), (TWO_PI * s.ys)[:, None] * n[None, :])
-        A = np.empty((self.size, self.size))
-        for b, blk in enumerate(self.blocks):
-            sel = np.nonzero(s.target_block == b)[0]
+        P = self.samples.n_points
+        kb = np.asarray(k[: P * M0]).reshape(P, M0)
+        A = np.zeros((self.size, self.size))
+        for blk, rows, pts, W, ph in self._parts:
+            K = kb[pts]
             off = blk.offset
-            if sel.size == 0:
-                A[:, off : off + (M0 if blk.kind == "self" else 2 * M0)] = 0.0
-                continue
-            W = s.inv[:, sel]
-            K = kb[sel]
-            A[:, off : off + M0] = -(W @ (K * s.phase[sel, 0, :]))
+            A[rows, off : off + M0] -= W @ (K * ph[0])
             if blk.kind == "pair":
-                A[:, off + M0 : off + 2 * M0] = -(W @ (K * s.phase[sel, 1, :]))
-        diag = np.sqrt(Y) * ktilde(float(R), TWO_PI * Y * n)
+                A[rows, off + M0 : off + 2 * M0] -= W @ (K * ph[1])
+        diag = math.sqrt(Y) * np.asarray(k[P * M0 :])
         for blk in self.blocks:
             reps = 1 if blk.kind == "self" else 2
             for r in range(reps):
                 idx = blk.offset + r * M0 + np.arange(M0)
                 A[idx, idx] += diag
         return A
+
+    # ------------------------------------------------------------------------------------
+    def matrix(self, R: float) -> np.ndarray:
+        """The square matrix A(R) = D(R) - V(R) of size n_cusps * M0."""
+        return self.matrix_from_k(self.samples.k_values(R))
 
     def equilibrated(self, R: float) -> tuple[np.ndarray, np.ndarray]:
         """(B, c) with B = D_r A(R) D_c and c the column scaling (u = c * v for B v = 0)."""
@@ -430,6 +471,20 @@ class MultiCuspSystem:
             out[blk.partner] = cos_k + 1j * sin_k if even else sin_k + 1j * cos_k
         if self.real_coefficients:
             return out.real.copy()
+        return out
+
+    def storage_scale(self, unknown_scale: np.ndarray) -> np.ndarray:
+        """Per storage entry (n_cusps, M0): the largest scale of the unknowns it depends on."""
+        c = np.asarray(unknown_scale)
+        M0 = self.params.M0
+        out = np.zeros((self.group.n_cusps, M0))
+        for blk in self.blocks:
+            if blk.kind == "self":
+                out[blk.cusp] = c[blk.offset : blk.offset + M0]
+            else:
+                w = np.maximum(c[blk.offset : blk.offset + M0], c[blk.offset + M0 : blk.offset + 2 * M0])
+                out[blk.cusp] = w
+                out[blk.partner] = w
         return out
 
     def coefficient_scale(self, R: float) -> np.ndarray:

@@ -150,8 +150,41 @@ class HejhalSystem:
             return dct(B, type=2, axis=0)[1 : M0 + 1] / Q
         return dst(B, type=2, axis=0)[:M0] / Q
 
+    @property
+    def size(self) -> int:
+        """Number of unknowns a(1..M0)."""
+        return self.params.M0
+
+    @property
+    def k_points(self) -> np.ndarray:
+        """Points x at which :meth:`matrix_from_k` needs Kt(R, x)."""
+        return self.samples.k_points
+
+    @property
+    def real_coefficients(self) -> bool:
+        """Always True: every cusp expansion is a pure cos/sin series with real coefficients."""
+        return True
+
+    def coefficients(self, vector: np.ndarray) -> np.ndarray:
+        """Unknowns a(1..M0) -> storage c_j(n) = eps_{Q_j} a(n), shape (n_cusps, M0).
+
+        Every cusp of a squarefree level is W_Q(infinity) with scaling matrix W_Q/sqrt(Q),
+        so its expansion is eps_Q times the one at infinity (docs/theory.md §1.5). A matrix
+        of shape (M0, k) gives (k, n_cusps, M0).
+        """
+        u = np.asarray(vector, dtype=float)
+        sign = np.array([self.symmetry.al_sign(c.atkin_lehner_Q) for c in self.group.cusps], dtype=float)
+        if u.ndim == 2:
+            return sign[None, :, None] * u.T[:, None, :]
+        return sign[:, None] * u[None, :]
+
+    def storage_scale(self, unknown_scale: np.ndarray) -> np.ndarray:
+        """Per storage entry (n_cusps, M0): the scale of the unknown it comes from."""
+        return np.repeat(np.asarray(unknown_scale)[None, :], self.group.n_cusps, axis=0)
+
     def matrix_from_k(self, k: np.ndarray) -> np.ndarray:
-        """A(R) from the values k = Kt(R, samples.k_points)."""
+        """A(R) from the values k = Kt(R, samples.k_points); linear in k, so the same call
+        with dKt/dR gives dA/dR."""
         Q, M0 = self.params.Q, self.params.M0
         A = -self._invert(k[: Q * M0].reshape(Q, M0) * self._out)
         A[np.diag_indices(M0)] += math.sqrt(self.params.Y) * k[Q * M0:]

@@ -414,34 +414,40 @@ def _commit(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str, summary: 
 
 
 def _weyl_windows(st, cfg: Config, plan: Plan, summary: JobSummary):
-    """(level, labels, window, completeness report) for every squarefree level of the plan
-    searched in all its classes without failed tasks."""
-    from maasscomp.config import is_squarefree
+    """(level, labels, window, completeness report) for every level of the plan searched in
+    all its classes without failed tasks, where Weyl's law is available for the level."""
     from maasscomp.groups import gamma0
+    from maasscomp.hejhal.types import SymmetryClass
+    from maasscomp.spectrum.complete import FormSummary, weyl_report
     from maasscomp.spectrum.search import symmetry_classes
-    from maasscomp.spectrum.weyl import completeness
 
     failed = {int(tid.split(":")[1][2:]) for tid, _ in summary.failures if tid.startswith("search:")}
     out = []
     for N, labels in plan.classes.items():
-        if not is_squarefree(N):
-            continue
         if set(labels) != {c.label for c in symmetry_classes(gamma0(N), ("even", "odd"))}:
             continue
         if N in failed:
             continue
         for a, b in cfg.search.windows:
             keys = st.select(level=N, R_min=a, R_max=b)
-            Rs = [r["R"] for r in st.summary_rows(n_coeffs=0, keys=keys)]
+            forms = [FormSummary(r["R"], SymmetryClass.from_label(r["symmetry"]), r["is_new"],
+                                 r["multiplicity"], r["basis_index"])
+                     for r in st.summary_rows(n_coeffs=0, keys=keys)]
             # no cusp form of these levels has R below 1 (Weyl's law gives W(1) < 0)
-            rep = completeness(N, Rs, a, b, count_below=0 if a <= 1.0 else None)
+            rep = weyl_report(N, forms, a, b, count_below=0 if a <= 1.0 else None)
+            if rep is None:
+                # Weyl's law is not available for this level: nothing to compare with
+                continue
             out.append((N, labels, (a, b), rep))
     return out
 
 
 def _recheck_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummary,
                    show_progress: bool, new_counts: Counter) -> None:
-    """Search the windows that Weyl's law flags again (finer grid, other heights)."""
+    """Search the windows that Weyl's law flags once more, with the settings of re-search
+    round 1 (:func:`maasscomp.spectrum.complete.research_settings`: shifted lattice of
+    expansion points, twice as many of them, lower sample heights). One round: a window
+    still flagged afterwards is reported in the run summary."""
     from tqdm import tqdm
 
     from maasscomp.pipeline.tasks import RecheckTask, execute
@@ -454,7 +460,9 @@ def _recheck_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSum
             t = RecheckTask(N, tuple(labels), w.T_lo, w.T_hi, s.eps, s.n_coeffs, s.step)
             log.info("level %d: window (%.4f, %.4f] flagged by Weyl's law (found %d, expected %.2f)%s",
                      N, w.T_lo, w.T_hi, w.found, w.expected,
-                     "; searched again before" if t.task_id in done else "; searching it again")
+                     "; searched again before" if t.task_id in done else
+                     "; searching it again (re-search round 1: lattice shifted, twice the expansion "
+                     "points, heights lowered by 0.06 Y0)")
             if t.task_id not in done:
                 tasks.append(t)
     if not tasks:

@@ -30,7 +30,7 @@ import re
 import time
 import traceback
 from dataclasses import dataclass, field
-from typing import Any, Callable
+from typing import Any
 
 from maasscomp.config import Config, is_squarefree
 from maasscomp.errors import InputError
@@ -97,6 +97,16 @@ def chunk_window(R_min: float, R_max: float, width: float) -> list[Chunk]:
     return [Chunk(edges[i], edges[i + 1], i > 0, i < n - 1) for i in range(n)]
 
 
+def search_settings(eps: float, n_coeffs: int, step: float | None):
+    """The search settings of a job: the config's ``step`` caps the distance between the
+    expansion points of the search (its default is the search's own rule)."""
+    from maasscomp.spectrum.search import SearchSettings
+
+    if step is None:
+        return SearchSettings(eps=eps, n_coeffs=n_coeffs)
+    return SearchSettings(eps=eps, n_coeffs=n_coeffs, max_step=float(step))
+
+
 @dataclass(frozen=True)
 class SearchTask:
     """Search one symmetry class of one level in one R chunk."""
@@ -107,7 +117,7 @@ class SearchTask:
     eps: float
     n_coeffs: int
     step: float | None
-    general: bool = False  # non-squarefree level: multi-cusp search by parity
+    general: bool = False  # non-squarefree level: the search picks the multi-cusp system
 
     stage = "search"
 
@@ -118,39 +128,33 @@ class SearchTask:
     def run(self) -> "SearchOutput":
         from maasscomp.groups import gamma0
         from maasscomp.hejhal.types import SymmetryClass
-        from maasscomp.spectrum.search import SearchSettings
+        from maasscomp.spectrum.search import search_forms
 
-        group = gamma0(self.level)
-        settings = SearchSettings(eps=self.eps, n_coeffs=self.n_coeffs)
-        sym = SymmetryClass.from_label(self.label)
         c = self.chunk
-        if self.general:
-            search_window_general = general_search()
-            assert search_window_general is not None
-            res = search_window_general(group, sym.parity, c.search_lo, c.search_hi, settings,
-                                        step=self.step)
-        else:
-            from maasscomp.spectrum.search import search_window
-
-            res = search_window(group, sym, c.search_lo, c.search_hi, settings, step=self.step)
+        res = search_forms(gamma0(self.level), c.search_lo, c.search_hi,
+                     settings=search_settings(self.eps, self.n_coeffs, self.step),
+                     classes=[SymmetryClass.from_label(self.label)])
         return self.output_from(res)
 
     def output_from(self, res) -> "SearchOutput":
-        """The forms and rejected candidates of a search result that belong to this chunk."""
+        """The forms and rejected candidates of this task's class in a search result that
+        belong to this chunk."""
+        from maasscomp.hejhal.types import SymmetryClass
+
         c = self.chunk
-        kept = tuple(f for f in res.forms if c.keeps(f.R))
+        sym = SymmetryClass.from_label(self.label)
+        kept = tuple(f for f in res.forms if f.symmetry == sym and c.keeps(f.R))
         rejected = tuple((cand.R, cand.reason) for cand in res.candidates
-                         if not cand.accepted and c.keeps(cand.R))
+                         if cand.symmetry == sym and not cand.accepted and c.keeps(cand.R))
         return SearchOutput(forms=kept, rejected=rejected, grid_step=float(res.grid_step))
 
 
 @dataclass(frozen=True)
 class RecheckTask:
-    """Search a window flagged by Weyl's law again, in every class of a squarefree level,
-    with a 4x finer grid and lower sample heights (as
-    :func:`maasscomp.spectrum.complete.complete_search` does): a spurious root of the
-    truncated system moves with the heights, so a true eigenvalue hidden next to one
-    shows at the other heights."""
+    """Search a window flagged by Weyl's law again, in every class of a level, with the
+    settings of re-search round 1 (:func:`maasscomp.spectrum.complete.research_settings`:
+    shifted lattice, twice the expansion points, lower sample heights), as
+    :func:`maasscomp.spectrum.complete.complete_search` does."""
 
     level: int
     labels: tuple[str, ...]
@@ -167,20 +171,17 @@ class RecheckTask:
         return f"recheck:N={self.level}:[{_fmt(self.lo)},{_fmt(self.hi)}]"
 
     def run(self) -> "SearchOutput":
-        from dataclasses import replace
-
         from maasscomp.groups import gamma0
         from maasscomp.hejhal.types import SymmetryClass
-        from maasscomp.spectrum.search import SearchSettings, search_classes
+        from maasscomp.spectrum.complete import research_settings
+        from maasscomp.spectrum.search import search_forms
 
-        base = SearchSettings(eps=self.eps, n_coeffs=self.n_coeffs)
-        finer = replace(base, steps_per_spacing=4 * base.steps_per_spacing, Y1_frac=0.86, Y2_frac=0.74)
+        settings = research_settings(search_settings(self.eps, self.n_coeffs, self.step), 1)
         syms = [SymmetryClass.from_label(lab) for lab in self.labels]
-        res = search_classes(gamma0(self.level), syms, max(self.lo - OVERLAP, 0.5 * self.lo),
-                             self.hi + OVERLAP, finer,
-                             step=None if self.step is None else self.step / 4)
-        forms = tuple(f for r in res.values() for f in r.forms if self.lo <= f.R <= self.hi)
-        rejected = tuple((c.R, c.reason) for r in res.values() for c in r.candidates
+        res = search_forms(gamma0(self.level), max(self.lo - OVERLAP, 0.5 * self.lo), self.hi + OVERLAP,
+                     settings=settings, classes=syms)
+        forms = tuple(f for f in res.forms if self.lo <= f.R <= self.hi)
+        rejected = tuple((c.R, c.reason) for c in res.candidates
                          if not c.accepted and self.lo <= c.R <= self.hi)
         return SearchOutput(forms=forms, rejected=rejected, grid_step=0.0)
 
@@ -309,33 +310,33 @@ def group_tasks(tasks) -> list[TaskGroup]:
 def execute_group(group: TaskGroup) -> list[TaskOutcome]:
     """Run the tasks of a group in this process (see :class:`TaskGroup`).
 
-    The classes of a squarefree level are searched together by
-    :func:`maasscomp.spectrum.search.search_classes`, which shares the sample points and
-    K-Bessel values between them (its grid step depends on the level, not on the classes
-    searched, so the result of each class is the one a search of that class alone gives);
-    the time of the joint search is shared equally among the tasks.
+    The classes of a level and chunk are searched together by
+    :func:`maasscomp.spectrum.search.search_forms`, which shares the sample points and K-Bessel
+    values between them (the result of each class is the one a search of that class alone
+    gives: the expansion points depend on the level, not on the classes searched); the
+    time of the joint search is shared equally among the tasks.
     """
     import os
     import socket
 
     tasks = group.tasks
     first = tasks[0]
-    joint = (len(tasks) > 1 and all(isinstance(t, SearchTask) and not t.general for t in tasks)
+    joint = (len(tasks) > 1 and all(isinstance(t, SearchTask) for t in tasks)
              and len({(t.level, t.chunk, t.eps, t.n_coeffs, t.step) for t in tasks}) == 1)
     if not joint:
         return [execute(t) for t in tasks]
     from maasscomp.groups import gamma0
     from maasscomp.hejhal.types import SymmetryClass
-    from maasscomp.spectrum.search import SearchSettings, search_classes
+    from maasscomp.spectrum.search import search_forms
 
     t0 = time.perf_counter()
     where = f"{socket.gethostname()}:{os.getpid()}"
     syms = [SymmetryClass.from_label(t.label) for t in tasks]
     c = first.chunk
     try:
-        res = search_classes(gamma0(first.level), syms, c.search_lo, c.search_hi,
-                             SearchSettings(eps=first.eps, n_coeffs=first.n_coeffs), step=first.step)
-        outs = [t.output_from(res[sym]) for t, sym in zip(tasks, syms)]
+        res = search_forms(gamma0(first.level), c.search_lo, c.search_hi,
+                     settings=search_settings(first.eps, first.n_coeffs, first.step), classes=syms)
+        outs = [t.output_from(res) for t in tasks]
     except Exception as exc:  # noqa: BLE001 - reported per task, the sweep goes on
         dt = (time.perf_counter() - t0) / len(tasks)
         err, detail = f"{type(exc).__name__}: {exc}", traceback.format_exc()
@@ -353,15 +354,6 @@ def parse_task_id(task_id: str) -> dict[str, Any] | None:
 
 
 # ---------------------------------------------------------------- planning
-
-
-def general_search() -> Callable | None:
-    """The multi-cusp window search for non-squarefree levels, if this version has it."""
-    try:
-        from maasscomp.spectrum.general import search_window_general
-    except ImportError:
-        return None
-    return search_window_general
 
 
 def class_labels(level: int, parities: tuple[str, ...], atkin_lehner: str) -> list[str]:
@@ -388,7 +380,9 @@ def estimate_task_memory(level: int, R_max: float, eps: float, n_coeffs: int) ->
     factorisation), with M = n_cusps * M0 for the multi-cusp system. M0 follows the
     truncation rule of :func:`maasscomp.hejhal.params.truncation_M0` (its starting guess,
     an upper bound), and the final solve for the stored coefficients needs M0 of about
-    3 n_coeffs (:mod:`maasscomp.spectrum.search`).
+    3 n_coeffs (:mod:`maasscomp.spectrum.confirm`). The search also keeps a Chebyshev table
+    of Kt in R at three heights (about 20 nodes times Q M0 values each, at most
+    :data:`maasscomp.hejhal.kinterp.INTERP_MAX_BYTES`).
     """
     from maasscomp.groups import gamma0
 
@@ -401,7 +395,10 @@ def estimate_task_memory(level: int, R_max: float, eps: float, n_coeffs: int) ->
     cusps = 1 if g.is_squarefree else len(g.cusps)
     M = cusps * M0
     Q = M + max(8, M // 8)
-    nbytes = 8.0 * (8 * Q * M + 3 * M * M)
+    from maasscomp.hejhal.kinterp import INTERP_MAX_BYTES
+
+    table = min(8.0 * 20 * Q * M0, INTERP_MAX_BYTES)
+    nbytes = 8.0 * (8 * Q * M + 3 * M * M) + 3 * table
     return nbytes, {"M0": M0, "Q": Q, "n_cusps": cusps, "Y": Y}
 
 
@@ -585,8 +582,7 @@ def build_plan(cfg: Config) -> Plan:
 
     First, without building any group: R inside the supported range, a grid step R can
     resolve, and the size limits (:func:`estimate_size`). Then the checks that need the
-    groups: non-squarefree levels need the multi-cusp search, and the systems of one task
-    must fit in ``[executor] memory_limit_gb``. Touches no file.
+    groups: the systems of one task must fit in ``[executor] memory_limit_gb``. Touches no file.
     """
     s = cfg.search
     where = f"{cfg.source_path}: " if cfg.source_path else ""
@@ -595,23 +591,15 @@ def build_plan(cfg: Config) -> Plan:
         if len(problems) == 1:
             raise InputError(where + problems[0])
         raise InputError(where + f"{len(problems)} problems in the config:\n  - " + "\n  - ".join(problems))
-    have_general = general_search() is not None
+    problems: list[str] = []
     tasks: list[SearchTask] = []
     classes: dict[int, tuple[str, ...]] = {}
     mem: dict[int, float] = {}
     chunks = [c for (a, b) in s.windows for c in chunk_window(a, b, s.chunk_width)]
-    nonsq = [N for N in s.levels if not is_squarefree(N)]
-    if nonsq and not have_general:
-        problems.append(
-            f"[search] levels {', '.join(map(str, nonsq))} {'is' if len(nonsq) == 1 else 'are'} not "
-            "squarefree: searches at non-squarefree levels are not yet supported by this "
-            "version; use squarefree levels (e.g. levels = \"squarefree up to 50\")")
     limit = cfg.executor.memory_limit_gb
     hours = 0.0
     for N in s.levels:
         general = not is_squarefree(N)
-        if general and not have_general:
-            continue
         nbytes, info = estimate_task_memory(N, s.R_max, s.eps, s.n_coeffs)
         mem[N] = nbytes / 2**30
         if mem[N] > limit:

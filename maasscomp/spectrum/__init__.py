@@ -3,12 +3,12 @@ high-precision refinement.
 
 Public API
 ----------
-search_classes, search_window, search_exceptional, symmetry_classes, SearchSettings, SearchResult
-    Window search for squarefree levels (Atkin--Lehner classes).
-search_window_general
-    Window search for any level (parity classes, multiplicities).
+search_forms, SearchSettings, SearchResult, symmetry_classes
+    The eigenvalue search for any level: every eigenvalue of every symmetry class in a
+    window, with multiplicities (Atkin--Lehner classes at squarefree levels, parity
+    classes of the multi-cusp system elsewhere).
 forms_in_window, nearest_forms, NearResult
-    Forms near a target R, with the Weyl expectation.
+    Forms near a target R, with the Weyl expectation (any level).
 complete_search, CompleteSearch
     Window search with Weyl's-law completeness check and automatic re-search.
 weyl_count, weyl_density, expected_in_window, weyl_constant, weyl_terms, completeness,
@@ -16,6 +16,8 @@ count_identity
     Weyl's law with lower-order terms for every level (scattering data in
     ``spectrum.scattering``), the completeness report (window counts, Turing-style integral
     test, small-gap test; ``spectrum.spectral_checks``) and the old/new count identity.
+search_exceptional
+    Exceptional eigenvalues (below 1/4) of a squarefree level.
 functional_equation_check, predicted_root_number, sym2_L1, rankin_selberg_norm2
     L-function checks and L(1, sym^2 f).
 refine_high_precision, extend_coefficients
@@ -25,7 +27,6 @@ Form
 """
 
 from maasscomp.spectrum.form import Form
-from maasscomp.spectrum.general import search_window_general
 from maasscomp.spectrum.lfunction import (
     FunctionalEquationCheck,
     functional_equation_check,
@@ -36,14 +37,7 @@ from maasscomp.spectrum.lfunction import (
     sym2_L1,
 )
 from maasscomp.spectrum.near import NearResult, forms_in_window, nearest_forms
-from maasscomp.spectrum.search import (
-    SearchResult,
-    SearchSettings,
-    search_classes,
-    search_exceptional,
-    search_window,
-    symmetry_classes,
-)
+from maasscomp.spectrum.search import SearchResult, SearchSettings, search_forms, symmetry_classes
 from maasscomp.spectrum.weyl import (
     CompletenessReport,
     CompletenessWindow,
@@ -64,6 +58,10 @@ def __getattr__(name: str):
         from maasscomp.spectrum import highprec
 
         return getattr(highprec, name)
+    if name == "search_exceptional":
+        from maasscomp.spectrum.exceptional import search_exceptional
+
+        return search_exceptional
     if name in ("complete_search", "CompleteSearch"):
         from maasscomp.spectrum import complete
 

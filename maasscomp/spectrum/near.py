@@ -2,10 +2,10 @@
 
 At large R the eigenvalues are dense (mean spacing about 6/R on PSL(2,Z), shared by the
 symmetry classes; docs/theory.md §2.2), so a user asks for forms *near* an R rather than for a
-whole range. Both functions search all symmetry classes of the level together (they share
-the sample points and the K-Bessel values), tie the grid step to the local mean spacing
-(:func:`maasscomp.spectrum.search.search_classes`), confirm every candidate as the window
-search does, and compare the number found with Weyl's law.
+whole range. Both functions run the one search of the project
+(:func:`maasscomp.spectrum.search.search_forms`, any level) over all symmetry classes of the
+level together, and compare the number found with Weyl's law where it is available
+(squarefree levels).
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from maasscomp.errors import InputError
 from maasscomp.hejhal.types import SymmetryClass
 from maasscomp.spectrum.complete import merge_forms
 from maasscomp.spectrum.form import Form
-from maasscomp.spectrum.search import SearchSettings, mean_spacing, search_classes, symmetry_classes
+from maasscomp.spectrum.search import SearchSettings, mean_spacing, search_forms
 
 
 @dataclass(frozen=True)
@@ -37,9 +37,9 @@ class NearResult:
         Weyl's law expectation for the union of the windows, summed over all symmetry
         classes (None when Weyl's law is not available for the level).
     found : int
-        Number of forms found in the union of the windows.
+        Number of forms found in the union of the windows (with multiplicity).
     rejected : int
-        Candidates rejected by the confirmation.
+        Eigenvalues proposed (roots at both heights) that failed confirmation.
     """
 
     forms: tuple[Form, ...]
@@ -63,11 +63,9 @@ def _expected(level: int, a: float, b: float) -> float | None:
         return None
 
 
-def _search(group, classes, a, b, settings, progress):
-    res = search_classes(group, classes, a, b, settings, progress=progress)
-    forms = [f for r in res.values() for f in r.forms]
-    rejected = sum(not c.accepted for r in res.values() for c in r.candidates)
-    return forms, rejected
+def _search(group, parities, a, b, settings, progress):
+    res = search_forms(group, a, b, tuple(parities), settings, progress=progress)
+    return list(res.forms), len(res.rejected)
 
 
 def forms_in_window(
@@ -79,9 +77,8 @@ def forms_in_window(
     *,
     progress: Callable[[int, int], None] | None = None,
 ) -> NearResult:
-    """Every form of every symmetry class of the level with R in [R_min, R_max]."""
-    classes = symmetry_classes(group, tuple(parities))
-    forms, rejected = _search(group, classes, R_min, R_max, settings, progress)
+    """Every form of every symmetry class of the level with R in [R_min, R_max] (any level)."""
+    forms, rejected = _search(group, parities, R_min, R_max, settings, progress)
     forms = sorted(merge_forms(forms)[0], key=lambda f: f.R)
     return NearResult(tuple(forms), float(R_min), ((float(R_min), float(R_max)),),
                       _expected(group.level, R_min, R_max), len(forms), rejected)
@@ -106,11 +103,10 @@ def nearest_forms(
         raise InputError(f"k={k!r} is not allowed; it must be an integer >= 1")
     if not (isinstance(R0, (int, float)) and math.isfinite(R0) and R0 > 0):
         raise InputError(f"R0={R0!r} is not allowed; it must be a positive finite number")
-    classes = symmetry_classes(group, tuple(parities))
     spacing = mean_spacing(group.level, 1, R0, group.index) * (2.0 / len(tuple(parities)))
     d = max(1.5 * k * spacing, 1e-3)
     lo, hi = max(R0 - d, 1e-3), R0 + d
-    forms, rejected = _search(group, classes, lo, hi, settings, progress)
+    forms, rejected = _search(group, parities, lo, hi, settings, progress)
     windows = [(lo, hi)]
     for _ in range(60):
         forms = merge_forms(forms)[0]
@@ -122,7 +118,7 @@ def nearest_forms(
             new.append((max(lo - d, 1e-3), lo))
         new.append((hi, hi + d))
         for a, b in new:
-            f2, r2 = _search(group, classes, a, b, settings, progress)
+            f2, r2 = _search(group, parities, a, b, settings, progress)
             forms += f2
             rejected += r2
             windows.append((a, b))

@@ -1,46 +1,67 @@
-"""Locate, refine and confirm every eigenvalue of the symmetry classes of a level in an R window.
+"""Every eigenvalue of the symmetry classes of any Gamma0(N) in an R window, with multiplicities.
 
-Method (docs/theory.md §1.4). With Y, M0 and Q held fixed over the window (M0 chosen for
-its top), the sign of det A(R) of the square Hejhal system is scanned on a grid whose step
-is a small fraction of the mean spacing of a class predicted by Weyl's law. det A(R) is
-continuous in R, so unlike the classical two-Y comparison (Hejhal 1999; Strömberg 2005)
-it has no poles; it changes sign at every eigenvalue and at spurious points where the
-truncated system is singular. Interior minima of log|det A(R)| without a sign change are
-examined for root pairs inside one grid cell. Each sign change is refined by Brent's
-method, and a candidate is accepted only when it is confirmed independently:
+The one search of the project (docs/theory-additions/search.md; docs/theory.md §1.4). For
+each class the square Hejhal matrix A(R) (:mod:`maasscomp.hejhal.family` picks the
+Atkin--Lehner one-cusp system at squarefree levels and the multi-cusp system elsewhere) is
+singular exactly at the eigenvalues of the class and at spurious points of the truncated
+system, which move when the sample height Y changes. The search:
 
-1. the normalised coefficients a(2..) solved at a second height Y2 agree with those at Y1
-   (an eigenvalue does not depend on Y, a spurious root does);
-2. a secant step of the two-height difference (the classical test function of Hejhal's
-   method) moves R by less than ``R_tol``; its size is the stored error estimate of R;
-3. the Hecke relations hold (a(mn) = a(m) a(n), a(p^2) = a(p)^2 - 1, ...).
+1. lays expansion points c_j on a lattice fixed by the level and R alone (the expected count
+   of one class advances by 1/``steps_per_spacing`` from one point to the next, capped by
+   ``max_step``); point j owns the R in [e_j, e_{j+1}) between the lattice's edges, so any two
+   windows that share an R see it through the same expansion point;
+2. at every c_j and at both heights Y1 > Y2 solves the linearised problem
+   (A(c) + d A'(c)) v = 0 (:func:`maasscomp.spectrum.pencil.pencil_roots`): its eigenvalues d
+   near 0 are all the roots of det A near c at once, however close (a pair 1e-5 apart gives
+   two, an m-fold eigenvalue m of them). A' comes from the R-derivative of the Chebyshev
+   interpolant of Kt in R (:class:`maasscomp.hejhal.kinterp.KSource`);
+3. polishes each by Newton's method on A(R) v = 0 and counts the null space at the root
+   (:func:`maasscomp.spectrum.pencil.null_basis`); if more pencil eigenvalues of one point
+   arrive at a root than its null space has dimensions, a close neighbour was skipped and
+   the problem is linearised again at that root, where the neighbour is near;
+4. an eigenvalue is a root of both heights' systems with the same multiplicity and the same
+   null space (principal angles of the coefficient subspaces); a root of one height only is
+   a spurious root of that truncated system and is never proposed;
+5. each eigenvalue is confirmed and turned into forms by :mod:`maasscomp.spectrum.confirm`.
 
-All classes of a level share the sample points and their pullbacks, hence the values of
-Kt(R, x) the matrices need; those values come from a Chebyshev interpolant in R per chunk of
-the window (:mod:`maasscomp.hejhal.kinterp`), which checks its own accuracy.
+A window [R_min, R_max] keeps the eigenvalues R = (R1 + R2)/2 with R_min <= R <= R_max;
+splitting a window, shifting the lattice (``offset``) or calling through the pipeline gives
+the same set (tested).
 """
 
 from __future__ import annotations
 
+import itertools
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable, Sequence
 
 import numpy as np
-from scipy.optimize import brentq, minimize_scalar
+import scipy.linalg as sla
 
 from maasscomp.errors import InputError
-from maasscomp.hejhal.kinterp import KInterpolator
-from maasscomp.hejhal.params import choose_params, truncation_M0
-from maasscomp.hejhal.system import HejhalSystem, SampleSet, normalised_solution, slogdet
-from maasscomp.hejhal.types import SolverParams, SymmetryClass
-from maasscomp.spectrum.classify import classify
+from maasscomp.hejhal.family import SystemFamily, build_family, check_classes, default_kind
+from maasscomp.hejhal.kinterp import KSource
+from maasscomp.hejhal.params import choose_params
+from maasscomp.hejhal.types import PARITIES, SymmetryClass
+from maasscomp.spectrum import pencil as pn
+from maasscomp.spectrum.confirm import Root, build_forms
+from maasscomp.spectrum.eigenspace import subspace_gap
 from maasscomp.spectrum.form import Form
-from maasscomp.spectrum.hecke import hecke_residual
 
-# Beyond this many Kt points per R the direct per-R evaluation is used instead of
-# interpolation in R (the interpolant's memory grows like nodes x points).
-_INTERP_MAX_POINTS = 1_500_000
+#: Expansion points per chunk: the points of a chunk share solver parameters and the
+#: interpolant of Kt in R.
+PATCHES_PER_CHUNK = 64
+
+#: The null spaces of the two heights are compared on the coefficients whose column scale
+#: is within this factor of the best one (errors amplified at most this much). Measured at
+#: level 12: a two-dimensional eigenspace whose double root is split by 5e-11 at one height
+#: gives angles 8e-9 (factor 1e3), 8e-8 (1e4) and 3e-6 (1e6).
+COMPARE_AMPLIFICATION = 1e4
+
+#: Pencil eigenvalues are collected up to (1/2 + OVERLAP) point spacings from the point
+#: (the linearisation moves roots by O(d^2); neighbouring points overlap).
+OVERLAP = 0.35
 
 
 @dataclass(frozen=True)
@@ -52,38 +73,53 @@ class SearchSettings:
     eps : float
         Truncation target of every system.
     Y1_frac, Y2_frac : float
-        Scan and confirmation heights as fractions of the group's Y0.
+        The two sample heights as fractions of the group's Y0.
     steps_per_spacing : float
-        Grid points per mean eigenvalue spacing of the class (Weyl's law, leading terms).
+        Expansion points per mean eigenvalue spacing of one class (Weyl's law, leading
+        term). Pairs closer than the point spacing are found all the same; the density only
+        trades the cost of the local eigenvalue problems against Newton steps.
     max_step : float
-        Upper bound of the grid step.
+        Largest distance between expansion points. The linearisation moves a root at distance
+        d from its point by about kappa d^2 (kappa about 0.5 at R = 1000, up to about 6 at
+        small R); a point whose observed kappa times its width exceeds
+        :data:`KAPPA_WIDTH_MAX` is searched again as two halves, so every root stays inside
+        the collection interval of a point.
+    offset : float
+        Shift of the lattice of expansion points, in point spacings, in [0, 1). The set of
+        eigenvalues found does not depend on it (a check of the search, used by tests and
+        by the re-search of flagged windows).
     coeff_tol : float
-        Largest accepted difference of a(2..) between the Y1 and Y2 solves.
+        Largest accepted sine of the angle between the null spaces at the two heights.
     hecke_tol : float
         Largest accepted Hecke residual at confirmation.
     R_tol : float
-        Largest accepted distance (relative to max(1, R)) between the root of det A at Y1
-        and the root of the two-height difference it is polished to.
+        Largest accepted distance, relative to max(1, R), between the roots at the two heights
+        (measured: below 3e-15 relative for R <= 1000; spurious roots of the two heights
+        meet this closely with probability about R_tol R times the density of roots).
+    mult_tol : float
+        Relative singular values (equilibrated matrix) below this count as zero. At a
+        refined eigenvalue the null ones lie between 1e-17 and 3e-13 (levels 1-30, R <= 1000);
+        a second eigenvalue at distance d gives about 0.1 d.
     n_coeffs : int
-        Least number of coefficients stored per form; more are stored when evaluating the
-        form anywhere in the fundamental domain needs them (the final solve uses a height
-        low enough for all of them to be accurate).
+        Least number of coefficients stored per form (Atkin--Lehner systems store more when
+        evaluating the form anywhere in the fundamental domain needs them).
     hecke_nmax : int
         Range of the Hecke check stored with each form.
     lfunction_check : bool
-        Check the functional equation of the standard L-function of every newform and store
-        the outcome in ``Form.extra["lfunction"]`` (skipped, with the reason, where it would
-        need too many coefficients; see :mod:`maasscomp.spectrum.extend`).
+        Check the functional equation of the standard L-function of every newform of
+        squarefree level and store the outcome in ``Form.extra["lfunction"]``.
     """
 
     eps: float = 1e-14
     Y1_frac: float = 0.92
     Y2_frac: float = 0.80
-    steps_per_spacing: float = 12.0
-    max_step: float = 0.02
+    steps_per_spacing: float = 1.0
+    max_step: float = 0.25
+    offset: float = 0.0
     coeff_tol: float = 1e-6
     hecke_tol: float = 1e-6
-    R_tol: float = 1e-9
+    R_tol: float = 1e-11
+    mult_tol: float = 1e-8
     n_coeffs: int = 60
     hecke_nmax: int = 30
     lfunction_check: bool = True
@@ -98,29 +134,76 @@ class SearchSettings:
             )
         if self.n_coeffs < 10:
             raise InputError(f"n_coeffs={self.n_coeffs!r} is not allowed; it must be at least 10")
+        if not (self.steps_per_spacing > 0 and math.isfinite(self.steps_per_spacing)):
+            raise InputError(f"steps_per_spacing={self.steps_per_spacing!r} is not allowed; it must be positive")
+        if not (self.max_step > 0 and math.isfinite(self.max_step)):
+            raise InputError(f"max_step={self.max_step!r} is not allowed; it must be positive")
+        if not (0.0 <= self.offset < 1.0):
+            raise InputError(f"offset={self.offset!r} is not allowed; it must lie in [0, 1)")
+        if not (0 < self.mult_tol < 1e-3):
+            raise InputError(f"mult_tol={self.mult_tol!r} is not allowed; it must lie in (0, 1e-3)")
 
 
 @dataclass(frozen=True)
 class Candidate:
-    """A sign change of det A(R) and what became of it."""
+    """A root of both heights' systems that failed confirmation, or a root of one height only.
+
+    Attributes
+    ----------
+    R : float
+    symmetry : SymmetryClass
+    accepted : bool
+    reason : str
+    """
 
     R: float
+    symmetry: SymmetryClass
     accepted: bool
     reason: str
 
 
 @dataclass(frozen=True)
 class SearchResult:
-    """Outcome of a window search for one symmetry class."""
+    """Outcome of :func:`search_forms`.
+
+    Attributes
+    ----------
+    level : int
+    classes : tuple of SymmetryClass
+    R_min, R_max : float
+    forms : tuple of Form
+        Sorted by R, then class label, then basis index.
+    candidates : tuple of Candidate
+        Every eigenvalue proposed (a root of both heights), accepted or not, with the
+        reason; roots of one height only are counted in ``stats`` (``spurious``) and not
+        proposed.
+    system : str
+        ``"atkin-lehner"`` or ``"multi-cusp"``.
+    grid_step : float
+        Largest distance between expansion points used.
+    stats : dict
+        Counts: expansion points, pencil eigenvalues, Newton steps (factorisations),
+        relinearisations, starts that led nowhere, roots found at one height by testing the
+        other height's root, spurious roots (roots of one height only).
+    """
 
     level: int
-    symmetry: SymmetryClass
+    classes: tuple[SymmetryClass, ...]
     R_min: float
     R_max: float
     forms: tuple[Form, ...]
     candidates: tuple[Candidate, ...]
+    system: str
     grid_step: float
-    params: SolverParams
+    stats: dict = field(default_factory=dict)
+
+    def for_class(self, symmetry: SymmetryClass) -> tuple[Form, ...]:
+        """The forms of one class."""
+        return tuple(f for f in self.forms if f.symmetry == symmetry)
+
+    @property
+    def rejected(self) -> tuple[Candidate, ...]:
+        return tuple(c for c in self.candidates if not c.accepted)
 
 
 def mean_spacing(level: int, n_classes: int, R: float, index: int) -> float:
@@ -131,93 +214,25 @@ def mean_spacing(level: int, n_classes: int, R: float, index: int) -> float:
     return 6.0 * n_classes / (index * max(R, 1.0))
 
 
-class _KSource:
-    """Kt(R, x) at a sample set's points: interpolated in R per chunk, or direct."""
+def symmetry_classes(group, parities: Sequence[str] = ("even", "odd"), system: str | None = None) -> list[SymmetryClass]:
+    """All symmetry classes searched at a level: parities times Atkin--Lehner signs.
 
-    def __init__(self, samples: SampleSet, Ra: float, Rb: float) -> None:
-        self.samples = samples
-        self.interp = None
-        if samples.k_points.size <= _INTERP_MAX_POINTS and Rb > Ra:
-            self.interp = KInterpolator(samples.k_points, Ra, Rb)
-
-    def __call__(self, R: float) -> np.ndarray:
-        if self.interp is not None and self.interp.Ra <= R <= self.interp.Rb:
-            return self.interp(R)
-        return self.samples.k_values(R)
-
-
-def _chunks(grid: np.ndarray, samples: SampleSet) -> list[tuple[int, int]]:
-    """Index ranges [i0, i1] (inclusive, consecutive ranges share an end point) such that
-    the interpolant of each has a moderate number of nodes."""
-    xmin = float(samples.k_points.min())
-    omega = math.acosh(max(grid[-1] / xmin, 1.0))
-    width = 50.0 / max(omega, 0.5)  # about 44 Chebyshev nodes per chunk
-    out, i0 = [], 0
-    while i0 < len(grid) - 1:
-        i1 = int(np.searchsorted(grid, grid[i0] + width, side="right")) - 1
-        i1 = min(max(i1, i0 + 2), len(grid) - 1)
-        out.append((i0, i1))
-        i0 = i1
-    return out or [(0, len(grid) - 1)]
-
-
-def _refine(det: Callable[[float], tuple[float, float]], a: float, b: float) -> float:
-    """Root of det in the sign-change bracket [a, b] by Brent's method."""
-    la, lb = det(a)[1], det(b)[1]
-    ref = max(la, lb)
-
-    def g(R: float) -> float:
-        s, ld = det(R)
-        return s * math.exp(max(ld - ref, -700.0))
-
-    # the confirmation polishes the root with two-height secant steps on exact K values, so
-    # a relative 1e-12 here is plenty (and saves determinant evaluations at large R)
-    return float(brentq(g, a, b, xtol=1e-15, rtol=1e-12, maxiter=200))
-
-
-def _hidden_pairs(det: Callable[[float], tuple[float, float]], grid: np.ndarray, signs: np.ndarray,
-                  logs: np.ndarray, lo: int, hi: int) -> list[tuple[float, float]]:
-    """Brackets of root pairs that fall inside one grid cell, for interior indices lo..hi-1.
-
-    Between two roots |det A| has a maximum, so an interior local minimum of log|det A|
-    with no sign change around it marks either a near miss or two roots closer than the
-    grid step. The minimum is located by bounded minimisation; if the sign there (or just
-    beside it: the minimiser may stop at one of the roots) differs from its neighbours,
-    both roots are bracketed.
+    With the Atkin--Lehner system (squarefree levels) each prime p | N gets a sign
+    eps_p = +-1 (2^omega(N) sign patterns per parity); the multi-cusp system (other levels)
+    splits by parity only.
     """
-    out = []
-    for i in range(max(lo, 1), min(hi, len(grid) - 1)):
-        if not (logs[i] < logs[i - 1] and logs[i] < logs[i + 1]):
-            continue
-        if signs[i - 1] != signs[i] or signs[i] != signs[i + 1]:
-            continue
-        a, b = float(grid[i - 1]), float(grid[i + 1])
-        res = minimize_scalar(lambda R: det(R)[1], bounds=(a, b), method="bounded",
-                              options={"xatol": 1e-6 * (b - a), "maxiter": 40})
-        m = float(res.x)
-        for p in (m, m - 1e-9 * (b - a), m + 1e-9 * (b - a)):
-            if a < p < b and det(p)[0] != signs[i]:
-                out += [(a, p), (p, b)]
-                break
-    return out
-
-
-def _store_count(group, R: float, settings: SearchSettings) -> int:
-    """Coefficients to store: at least ``n_coeffs``, and enough to evaluate the form to the
-    truncation target anywhere in the fundamental domain (heights >= Y0 in every cusp)."""
-    # a few per cent of margin: the evaluator rounds heights down and bounds whole tails
-    need = truncation_M0(R, 0.97 * group.fundamental_domain_height, settings.eps)
-    return max(settings.n_coeffs, int(math.ceil(1.03 * need)))
-
-
-def _store_height(R: float, m: int, p1: SolverParams) -> float:
-    """A height at which a(1..m) are all determined accurately.
-
-    Row n of the system divides by Kt(2 pi n Y), which decays exponentially beyond the
-    turning point 2 pi n Y = R (DLMF 10.40.2 / docs/theory.md §3.2); a(n) stays accurate
-    while 2 pi n Y <= R + 2 R^{1/3} + 6 (measured on PSL(2,Z) at R = 10, 300, 1000).
-    """
-    return min(p1.Y, (R + 2.0 * R ** (1.0 / 3.0) + 6.0) / (2.0 * math.pi * m))
+    for p in parities:
+        if p not in PARITIES:
+            raise InputError(f"parity {p!r} is not allowed; use 'even' or 'odd'")
+    kind = system or default_kind(group)
+    if kind != "atkin-lehner":
+        return [SymmetryClass(p) for p in dict.fromkeys(parities)]
+    primes = sorted(group.primes)
+    return [
+        SymmetryClass(par, tuple(zip(primes, signs)))
+        for par in dict.fromkeys(parities)
+        for signs in itertools.product((1, -1), repeat=len(primes))
+    ]
 
 
 def _check_window(R_min: float, R_max: float) -> None:
@@ -228,268 +243,485 @@ def _check_window(R_min: float, R_max: float) -> None:
         raise InputError(f"R_min={R_min!r} must be smaller than R_max={R_max!r}")
 
 
-def search_classes(
+# ----------------------------------------------------------------------------------------
+# the lattice of expansion points
+# ----------------------------------------------------------------------------------------
+
+
+class PointLattice:
+    """Expansion points and the R intervals they own.
+
+    The distance between points is w(R) = min(a, H / max(R, 1)) with a = ``max_step`` and
+    H = (mean spacing x R) / ``steps_per_spacing``; the edges are e_j = phi^{-1}(j + offset)
+    with phi(R) = int_0^R dr / w(r), the point c_j = phi^{-1}(j + offset + 1/2) owns
+    [e_j, e_{j+1}). Everything depends on the level, the number of classes and the settings,
+    never on a window.
+    """
+
+    def __init__(self, H: float, a: float, offset: float) -> None:
+        self.H, self.a, self.offset = float(H), float(a), float(offset)
+        self.p0 = max(1.0 / self.a, 1.0 / self.H)
+        self.rc = max(1.0, self.H / self.a)
+        self.y1 = self.p0
+        self.y2 = self.y1 + (self.rc - 1.0) / self.a
+
+    def phi(self, R: float) -> float:
+        if R <= 1.0:
+            return self.p0 * R
+        if R <= self.rc:
+            return self.y1 + (R - 1.0) / self.a
+        return self.y2 + (R * R - self.rc * self.rc) / (2.0 * self.H)
+
+    def phi_inv(self, y: float) -> float:
+        if y <= 0.0:
+            return 0.0
+        if y <= self.p0:
+            return y / self.p0
+        if y <= self.y2:
+            return 1.0 + (y - self.y1) * self.a
+        return math.sqrt(self.rc * self.rc + 2.0 * self.H * (y - self.y2))
+
+    def edge(self, j: int) -> float:
+        return self.phi_inv(j + self.offset)
+
+    def center(self, j: int) -> float:
+        return self.phi_inv(j + self.offset + 0.5)
+
+    def index(self, R: float) -> int:
+        """The point owning R."""
+        return int(math.floor(self.phi(R) - self.offset))
+
+    def width(self, j: int) -> float:
+        return self.edge(j + 1) - self.edge(j)
+
+
+def lattice_for(group, n_classes: int, settings: SearchSettings) -> PointLattice:
+    """The lattice of expansion points of a level searched with ``n_classes`` classes."""
+    H = 6.0 * n_classes / (group.index * settings.steps_per_spacing)
+    return PointLattice(H, settings.max_step, settings.offset)
+
+
+# ----------------------------------------------------------------------------------------
+# one chunk of expansion points at one height
+# ----------------------------------------------------------------------------------------
+
+
+@dataclass
+class _Counts:
+    points: int = 0
+    pencil: int = 0
+    newton_steps: int = 0
+    relinearised: int = 0
+    lost: int = 0
+    recovered: int = 0
+    splits: int = 0
+
+
+def _null_count(kind: str, size: int, level: int) -> int:
+    """Block size of the null-space probe: above the largest multiplicity expected (one per
+    class for Atkin--Lehner classes; the oldforms g(dz), d | N, and twists otherwise). The
+    probe doubles it when every direction comes out null."""
+    from maasscomp.groups import divisors
+
+    return min(size, 3 if kind == "atkin-lehner" else 2 * len(divisors(level)) + 4)
+
+
+def _examine(system, R: float, A: np.ndarray, dA: np.ndarray, lu, dc: np.ndarray, v: np.ndarray,
+             k: int, settings: SearchSettings):
+    """(m, sv, null vectors in unknowns, kappa) of a refined root."""
+    while True:
+        nb = pn.null_basis(A, lu, k)
+        m = int(np.sum(nb.sv <= settings.mult_tol))
+        if m < k or k >= A.shape[0]:
+            break
+        k = min(A.shape[0], 2 * k)
+    kappa = pn.root_condition(A, dA, lu, v) if m == 1 else math.inf
+    return m, nb.sv, dc[:, None] * nb.vectors[:, :m], kappa
+
+
+#: Largest accepted kappa w, with kappa = max |start - root| / d^2 observed at a point of
+#: width w: a root at d = w/2 then moves by at most 0.35 w / 2, half the overlap of the
+#: collection intervals. A point above it is searched again as two halves.
+KAPPA_WIDTH_MAX = 0.7
+
+#: Levels of halving of one expansion point at most.
+MAX_SPLITS = 4
+
+
+def _scan_adaptive(system, ksrc: KSource, c: float, kdk, width: float, j: int, height: int,
+                   settings: SearchSettings, counts: _Counts, group, kind: str, known: list[Root],
+                   depth: int = 0) -> list[Root]:
+    """:func:`_scan_point`, repeated on the two halves of the point where the linearisation
+    was seen to be too coarse (observed kappa w above :data:`KAPPA_WIDTH_MAX`, or a start whose
+    root was found only by linearising again). The decision depends on the point alone, so
+    the result does not depend on the window."""
+    k, dk = kdk if kdk is not None else ksrc.values_and_derivative(c)
+    roots, kappa, trouble = _scan_point(system, ksrc, c, k, dk, width, j, height, settings, counts, group,
+                                        kind, known)
+    if depth < MAX_SPLITS and (trouble or kappa * width > KAPPA_WIDTH_MAX):
+        counts.splits += 1
+        for cc in (c - 0.25 * width, c + 0.25 * width):
+            roots += _scan_adaptive(system, ksrc, cc, None, 0.5 * width, j, height, settings, counts, group,
+                                    kind, known + roots, depth + 1)
+    return roots
+
+
+def _scan_point(system, ksrc: KSource, c: float, k: np.ndarray, dk: np.ndarray, width: float,
+                j: int, height: int, settings: SearchSettings, counts: _Counts, group, kind: str,
+                known: list[Root]) -> tuple[list[Root], float, bool]:
+    """The roots of ``system`` near the expansion point c that are not in ``known``, the
+    observed linearisation constant kappa = max |start - root| / d^2, and whether a start
+    needed a second linearisation to reach its root.
+
+    Every pencil eigenvalue within (1/2 + OVERLAP) widths of c is polished by Newton's
+    method, except one that lies within 2 % of the width of a root found already (from
+    this point or a neighbour): it counts as one more arrival at that root. A root reached
+    by more pencil eigenvalues of this point than its null space has dimensions hides a
+    neighbour, which the problem linearised at the root then shows.
+    """
+    radius = (0.5 + OVERLAP) * width
+    A0 = system.matrix_from_k(k)
+    A1 = system.matrix_from_k(dk)
+    dr, dc = pn.scalings(A0)
+    pr = pn.pencil_roots(pn.scale(A0, dr, dc), pn.scale(A1, dr, dc), radius)
+    counts.pencil += pr.delta.size
+
+    def mats(R: float):
+        kk, dd = ksrc.values_and_derivative(R)
+        return pn.scale(system.matrix_from_k(kk), dr, dc), pn.scale(system.matrix_from_k(dd), dr, dc)
+
+    tol = 4e-16 * max(1.0, c)
+    near_tol = 0.02 * width
+    k_null = _null_count(kind, system.size, group.level)
+    pool: list[Root] = [r for r in known if abs(r.R - c) <= 2.0 * radius]
+    n_known = len(pool)
+    members: dict[int, int] = {}  # index in pool -> pencil eigenvalues of this point there
+    reach: dict[int, float] = {}  # index in pool -> farthest start that arrived there
+
+    def find(R: float, within: float) -> int | None:
+        best, bd = None, within
+        for i, r in enumerate(pool):
+            d = abs(r.R - R)
+            if d <= bd:
+                best, bd = i, d
+        return best
+
+    def arrive(i: int, start: float) -> None:
+        members[i] = members.get(i, 0) + 1
+        reach[i] = max(reach.get(i, 0.0), abs(start - pool[i].R))
+
+    def polish(start: float, v: np.ndarray, max_move: float) -> bool:
+        nr = pn.newton_root(mats, start, v, tol=tol, max_move=max_move)
+        counts.newton_steps += nr.steps
+        if not nr.converged:
+            return False
+        i = find(nr.R, 1e-10 * max(1.0, nr.R))
+        if i is None:
+            m, sv, U, kappa = _examine(system, nr.R, nr.A, nr.dA, nr.lu, dc, nr.vector, k_null, settings)
+            pool.append(Root(R=nr.R, height=height, m=m, sv=sv, vectors=U, unknown_scale=dc, system=system,
+                             kappa=kappa, steps=nr.steps, start=start, patch=j))
+            i = len(pool) - 1
+        arrive(i, start)
+        return True
+
+    retry: list[float] = []
+    # nearest first: their starts are the most accurate, and their observed errors
+    # |start - root| / d^2 calibrate how far the farther starts may be from their roots
+    kappa_lin = 0.0
+    for idx in np.argsort(np.abs(pr.delta)):
+        d, v = pr.delta[idx], pr.vectors[:, idx]
+        start = c + float(d.real)
+        i = find(start, min(max(near_tol, 4.0 * kappa_lin * abs(d) ** 2), 0.25 * width))
+        if i is not None:
+            arrive(i, start)
+            continue
+        n_before = len(pool)
+        if not polish(start, np.real(v), max_move=2.0 * radius):
+            retry.append(start)
+        elif len(pool) > n_before and abs(d) > 1e-3 * width:
+            kappa_lin = max(kappa_lin, abs(pool[-1].R - start) / abs(d) ** 2)
+    # a start that did not converge: linearise again there (its root is near, if any)
+    trouble = False
+    for start in retry:
+        counts.relinearised += 1
+        for s2, v2 in _local_pencil(mats, start, 0.5 * radius):
+            if find(s2, 1e-9 * max(1.0, s2)) is not None:
+                continue
+            n_before = len(pool)
+            if not polish(s2, v2, max_move=radius):
+                counts.lost += 1
+            elif len(pool) > n_before:
+                trouble = True
+    # more arrivals than null dimensions: a neighbour was skipped; look again from the root
+    done: set[int] = set()
+    for _round in range(4):
+        todo = [i for i, n in members.items() if n > pool[i].m and i not in done]
+        if not todo:
+            break
+        for i in todo:
+            done.add(i)
+            counts.relinearised += 1
+            r = pool[i]
+            # the skipped neighbour lies within the reach of the starts that arrived here
+            look = min(2.0 * reach.get(i, 0.0) + near_tol, radius)
+            for s2, v2 in _local_pencil(mats, r.R, look):
+                if abs(s2 - r.R) <= 1e-9 * max(1.0, r.R) or find(s2, 1e-9 * max(1.0, s2)) is not None:
+                    continue
+                polish(s2, v2, max_move=2.0 * look)
+    return pool[n_known:], kappa_lin, trouble
+
+
+def _other_height(system, ksrc: KSource, r: Root, height: int, settings: SearchSettings, counts: _Counts,
+                  group, kind: str) -> Root | None:
+    """The root of ``system`` at r.R if the system is singular there (smallest relative
+    singular value below 1e-9), refined by Newton's method; None otherwise."""
+    k, dk = ksrc.values_and_derivative(r.R)
+    A = system.matrix_from_k(k)
+    dr, dc = pn.scalings(A)
+    As = pn.scale(A, dr, dc)
+    lu = sla.lu_factor(As, check_finite=False)
+    counts.newton_steps += 1
+    nb = pn.null_basis(As, lu, 2)
+    if not nb.sv[0] <= 1e-9:
+        return None
+
+    def mats(R: float):
+        kk, dd = ksrc.values_and_derivative(R)
+        return pn.scale(system.matrix_from_k(kk), dr, dc), pn.scale(system.matrix_from_k(dd), dr, dc)
+
+    tol = settings.R_tol * max(1.0, r.R)
+    nr = pn.newton_root(mats, r.R, nb.vectors[:, 0], tol=4e-16 * max(1.0, r.R), max_move=tol)
+    counts.newton_steps += nr.steps
+    if not nr.converged:
+        return None
+    counts.recovered += 1
+    k_null = _null_count(kind, system.size, group.level)
+    m, sv, U, kappa = _examine(system, nr.R, nr.A, nr.dA, nr.lu, dc, nr.vector, k_null, settings)
+    return Root(R=nr.R, height=height, m=m, sv=sv, vectors=U, unknown_scale=dc, system=system, kappa=kappa,
+                steps=nr.steps, start=r.R, patch=r.patch)
+
+
+def _local_pencil(mats, R: float, radius: float):
+    """Starting points (and vectors) from the pencil linearised at R."""
+    A0, A1 = mats(R)
+    pr = pn.pencil_roots(A0, A1, radius)
+    return [(R + float(d.real), np.real(v)) for d, v in zip(pr.delta, pr.vectors.T)]
+
+
+# ----------------------------------------------------------------------------------------
+# the search
+# ----------------------------------------------------------------------------------------
+
+
+def search_forms(
     group,
-    classes: Sequence[SymmetryClass],
     R_min: float,
     R_max: float,
+    parities: Sequence[str] = ("even", "odd"),
     settings: SearchSettings | None = None,
     *,
-    step: float | None = None,
+    classes: Sequence[SymmetryClass] | None = None,
+    system: str | None = None,
     progress: Callable[[int, int], None] | None = None,
-) -> dict[SymmetryClass, SearchResult]:
-    """Find every eigenvalue of the given symmetry classes of a level with R in [R_min, R_max].
+) -> SearchResult:
+    """Find every eigenvalue with R in [R_min, R_max] of the symmetry classes of Gamma0(N).
 
     Parameters
     ----------
     group : Gamma0
-        From :func:`maasscomp.groups.gamma0` (squarefree level).
-    classes : sequence of SymmetryClass
-        Classes to search; they share the sample points and the K-Bessel values.
+        From :func:`maasscomp.groups.gamma0`, any level.
     R_min, R_max : float
-        The window, 0 < R_min < R_max. A root exactly at R_max is reported; one exactly
-        at R_min is reported too (callers that split a window de-duplicate).
+        The window, 0 < R_min < R_max (both ends included).
+    parities : sequence of {"even", "odd"}
+        Parities searched (all classes of each), unless ``classes`` is given.
     settings : SearchSettings, optional
-    step : float, optional
-        Grid step override (default: mean spacing / steps_per_spacing, capped by max_step).
+    classes : sequence of SymmetryClass, optional
+        Search only these classes (they must fit the system).
+    system : {"atkin-lehner", "multi-cusp"}, optional
+        The linear system (default: Atkin--Lehner classes at squarefree levels, the
+        multi-cusp system elsewhere; the multi-cusp system also works at squarefree levels,
+        with parity classes).
     progress : callable(done, total), optional
-        Called after each grid point.
+        Called after each expansion point (both heights count).
 
     Returns
     -------
-    dict
-        One :class:`SearchResult` per class: accepted forms sorted by R, and every
-        candidate with the reason it was kept or rejected.
+    SearchResult
+        One :class:`Form` per basis member of every confirmed eigenspace.
     """
     settings = settings or SearchSettings()
     _check_window(R_min, R_max)
+    kind = system or default_kind(group)
+    if classes is None:
+        classes = symmetry_classes(group, tuple(parities), kind)
     classes = list(dict.fromkeys(classes))
     if not classes:
         raise InputError("no symmetry class to search; give at least one")
-    n_classes = 2 * 2 ** len(group.primes)
-    if step is None:
-        step = min(settings.max_step, mean_spacing(group.level, n_classes, R_max, group.index) / settings.steps_per_spacing)
-    if not (isinstance(step, (int, float)) and math.isfinite(step) and step > 0):
-        raise InputError(f"grid step={step!r} is not allowed; it must be a positive finite number")
+    check_classes(group, classes, kind)
+    n_classes = len(symmetry_classes(group, ("even", "odd"), kind))
+    lattice = lattice_for(group, n_classes, settings)
+    pad = 1e-8 * max(1.0, R_max)
+    j_lo, j_hi = lattice.index(max(R_min - pad, 0.0)), lattice.index(R_max + pad)
+    points = list(range(j_lo, j_hi + 1))
+    chunks: dict[int, list[int]] = {}
+    for j in points:
+        chunks.setdefault(j // PATCHES_PER_CHUNK, []).append(j)
 
     Y0 = group.fundamental_domain_height
-    # one set of parameters for the whole scan: a jump of M0 would flip the sign of det
-    p1 = choose_params(R_max + 1.0, settings.Y1_frac * Y0, settings.eps)
-    p2 = choose_params(R_max + 1.0, settings.Y2_frac * Y0, settings.eps)
-    s1, s2 = SampleSet(group, p1), SampleSet(group, p2)
-    sys1 = {c: HejhalSystem(group, c, p1, s1) for c in classes}
-    sys2 = {c: HejhalSystem(group, c, p2, s2) for c in classes}
-
-    n = max(3, int(math.ceil((R_max - R_min) / step)) + 1)
-    grid = np.linspace(R_min, R_max, n)
-    roots: dict[SymmetryClass, list[float]] = {c: [] for c in classes}
-    # Both heights are scanned: a spurious root of the truncated system moves with Y, so a
-    # true eigenvalue that shares a grid cell with spurious roots at one height (three roots
-    # give one sign change) shows as a clean sign change at the other.
-    scans = [(s1, sys1), (s2, sys2)]
-    total = n * len(scans)
+    fracs = (settings.Y1_frac, settings.Y2_frac)
+    roots: dict[SymmetryClass, list[list[Root]]] = {c: [[], []] for c in classes}
+    counts = _Counts()
+    total = 2 * len(points)
     done = 0
-    for samples, systems in scans:
-        signs = {c: np.empty(n) for c in classes}
-        logs = {c: np.empty(n) for c in classes}
-        for i0, i1 in _chunks(grid, samples):
-            lo, hi = max(i0 - 1, 0), min(i1 + 1, n - 1)  # one cell of overlap for the minima test
-            ksrc = _KSource(samples, float(grid[lo]), float(grid[hi]))
-            for i in range(lo, hi + 1):
-                k = ksrc(float(grid[i]))
-                for c in classes:
-                    signs[c][i], logs[c][i] = slogdet(systems[c].matrix_from_k(k))
-                if i0 <= i < i1 or i == n - 1:
-                    done += 1
-                    if progress is not None:
-                        progress(done, total)
-            for c in classes:
-                det = lambda R, c=c: slogdet(systems[c].matrix_from_k(ksrc(R)))  # noqa: E731
-                sg = signs[c]
-                for i in range(i0, i1):
-                    if sg[i] * sg[i + 1] < 0:
-                        roots[c].append(_refine(det, float(grid[i]), float(grid[i + 1])))
-                for a, b in _hidden_pairs(det, grid, sg, logs[c], i0 if i0 > 0 else 1, i1):
-                    roots[c].append(_refine(det, a, b))
+    grid_step = 0.0
+    for q, js in sorted(chunks.items()):
+        # parameters and interpolants depend on the chunk (all its points), not on the window
+        q0, q1 = q * PATCHES_PER_CHUNK, (q + 1) * PATCHES_PER_CHUNK - 1
+        lo, hi = lattice.edge(q0), lattice.edge(q1 + 1)
+        w_lo, w_hi = lattice.width(q0), lattice.width(q1)
+        k_lo, k_hi = max(lo - 2.0 * w_lo, 0.5 * lo), hi + 2.0 * w_hi
+        fams: list[SystemFamily] = []
+        ksrcs: list[KSource] = []
+        first: dict = {}
+        for h, frac in enumerate(fracs):
+            params = choose_params(k_hi + 0.5, frac * Y0, settings.eps)
+            fams.append(build_family(group, classes, params, kind))
+            ksrcs.append(KSource(fams[h].k_points, k_lo, k_hi))
+            for cls in classes:
+                first[(cls, h)] = len(roots[cls][h])
+            for j in js:
+                c = lattice.center(j)
+                w = lattice.width(j)
+                grid_step = max(grid_step, w)
+                kdk = ksrcs[h].values_and_derivative(c)
+                counts.points += 1
+                for cls in classes:
+                    roots[cls][h].extend(
+                        _scan_adaptive(fams[h].systems[cls], ksrcs[h], c, kdk, w, j, h + 1, settings, counts,
+                                       group, kind, roots[cls][h][-64:]))
+                done += 1
+                if progress is not None:
+                    progress(done, total)
+        # a root of this chunk at one height only: is the other height's system singular
+        # there too? (a pencil eigenvalue that Newton could not follow at that height)
+        for cls in classes:
+            for h in (0, 1):
+                other = 1 - h
+                theirs = np.array([r.R for r in roots[cls][other]])
+                for r in list(roots[cls][h][first[(cls, h)]:]):
+                    tol = settings.R_tol * max(1.0, r.R)
+                    if theirs.size and np.min(np.abs(theirs - r.R)) <= tol:
+                        continue
+                    got = _other_height(fams[other].systems[cls], ksrcs[other], r, other + 1, settings,
+                                        counts, group, kind)
+                    if got is not None:
+                        roots[cls][other].append(got)
+                        theirs = np.append(theirs, got.R)
 
-    results = {}
-    for c in classes:
-        candidates: list[Candidate] = []
-        forms: list[Form] = []
-        for Rc in sorted(roots[c]):
-            # the same eigenvalue is a root at both heights: confirm it once
-            if any(abs(f.R - Rc) <= 1e-9 * max(1.0, Rc) for f in forms):
-                continue
-            ok, reason, form = _confirm(group, c, Rc, sys1[c], sys2[c], settings)
-            if ok and any(abs(f.R - form.R) <= 1e-9 * max(1.0, form.R) for f in forms):
-                ok, reason = False, "polished onto an eigenvalue confirmed already"
-            candidates.append(Candidate(R=Rc, accepted=ok, reason=reason))
-            if ok:
-                forms.append(form)
-        results[c] = SearchResult(
-            level=group.level, symmetry=c, R_min=float(R_min), R_max=float(R_max),
-            forms=tuple(sorted(forms, key=lambda f: f.R)), candidates=tuple(candidates),
-            grid_step=float(step), params=p1,
-        )
-    return results
+    fams = ksrcs = []  # the last chunk's tables are not needed any more
 
+    # null spaces at a third height 0.9 Y2 for the coefficient errors, from an interpolant
+    # per chunk built when the chunk holds an eigenvalue
+    thirds: dict[int, tuple] = {}
 
-def search_window(
-    group,
-    symmetry: SymmetryClass,
-    R_min: float,
-    R_max: float,
-    settings: SearchSettings | None = None,
-    *,
-    step: float | None = None,
-    progress: Callable[[int, int], None] | None = None,
-) -> SearchResult:
-    """Find every eigenvalue of one symmetry class with R in [R_min, R_max].
+    def third_for(cls: SymmetryClass, q: int):
+        def get(R: float, m: int):
+            if q not in thirds:
+                q0, q1 = q * PATCHES_PER_CHUNK, (q + 1) * PATCHES_PER_CHUNK - 1
+                lo, hi = lattice.edge(q0), lattice.edge(q1 + 1)
+                k_lo, k_hi = max(lo - 2.0 * lattice.width(q0), 0.5 * lo), hi + 2.0 * lattice.width(q1)
+                params = choose_params(k_hi + 0.5, 0.9 * fracs[1] * Y0, settings.eps)
+                fam = build_family(group, classes, params, kind)
+                thirds[q] = (fam, KSource(fam.k_points, k_lo, k_hi))
+            fam, ksrc = thirds[q]
+            sy = fam.systems[cls]
+            A = sy.matrix_from_k(ksrc.values(R))
+            dr, dc = pn.scalings(A)
+            As = pn.scale(A, dr, dc)
+            lu = sla.lu_factor(As, check_finite=False)
+            nb = pn.null_basis(As, lu, m + 2)
+            return sy, nb.sv, dc[:, None] * nb.vectors[:, :m], dc
+        return get
 
-    See :func:`search_classes` (this is the one-class case).
-    """
-    return search_classes(group, [symmetry], R_min, R_max, settings, step=step, progress=progress)[symmetry]
-
-
-def _confirm(group, symmetry: SymmetryClass, Rc: float, sys1: HejhalSystem, sys2: HejhalSystem,
-             settings: SearchSettings):
-    """Independent confirmation of a det root; returns (ok, reason, Form | None).
-
-    The root Rc of det A at Y1 is first polished by the secant method on the two-height
-    difference H(R) = a(2..k; Y1) - a(2..k; Y2) (least squares over its components), with
-    exact K values; an eigenvalue makes H vanish and the iteration converges within a few
-    steps close to Rc, while at a spurious root H stays large and the iteration wanders.
-    """
-    k = min(8, sys1.params.M0 // 2, sys2.params.M0 // 2)
-    scale = max(1.0, Rc)
-    R_start = Rc
-
-    def H(R: float) -> np.ndarray:
-        return sys1.solve(R)[1:k] - sys2.solve(R)[1:k]
-
-    H0 = H(Rc)
-    if not np.all(np.isfinite(H0)):
-        return False, "singular system at the candidate", None
-    R_prev, H_prev = Rc + 1e-9 * scale, None
-    H_prev = H(R_prev)
-    step = math.inf
-    for _ in range(8):
-        dH = H0 - H_prev
-        denom = float(dH @ dH)
-        if denom == 0.0:
-            break
-        step = -float(H0 @ dH) / denom * (Rc - R_prev)
-        R_prev, H_prev = Rc, H0
-        Rc += step
-        if abs(Rc - R_start) > settings.R_tol * scale:
-            return False, (f"two-height secant iteration left the root by {abs(Rc - R_start):.2e} "
-                           f"(more than R_tol x max(1, R))"), None
-        H0 = H(Rc)
-        if abs(step) <= 8 * np.finfo(float).eps * scale:
-            break
-    dcoef = float(np.max(np.abs(H0)))
-    if not np.isfinite(dcoef) or dcoef > settings.coeff_tol:
-        return False, f"coefficients at Y1 and Y2 differ by {dcoef:.2e}", None
-    dR = abs(step)
-
-    # final solve at a height giving n_coeffs accurate coefficients, and a second height
-    # for their error estimate
-    m = _store_count(group, Rc, settings)
-    Ys = _store_height(Rc, m, sys1.params)
-    ps_a = choose_params(Rc + 0.5, Ys, settings.eps)
-    ps_b = choose_params(Rc + 0.5, 0.9 * Ys, settings.eps)
-    ca = HejhalSystem(group, symmetry, ps_a).solve(Rc)
-    cb = HejhalSystem(group, symmetry, ps_b).solve(Rc)
-    m = min(m, ca.size, cb.size)
-    coeffs = ca[:m]
-    errs = np.abs(ca[:m] - cb[:m])
-    hres = hecke_residual(coeffs, group.level, min(settings.hecke_nmax, m))
-    if hres > settings.hecke_tol:
-        return False, f"Hecke residual {hres:.2e} above {settings.hecke_tol:.0e}", None
-
-    al = dict(symmetry.al_signs)
-    extra: dict = {"al_signs": {str(p): s for p, s in al.items()}}
-    if group.level == 1:
-        is_new = True
-    else:
-        cl = classify(group.level, symmetry, Rc, coeffs)
-        is_new = cl.is_new
-        extra["atkin_lehner_residual"] = cl.newform_residual
-        if not cl.is_new:
-            extra["old_from_level"] = cl.old_from_level
-            extra["old_relation_residual"] = cl.old_relation_residual
-        elif cl.newform_residual > 1e-6:
-            # confirmed eigenvalue, but neither old nor a clean newform: keep it unlabelled
-            is_new = None
-            extra["classification_note"] = (
-                f"not an eigenvalue at a divisor level, yet c(p) = -eps_p/sqrt(p) fails by "
-                f"{cl.newform_residual:.2e}")
-    # every cusp of a squarefree level is W_Q(infinity) with scaling W_Q/sqrt(Q), so its
-    # expansion is eps_Q times the one at infinity (docs/theory.md §1.1)
-    cusp_sign = np.array([symmetry.al_sign(c.atkin_lehner_Q) for c in group.cusps], dtype=float)
-    form = Form(
-        level=group.level,
-        R=float(Rc),
-        symmetry=symmetry,
-        coeffs=cusp_sign[:, None] * coeffs[None, :],
-        coeff_errors=np.repeat(errs[None, :], len(cusp_sign), axis=0),
-        R_error=float(max(dR, 1e-15 * Rc)),
-        hecke_residual=hres,
-        params=ps_a,
-        is_new=is_new,
-        extra=extra,
-    )
-    if settings.lfunction_check and is_new:
-        from maasscomp.spectrum.extend import lfunction_label
-
-        extra["lfunction"] = lfunction_label(group, form)
-    return True, "confirmed", form
-
-
-def search_exceptional(group, symmetry: SymmetryClass, settings: SearchSettings | None = None,
-                       *, n_grid: int = 400) -> SearchResult:
-    """Search for exceptional eigenvalues lambda = 1/4 - t^2, t in (0, 1/2), of one class.
-
-    The same determinant-sign scan and two-height confirmation as :func:`search_window`,
-    on the system built with K_t of real order. Selberg's eigenvalue conjecture predicts
-    none for congruence groups; it is proved for small levels (Huxley 1985; for squarefree
-    N < 857 by Booker and Strömbergsson 2007 -- from memory), so every confirmed root here
-    would be a failure of the solver. The returned forms carry R = t (read lambda = 1/4 - t^2).
-    """
-    settings = settings or SearchSettings()
-    Y0 = group.fundamental_domain_height
-    p1 = choose_params(1.0, settings.Y1_frac * Y0, settings.eps)
-    p2 = choose_params(1.0, settings.Y2_frac * Y0, settings.eps)
-    sys1 = HejhalSystem(group, symmetry, p1)
-    sys2 = HejhalSystem(group, symmetry, p2)
-    grid = np.linspace(0.002, 0.498, n_grid)
-    det = lambda t: sys1.log_det(t, exceptional=True)  # noqa: E731
-    signs = np.array([det(float(t))[0] for t in grid])
+    forms: list[Form] = []
     candidates: list[Candidate] = []
-    for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
-        tc = _refine(det, float(grid[i]), float(grid[i + 1]))
-        a1 = sys1.solve(tc, exceptional=True)
-        a2 = sys2.solve(tc, exceptional=True)
-        d = float(np.max(np.abs(a1[1:6] - a2[1:6])))
-        ok = bool(np.isfinite(d) and d < settings.coeff_tol)
-        candidates.append(Candidate(R=tc, accepted=ok, reason="confirmed" if ok else f"coefficients at Y1 and Y2 differ by {d:.2e}"))
-    return SearchResult(level=group.level, symmetry=symmetry, R_min=0.0, R_max=0.5, forms=(),
-                        candidates=tuple(candidates), grid_step=float(grid[1] - grid[0]), params=p1)
+    spurious = 0
+    proposed = []
+    for cls in classes:
+        r1 = _dedupe(roots[cls][0], lattice)
+        r2 = _dedupe(roots[cls][1], lattice)
+        pairs, lone = _match(r1, r2, settings)
+        spurious += lone
+        proposed += [(b.patch // PATCHES_PER_CHUNK, cls, a, b) for a, b in pairs
+                     if R_min <= 0.5 * (a.R + b.R) <= R_max]
+    # chunk by chunk, so that one third-height interpolant is alive at a time
+    proposed.sort(key=lambda t: (t[0], t[2].R))
+    for q, cls, a, b in proposed:
+        for old in [k for k in thirds if k != q]:
+            del thirds[old]
+        ok, reason, new = _accept(group, cls, kind, a, b, settings, third_for(cls, q))
+        candidates.append(Candidate(R=0.5 * (a.R + b.R), symmetry=cls, accepted=ok, reason=reason))
+        forms.extend(new)
+    thirds.clear()
+    forms.sort(key=lambda f: (f.R, f.symmetry.label, f.basis_index))
+    stats = {
+        "expansion_points": counts.points, "pencil_eigenvalues": counts.pencil,
+        "newton_steps": counts.newton_steps, "relinearised": counts.relinearised,
+        "halved_points": counts.splits,
+        "lost_starts": counts.lost, "recovered_at_other_height": counts.recovered,
+        "spurious_roots": spurious,
+    }
+    return SearchResult(level=group.level, classes=tuple(classes), R_min=float(R_min), R_max=float(R_max),
+                        forms=tuple(forms), candidates=tuple(sorted(candidates, key=lambda c: c.R)),
+                        system=kind, grid_step=float(grid_step), stats=stats)
 
 
-def symmetry_classes(group, parities: tuple[str, ...] = ("even", "odd")) -> list[SymmetryClass]:
-    """All symmetry classes searched at a level: parities times Atkin--Lehner signs.
+def _dedupe(roots: list[Root], lattice: PointLattice) -> list[Root]:
+    """One root per distinct R (found from several expansion points): keep the one refined
+    from the point that owns it."""
+    out: list[Root] = []
+    for r in sorted(roots, key=lambda r: r.R):
+        if out and abs(out[-1].R - r.R) <= 1e-10 * max(1.0, r.R):
+            if lattice.index(r.R) == r.patch and lattice.index(out[-1].R) != out[-1].patch:
+                out[-1] = r
+            continue
+        out.append(r)
+    return out
 
-    For squarefree levels each prime p | N gets a sign eps_p = +-1 (2^omega(N) sign
-    patterns per parity); other levels are split by parity only.
-    """
-    import itertools
 
-    if not group.is_squarefree:
-        return [SymmetryClass(p) for p in parities]
-    primes = sorted(group.primes)
-    return [
-        SymmetryClass(par, tuple(zip(primes, signs)))
-        for par in parities
-        for signs in itertools.product((1, -1), repeat=len(primes))
-    ]
+def _match(r1: list[Root], r2: list[Root], settings: SearchSettings):
+    """Pairs (root at Y1, root at Y2) with the same R, and the roots of one height only."""
+    pairs, used = [], set()
+    R2 = np.array([r.R for r in r2])
+    lone = 0
+    for a in r1:
+        if R2.size:
+            i = int(np.argmin(np.abs(R2 - a.R)))
+            if i not in used and abs(R2[i] - a.R) <= settings.R_tol * max(1.0, a.R):
+                pairs.append((a, r2[i]))
+                used.add(i)
+                continue
+        lone += 1
+    lone += len(r2) - len(used)
+    return pairs, lone
+
+
+def _accept(group, cls: SymmetryClass, kind: str, a: Root, b: Root, settings: SearchSettings, third):
+    """Check that the two heights see the same eigenspace; then build the forms."""
+    if a.m != b.m:
+        return False, f"null space of dimension {a.m} at Y1 but {b.m} at Y2", []
+    if a.m == 0:
+        return False, "no null direction", []
+    sa, sb = a.system, b.system
+    M = min(sa.params.M0, sb.params.M0)
+    mask = ((sa.storage_scale(a.unknown_scale)[:, :M] <= COMPARE_AMPLIFICATION * a.unknown_scale.min())
+            & (sb.storage_scale(b.unknown_scale)[:, :M] <= COMPARE_AMPLIFICATION * b.unknown_scale.min()))
+    C1 = sa.coefficients(a.vectors)[:, :, :M]
+    C2 = sb.coefficients(b.vectors)[:, :, :M]
+    gap = subspace_gap(C1, C2, mask)
+    if not (np.isfinite(gap) and gap <= settings.coeff_tol):
+        return False, f"null spaces at the two heights differ (sin angle {gap:.2e})", []
+    ok, reason, forms = build_forms(group, cls, kind, a, b, settings, third)
+    for f in forms:
+        f.extra["coefficient_subspace_gap"] = float(gap)
+    return ok, reason, forms

@@ -202,14 +202,16 @@ def test_all_problems_reported_together(tmp_path, monkeypatch, capsys):
     assert err.count("\n  - ") == 2
 
 
-def test_non_squarefree_level_without_general_search(tmp_path, monkeypatch, capsys):
-    import maasscomp.pipeline.tasks as tasks
-
-    monkeypatch.setattr(tasks, "general_search", lambda: None)
+def test_non_squarefree_levels_are_planned_like_the_others(tmp_path, monkeypatch, capsys):
+    """Every level has a search (the multi-cusp system where Atkin-Lehner classes do not
+    cover the cusps): `check` plans level 4 by parity, squarefree level 3 by Atkin-Lehner class."""
     monkeypatch.chdir(tmp_path)
     cfg = tmp_path / "job.toml"
-    cfg.write_text(GOOD.replace("levels = [1]", 'levels = "1..4"'))
-    _expect_error(capsys, tmp_path, ["run", cfg], "levels 4 is not squarefree", "not yet supported")
+    cfg.write_text(GOOD.replace("levels = [1]", "levels = [3, 4]"))
+    code, out, err = _call(capsys, ["check", cfg])
+    assert code == 0, err
+    assert "level    4: 1 classes (odd)" in out, out
+    assert "level    3: 2 classes (odd,3+, odd,3-)" in out, out
 
 
 def test_missing_and_unreadable_config(tmp_path, monkeypatch, capsys):

@@ -1,4 +1,4 @@
-"""The general-level search (any N, parity classes, multiplicities) on small windows.
+"""The search at non-squarefree levels (multi-cusp system, parity classes, multiplicities).
 
 External facts and their sources:
 * R = 9.53369526135 (odd) with a(2..7), R = 12.173008324679677 (odd), R = 13.779751351890738
@@ -22,9 +22,10 @@ from maasscomp.groups import gamma0
 from maasscomp.hejhal.multicusp import MultiCuspSystem
 from maasscomp.hejhal.params import choose_params
 from maasscomp.hejhal.types import SymmetryClass
-from maasscomp.spectrum.general import MULTIPLICITY_TOL, search_window_general
 from maasscomp.spectrum.hecke import hecke_residual
-from maasscomp.spectrum.search import search_window, symmetry_classes
+from maasscomp.spectrum.search import SearchSettings, search_forms
+
+MULTIPLICITY_TOL = SearchSettings().mult_tol
 
 WIN1 = (9.45, 9.62)  # holds R1 = 9.5337... only, at levels 1, 4, 9 (odd)
 WIN2 = (12.10, 12.25)  # holds R2 = 12.1730... only, at levels 1, 4, 9 (odd)
@@ -56,12 +57,13 @@ def searches():
         (9, "odd", WIN2),
         (9, "even", WIN1),
     ]:
-        out[(N, parity, win)] = search_window_general(gamma0(N), parity, *win)
+        out[(N, parity, win)] = search_forms(gamma0(N), *win, (parity,), system="multi-cusp")
     return out
 
 
 def _third_height_nullity(form) -> int:
-    """Dimension of the null space at R at a height used by neither search scan."""
+    """Dimension of the null space at R at a height used neither by the search nor by the
+    storage solves."""
     G = gamma0(form.level)
     S = MultiCuspSystem(G, form.parity, choose_params(form.R + 1, 0.6 * G.fundamental_domain_height))
     return S.null_space(form.R, MULTIPLICITY_TOL)[1].shape[1]
@@ -137,7 +139,7 @@ def test_level9_even_class_holds_the_twist_of_the_first_level1_form(searches, le
 
 def test_every_candidate_has_a_reason(searches):
     for res in searches.values():
-        assert res.symmetry == SymmetryClass(res.symmetry.parity)
+        assert len(res.classes) == 1 and res.classes[0] == SymmetryClass(res.classes[0].parity)
         acc = [c for c in res.candidates if c.accepted]
         assert len(acc) == len(_distinct(res.forms))
         assert all(c.reason for c in res.candidates)
@@ -147,8 +149,8 @@ def test_squarefree_level_agrees_with_the_atkin_lehner_search():
     """Level 6, odd, around R1: the general search (parity only) finds the same eigenvalue as
     the Atkin-Lehner search, with multiplicity = number of sign classes holding it."""
     G = gamma0(6)
-    general = search_window_general(G, "odd", *WIN1)
-    by_class = [f.R for sym in symmetry_classes(G, ("odd",)) for f in search_window(G, sym, *WIN1).forms]
+    general = search_forms(G, *WIN1, ("odd",), system="multi-cusp")
+    by_class = [f.R for f in search_forms(G, *WIN1, ("odd",)).forms]
     distinct = _distinct(general.forms)
     assert len(distinct) == 1
     assert len(by_class) == distinct[0].multiplicity == 4
@@ -160,13 +162,15 @@ def test_bad_input():
 
     G = gamma0(4)
     with pytest.raises(InputError, match="parity"):
-        search_window_general(G, "up", 1.0, 2.0)
+        search_forms(G, 1.0, 2.0, ("up",))
     with pytest.raises(InputError, match="R_min"):
-        search_window_general(G, "odd", 3.0, 2.0)
+        search_forms(G, 3.0, 2.0, ("odd",))
     with pytest.raises(InputError, match="R_max"):
-        search_window_general(G, "odd", 1.0, float("nan"))
+        search_forms(G, 1.0, float("nan"), ("odd",))
     with pytest.raises(InputError, match="mult_tol"):
-        search_window_general(G, "odd", 1.0, 2.0, mult_tol=0.1)
+        SearchSettings(mult_tol=0.1)
+    with pytest.raises(InputError, match="Atkin-Lehner"):
+        search_forms(G, 1.0, 2.0, classes=[SymmetryClass("odd", ((2, 1),))])
 
 
 def test_level25_multiplicity_two_newform_pair_related_by_the_twist_mod_5():
@@ -174,7 +178,7 @@ def test_level25_multiplicity_two_newform_pair_related_by_the_twist_mod_5():
     newform f of level 25 the twist f (x) chi_5 has level 25, the same R and the same parity,
     with Hecke eigenvalues chi_5(p) lambda_f(p) (from memory of the theory). The window
     [1.95, 2.15] was found by our own scan of level 25 (no published value is used)."""
-    res = search_window_general(gamma0(25), "odd", 1.95, 2.15)
+    res = search_forms(gamma0(25), 1.95, 2.15, ("odd",))
     distinct = _distinct(res.forms)
     assert len(distinct) == 1
     pair = [f for f in res.forms if f.R == distinct[0].R]

@@ -21,9 +21,10 @@ import pytest
 from maasscomp.groups import gamma0
 from maasscomp.hejhal.multicusp import MultiCuspSystem
 from maasscomp.hejhal.params import choose_params
-from maasscomp.spectrum.general import MULTIPLICITY_TOL, search_window_general
 from maasscomp.spectrum.hecke import hecke_residual
-from maasscomp.spectrum.search import search_window, symmetry_classes
+from maasscomp.spectrum.search import SearchSettings, search_forms
+
+MULTIPLICITY_TOL = SearchSettings().mult_tol
 
 pytestmark = pytest.mark.slow
 
@@ -33,7 +34,7 @@ WINDOW = (1.0, 10.0)
 @pytest.fixture(scope="module")
 def spectra():
     return {
-        (N, parity): search_window_general(gamma0(N), parity, *WINDOW)
+        (N, parity): search_forms(gamma0(N), *WINDOW, (parity,))
         for N in (4, 8, 9)
         for parity in ("even", "odd")
     }
@@ -92,7 +93,7 @@ def test_level12_old_spectrum_from_levels_4_and_3(spectra, parity):
     """d(12/M) = 2 d(4/M) for M | 4, so an eigenvalue of multiplicity m at level 4 has
     multiplicity 2m at level 12; a level-3 newform (multiplicity d(3) = 2 at level 9) has
     d(4) = 3 oldforms at level 12 (Atkin & Lehner 1970)."""
-    twelve = _eigenvalues(search_window_general(gamma0(12), parity, *WINDOW))
+    twelve = _eigenvalues(search_forms(gamma0(12), *WINDOW, (parity,)))
     four = _eigenvalues(spectra[(4, parity)])
     nine = _eigenvalues(spectra[(9, parity)])
     for R, m in four.items():
@@ -117,12 +118,11 @@ def test_level2_general_search_agrees_with_atkin_lehner_search_and_weyl():
     G = gamma0(2)
     total = 0
     for parity in ("even", "odd"):
-        general = _eigenvalues(search_window_general(G, parity, *WINDOW))
+        general = _eigenvalues(search_forms(G, *WINDOW, (parity,), system="multi-cusp"))
         by_class: dict[float, int] = {}
-        for sym in symmetry_classes(G, (parity,)):
-            for f in search_window(G, sym, *WINDOW).forms:
-                key = next((r for r in by_class if abs(r - f.R) <= 1e-9), f.R)
-                by_class[key] = by_class.get(key, 0) + 1
+        for f in search_forms(G, *WINDOW, (parity,)).forms:
+            key = next((r for r in by_class if abs(r - f.R) <= 1e-9), f.R)
+            by_class[key] = by_class.get(key, 0) + 1
         assert len(general) == len(by_class)
         for R, m in general.items():
             assert _lookup(by_class, R) == m, (parity, R)

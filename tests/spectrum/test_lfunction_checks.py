@@ -174,7 +174,7 @@ def test_sym2_too_few_coefficients():
 def _search_available():
     try:
         from maasscomp.groups import gamma0  # noqa: F401
-        from maasscomp.spectrum.search import search_window  # noqa: F401
+        from maasscomp.spectrum.search import search_forms  # noqa: F401
     except Exception as exc:  # noqa: BLE001 - any import failure means "not there yet"
         return f"maasscomp.spectrum.search is not importable yet ({exc})"
     return None
@@ -188,7 +188,7 @@ def test_functional_equation_newforms_level_N(level):
         pytest.skip(reason)
     from maasscomp.groups import gamma0
     from maasscomp.hejhal.types import SymmetryClass
-    from maasscomp.spectrum.search import SearchSettings, search_window
+    from maasscomp.spectrum.search import SearchSettings, search_forms
 
     g = gamma0(level)
     primes = [p for p in (2, 3, 5, 7, 11) if level % p == 0]
@@ -197,7 +197,7 @@ def test_functional_equation_newforms_level_N(level):
     for parity in ("even", "odd"):
         for signs in np.ndindex(*([2] * len(primes))):
             al = tuple((p, 1 if s == 0 else -1) for p, s in zip(primes, signs))
-            res = search_window(g, SymmetryClass(parity, al), 1.0, 10.0, settings)
+            res = search_forms(g, 1.0, 10.0, settings=settings, classes=[SymmetryClass(parity, al)])
             for f in res.forms:
                 if f.is_new is not True:
                     continue

@@ -20,7 +20,8 @@ import pytest
 from maasscomp.groups import gamma0
 from maasscomp.hejhal.types import SymmetryClass
 from maasscomp.spectrum.hecke import atkin_lehner_residual, hecke_residual
-from maasscomp.spectrum.search import search_exceptional, search_window, symmetry_classes
+from maasscomp.spectrum.exceptional import search_exceptional
+from maasscomp.spectrum.search import search_forms, symmetry_classes
 
 LEVEL1_ODD = (9.53369526135, 12.173008324679677)  # published (see module docstring)
 
@@ -30,8 +31,7 @@ def _divisor_count(n: int) -> int:
 
 
 def _search_odd_near(N: int, lo: float, hi: float):
-    g = gamma0(N)
-    return [f for sym in symmetry_classes(g, ("odd",)) for f in search_window(g, sym, lo, hi).forms]
+    return list(search_forms(gamma0(N), lo, hi, ("odd",)).forms)
 
 
 @pytest.mark.parametrize("N", [2, 3, 5])
@@ -60,8 +60,7 @@ def test_level1_forms_reappear_as_oldforms_slow(N):
 
 
 def _all_forms(N: int, R_max: float):
-    g = gamma0(N)
-    return [f for sym in symmetry_classes(g, ("even", "odd")) for f in search_window(g, sym, 0.5, R_max).forms]
+    return list(search_forms(gamma0(N), 0.5, R_max).forms)
 
 
 def _check_newforms(forms, N):
@@ -96,5 +95,5 @@ def test_newform_relations_slow(N):
 def test_no_exceptional_eigenvalues(N):
     g = gamma0(N)
     for sym in symmetry_classes(g, ("even", "odd")):
-        res = search_exceptional(g, sym)
-        assert not [c for c in res.candidates if c.accepted], res.candidates
+        cands = search_exceptional(g, sym)
+        assert not [c for c in cands if c.accepted], cands

@@ -1,6 +1,6 @@
 """Precompute the small store of Maass forms used by the supnorm tests.
 
-Runs the project's own eigenvalue search (``maasscomp.spectrum.search.search_window``) and
+Runs the project's own eigenvalue search (``maasscomp.spectrum.search.search_forms``) and
 writes every confirmed form to ``tests/supnorm/data/supnorm_forms.h5``:
 
 * level 1, all symmetry classes, 0.5 <= R <= 20, 400 coefficients (enough primes for
@@ -28,7 +28,7 @@ from pathlib import Path
 from joblib import Parallel, delayed
 
 from maasscomp.groups import gamma0
-from maasscomp.spectrum.search import SearchSettings, search_window, symmetry_classes
+from maasscomp.spectrum.search import SearchSettings, search_forms, symmetry_classes
 from maasscomp.store import Store
 
 OUT = Path(__file__).resolve().parent / "data" / "supnorm_forms.h5"
@@ -42,21 +42,20 @@ PLAN_RS = [(2, "odd", ((2, -1),), 5.3, 5.5), (5, "odd", ((5, -1),), 3.0, 3.1), (
 
 def _task(N: int, sym, R_max: float, n_coeffs: int):
     t = time.perf_counter()
-    res = search_window(gamma0(N), sym, 0.5, R_max, SearchSettings(n_coeffs=n_coeffs))
+    res = search_forms(gamma0(N), 0.5, R_max, settings=SearchSettings(n_coeffs=n_coeffs), classes=[sym])
     return N, sym.label, list(res.forms), time.perf_counter() - t
 
 
 def _task_rs(N: int, parity: str, signs, lo: float, hi: float):
     from maasscomp.hejhal.types import SymmetryClass
 
-    res = search_window(gamma0(N), SymmetryClass(parity, signs), lo, hi, SearchSettings(n_coeffs=900))
+    res = search_forms(gamma0(N), lo, hi, settings=SearchSettings(n_coeffs=900),
+                       classes=[SymmetryClass(parity, signs)])
     return list(res.forms)
 
 
 def _task_general(N: int, parity: str, lo: float, hi: float):
-    from maasscomp.spectrum.general import search_window_general
-
-    return list(search_window_general(gamma0(N), parity, lo, hi).forms)
+    return list(search_forms(gamma0(N), lo, hi, (parity,)).forms)
 
 
 def main() -> int:
