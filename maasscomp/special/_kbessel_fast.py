@@ -30,7 +30,23 @@ _LN2_LO = _dd.LN2_LO
 _TWOPI_HI = _dd.TWOPI_HI
 _TWOPI_LO = _dd.TWOPI_LO
 
-_jit = numba.njit(cache=True, nogil=True, error_model="numpy")
+_JIT_OPTIONS = {"nogil": True, "error_model": "numpy"}
+
+
+def _jit(fn):
+    """Compile with numba, caching the machine code on disk where that is possible.
+
+    numba caches next to the source (``__pycache__``) or in the user's cache folder
+    (``NUMBA_CACHE_DIR``, else the home cache); on a read-only installation with neither
+    writable, ``cache=True`` raises at decoration time.  The kernels are then compiled
+    without a disk cache (a few seconds on first use in each process).
+    """
+    try:
+        return numba.njit(cache=True, **_JIT_OPTIONS)(fn)
+    except RuntimeError as exc:
+        if "cannot cache" not in str(exc):
+            raise
+        return numba.njit(cache=False, **_JIT_OPTIONS)(fn)
 
 
 @_jit
