@@ -32,7 +32,13 @@ def _fmt(v) -> str:
         return repr(v)
 
 
+def _is_bool(v) -> bool:
+    return isinstance(v, (bool, np.bool_))
+
+
 def _check_R(R) -> float:
+    if _is_bool(R):
+        raise InputError(f"R = {R!r} is a boolean, not a number; R must be a finite float in (0, {R_MAX:g}]")
     try:
         Rf = float(R)
     except (TypeError, ValueError):
@@ -42,7 +48,19 @@ def _check_R(R) -> float:
     return Rf
 
 
+def _reject_bools(v, name: str, allowed: str) -> None:
+    """Booleans are not numbers here (numpy would silently read True as 1.0)."""
+    bad = _is_bool(v) or (isinstance(v, np.ndarray) and v.dtype == np.bool_)
+    if not bad and isinstance(v, (list, tuple)):
+        obj = np.asarray(v, dtype=object).reshape(-1)
+        bad = any(_is_bool(e) for e in obj) or (obj.size > 0 and isinstance(obj[0], np.ndarray)
+                                                and any(np.asarray(e).dtype == np.bool_ for e in obj))
+    if bad:
+        raise InputError(f"{name} = {v!r} contains booleans, which are not numbers; {allowed}")
+
+
 def _check_x(x) -> np.ndarray:
+    _reject_bools(x, "x", "x must be finite and > 0")
     try:
         xa = np.asarray(x, dtype=np.float64)
     except (TypeError, ValueError):
@@ -113,7 +131,10 @@ def ktilde_dx(R: float, x: ArrayLike) -> np.ndarray:
     Same parameters and errors as :func:`ktilde`.  Computed from the same tables
     (differentiated Chebyshev interpolants, analytic derivatives of the phase and
     exponent, term-wise differentiated series), so it is about one to two digits less
-    accurate than the function itself.
+    accurate than the function itself.  For tiny x the derivative is about
+    ``R cos(R log(x/2) - arg Gamma(1 + iR)) / x`` (``-1/x`` as R -> 0); where that exceeds
+    the double range (subnormal x) the result is ``+inf`` or ``-inf`` with the sign of the
+    true value, never nan.
     """
     Rf = _check_R(R)
     xa = _check_x(x)
@@ -125,6 +146,7 @@ def ktilde_dx(R: float, x: ArrayLike) -> np.ndarray:
 
 def ktilde_many(R: ArrayLike, x: ArrayLike) -> np.ndarray:
     """:func:`ktilde` broadcast over both ``R`` and ``x`` (loops over the distinct R values)."""
+    _reject_bools(R, "R", f"R must be finite floats in (0, {R_MAX:g}]")
     try:
         Ra = np.asarray(R, dtype=np.float64)
     except (TypeError, ValueError):
