@@ -20,7 +20,7 @@ from numpy.typing import ArrayLike
 from maasscomp.errors import InputError
 from maasscomp.special._kbessel_table import KTable
 
-R_MAX = 10000.0
+R_MAX = 100000.0  # largest R verified against arb (data/reference/kbessel_arb_table_large.csv)
 _CACHE_SIZE = 32
 
 
@@ -90,7 +90,7 @@ def ktilde(R: float, x: ArrayLike) -> np.ndarray:
     Parameters
     ----------
     R : float
-        Order parameter, ``0 < R <= 10000``.
+        Order parameter, ``0 < R <= R_MAX`` (10^5).
     x : array_like
         Arguments, all finite and ``> 0``.
 
@@ -180,7 +180,7 @@ def airy_peak(R: float) -> tuple[float, float]:
     Parameters
     ----------
     R : float
-        ``0 < R <= 10000``.
+        ``0 < R <= R_MAX`` (10^5).
 
     Returns
     -------
