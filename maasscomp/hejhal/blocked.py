@@ -250,8 +250,12 @@ class RInterpolatedMatrices:
             nodes = interpolation_nodes_needed(omega, 0.5 * (self.Rb - self.Ra))
         m = int(nodes)
         k = np.arange(m)
-        self.t_nodes = np.cos(np.pi * (2 * k + 1) / (2 * m))[::-1].copy()  # first-kind points, increasing
-        self.R_nodes = 0.5 * (self.Ra + self.Rb) + 0.5 * (self.Rb - self.Ra) * self.t_nodes
+        t = np.cos(np.pi * (2 * k + 1) / (2 * m))[::-1]  # first-kind points, increasing
+        self.R_nodes = 0.5 * (self.Ra + self.Rb) + 0.5 * (self.Rb - self.Ra) * t
+        # the weights must refer to the nodes actually used: at R = 2e4 rounding R_j to a
+        # double moves it by up to 1.8e-12, which times dKt/dR ~ arccosh(R/x) |Kt| is an
+        # error of 1e-11 relative if ignored (2 R_j - Ra - Rb is exact in double)
+        self.t_nodes = (2.0 * self.R_nodes - self.Ra - self.Rb) / (self.Rb - self.Ra)
         self._mats = system.assemble_transposed(self.R_nodes)
         # self-check at an off-node R on the first column block (smallest x, highest omega)
         R_chk = 0.5 * (self.Ra + self.Rb) + 0.3183098861837907 * (self.Rb - self.Ra) / max(m, 2)
