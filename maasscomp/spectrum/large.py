@@ -92,7 +92,7 @@ class LargeSettings:
     Y1_frac: float = 0.92
     Y2_frac: float = 0.80
     centres_per_spacing: float = 2.0
-    R_tol: float = 1e-9
+    R_tol: float = 1e-11
     coeff_tol: float = 1e-6
     hecke_tol: float = 1e-6
     n_coeffs: int = 60
