@@ -9,6 +9,8 @@ search_window_general
     Window search for any level (parity classes, multiplicities).
 forms_in_window, nearest_forms, NearResult
     Forms near a target R, with the Weyl expectation.
+locate_large, forms_in_window_large, LargeSettings, LargeSearchResult
+    The same at large R (to 1e5): node-interpolated matrices, linearised roots, bounded memory.
 complete_search, CompleteSearch
     Window search with Weyl's-law completeness check and automatic re-search.
 weyl_count, weyl_density, expected_in_window, weyl_constant, completeness
@@ -32,6 +34,7 @@ from maasscomp.spectrum.lfunction import (
     sym2_functional_equation_residual,
     sym2_L1,
 )
+from maasscomp.spectrum.large import LargeSearchResult, LargeSettings, forms_in_window_large, locate_large
 from maasscomp.spectrum.near import NearResult, forms_in_window, nearest_forms
 from maasscomp.spectrum.search import (
     SearchResult,

@@ -29,9 +29,10 @@ factorisations and Kt evaluations. This module spends them where they are needed
    needed than the Y1 solution determines, two further solves at lower heights supply
    them.
 
-The main entry point is :func:`locate_large`, with the same "k nearest forms" contract as
-:func:`maasscomp.spectrum.near.nearest_forms`: windows around R0 are searched until the k-th
-nearest confirmed form lies inside the searched interval.
+Entry points: :func:`locate_large`, with the same "k nearest forms" contract as
+:func:`maasscomp.spectrum.near.nearest_forms` (windows around R0 are searched until the k-th
+nearest confirmed form lies inside the searched interval), and :func:`forms_in_window_large`
+(every form in an interval, all roots verified).
 """
 
 from __future__ import annotations
@@ -143,7 +144,8 @@ class LargeSearchResult:
     Attributes
     ----------
     forms : tuple of Form
-        The k confirmed forms nearest to R0, sorted by distance.
+        :func:`locate_large`: the k confirmed forms nearest to R0, sorted by distance;
+        :func:`forms_in_window_large`: every confirmed form, sorted by R.
     R0 : float
     windows : tuple of (float, float)
         The R intervals searched; together they cover one interval.
@@ -391,7 +393,7 @@ def _make_form(group, c: SymmetryClass, r1, r2, p1: SolverParams, p2: SolverPara
     return form, "confirmed"
 
 
-def _search_window(group, classes, R0: float, lo: float, hi: float, k_left: int, settings: LargeSettings,
+def _search_window(group, classes, R0: float, lo: float, hi: float, k_left: float, settings: LargeSettings,
                    costs: _Costs, log) -> tuple[list[Form], list[LargeCandidate], int]:
     """All roots of the window at Y1, then verification in order of distance to R0 until
     k_left forms are confirmed."""
@@ -488,11 +490,7 @@ def locate_large(
         raise InputError(f"k={k!r} is not allowed; it must be an integer >= 1")
     if isinstance(R0, bool) or not isinstance(R0, (int, float)) or not (1.0 <= R0 <= R_MAX - 1.0):
         raise InputError(f"R0={R0!r} is not allowed; it must be a number in [1, {R_MAX - 1:g}]")
-    parities = tuple(parities)
-    if not parities or any(p not in ("even", "odd") for p in parities) or len(set(parities)) != len(parities):
-        raise InputError(f"parities={parities!r} is not allowed; give 'even', 'odd' or both")
-    if not group.is_squarefree:
-        raise InputError(f"level {group.level} is not squarefree; locate_large needs a squarefree level")
+    parities = _check_parities_and_group(group, parities)
     R0 = float(R0)
     classes = symmetry_classes(group, parities)
     costs = _Costs()
@@ -523,11 +521,29 @@ def locate_large(
         lo, hi = min(lo, new[0][0]), max(hi, new[-1][1])
     else:  # pragma: no cover - 60 rings would mean a broken search
         raise ConvergenceError(f"fewer than {k} forms confirmed within {hi - R0:.3g} of R0={R0}", best=forms)
+    return _result(group, parities, forms, cands, mism, windows, R0, k, costs, w0, c0)
+
+
+def _check_parities_and_group(group, parities) -> tuple[str, ...]:
+    parities = tuple(parities)
+    if not parities or any(p not in ("even", "odd") for p in parities) or len(set(parities)) != len(parities):
+        raise InputError(f"parities={parities!r} is not allowed; give 'even', 'odd' or both")
+    if not group.is_squarefree:
+        raise InputError(f"level {group.level} is not squarefree; the large-R search needs a squarefree level")
+    return parities
+
+
+def _result(group, parities, forms, cands, mism, windows, R0, k, costs, w0, c0) -> LargeSearchResult:
     # the same form can be confirmed from two windows that share an end point
     uniq: list[Form] = []
     for f in sorted(forms, key=lambda f: abs(f.R - R0)):
         if not any(g.symmetry == f.symmetry and abs(g.R - f.R) <= 1e-8 * max(1.0, f.R) for g in uniq):
             uniq.append(f)
+    uniq_c: list[LargeCandidate] = []
+    for c in sorted(cands, key=lambda c: (c.R, not c.accepted)):
+        if not any(d.symmetry == c.symmetry and abs(d.R - c.R) <= 1e-8 * max(1.0, c.R) for d in uniq_c):
+            uniq_c.append(c)
+    lo, hi = min(a for a, _ in windows), max(b for _, b in windows)
     try:
         from maasscomp.spectrum.weyl import expected_in_window
 
@@ -537,6 +553,47 @@ def locate_large(
     stats = costs.as_dict()
     stats["wall_s"]["total"] = time.perf_counter() - w0
     stats["cpu_s"]["total"] = time.process_time() - c0
-    return LargeSearchResult(forms=tuple(uniq[:k]), R0=R0, windows=tuple(sorted(windows)),
-                             candidates=tuple(sorted(cands, key=lambda c: c.R)), expected=exp,
-                             parity_mismatches=mism, stats=stats)
+    kept = uniq[:k] if k is not None else sorted(uniq, key=lambda f: f.R)
+    return LargeSearchResult(forms=tuple(kept), R0=R0, windows=tuple(sorted(windows)),
+                             candidates=tuple(uniq_c), expected=exp, parity_mismatches=mism, stats=stats)
+
+
+def forms_in_window_large(
+    group,
+    R_min: float,
+    R_max: float,
+    parities: Sequence[str] = ("even", "odd"),
+    settings: LargeSettings | None = None,
+    *,
+    log: Callable[[str], None] | None = None,
+) -> LargeSearchResult:
+    """Every form of the given parities with R in [R_min, R_max], verified as in :func:`locate_large`.
+
+    The interval is cut into sub-windows of about three mean spacings of a class (so that
+    five or six node matrices interpolate A(R) on each); every root at the scan height is
+    verified. ``forms`` of the result are sorted by R and ``R0`` is R_min.
+    """
+    from maasscomp.spectrum.search import symmetry_classes
+
+    settings = settings or LargeSettings()
+    log = log or (lambda s: None)
+    for name, v in (("R_min", R_min), ("R_max", R_max)):
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not (1.0 <= v <= R_MAX - 0.5):
+            raise InputError(f"{name}={v!r} is not allowed; it must be a number in [1, {R_MAX - 0.5:g}]")
+    if not R_min < R_max:
+        raise InputError(f"R_min={R_min!r} must be smaller than R_max={R_max!r}")
+    parities = _check_parities_and_group(group, parities)
+    classes = symmetry_classes(group, parities)
+    costs = _Costs()
+    w0, c0 = time.perf_counter(), time.process_time()
+    width = 3.0 * _mean_spacing_class(group, _n_classes_total(group), R_max)
+    n = max(1, int(math.ceil((R_max - R_min) / width)))
+    edges = np.linspace(float(R_min), float(R_max), n + 1)
+    forms, cands, mism = [], [], 0
+    for a, b in zip(edges[:-1], edges[1:]):
+        f, c, m = _search_window(group, classes, float(a), float(a), float(b), math.inf, settings, costs, log)
+        forms += f
+        cands += c
+        mism += m
+    windows = [(float(a), float(b)) for a, b in zip(edges[:-1], edges[1:])]
+    return _result(group, parities, forms, cands, mism, windows, float(R_min), None, costs, w0, c0)

@@ -19,7 +19,8 @@ import pytest
 
 from maasscomp.errors import InputError
 from maasscomp.groups import gamma0
-from maasscomp.spectrum.large import LargeSettings, accurate_count, locate_large, store_count
+from maasscomp.spectrum.large import (LargeSettings, accurate_count, forms_in_window_large, locate_large,
+                                      store_count)
 from maasscomp.spectrum.near import forms_in_window
 
 from tests.conftest import read_reference_csv
@@ -61,6 +62,20 @@ def test_agrees_with_the_window_search_at_R300():
     for c in res.candidates:
         if c.accepted:
             assert any(abs(c.R - r.R) <= 1e-9 * c.R for r in ref.forms)
+
+
+def test_window_version_finds_the_same_forms_as_the_window_search():
+    """Every form in [300, 300.12] (about six, Weyl's law) found by both methods, same R and a(2)."""
+    g = gamma0(1)
+    res = forms_in_window_large(g, 300.0, 300.12, settings=LargeSettings(lfunction_check=False))
+    ref = forms_in_window(g, 300.0, 300.12)
+    assert len(res.windows) >= 2 and res.parity_mismatches == 0
+    assert [(f.parity, round(f.R, 8)) for f in res.forms] == [(f.parity, round(f.R, 8)) for f in ref.forms]
+    for f, r in zip(res.forms, ref.forms):
+        assert abs(f.R - r.R) <= 1e-9 * f.R and abs(f.coeffs[0, 1] - r.coeffs[0, 1]) <= 1e-8
+    assert all(c.accepted or not c.reason.startswith("not examined") for c in res.candidates)
+    with pytest.raises(InputError, match="R_min"):
+        forms_in_window_large(g, 300.0, 299.0)
 
 
 @pytest.mark.slow
