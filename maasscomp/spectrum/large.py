@@ -37,6 +37,7 @@ nearest confirmed form lies inside the searched interval), and :func:`forms_in_w
 
 from __future__ import annotations
 
+import contextlib
 import math
 import time
 from dataclasses import dataclass, field
@@ -184,19 +185,14 @@ class _Costs:
         self.cpu: dict[str, float] = {}
         self.M0: dict[str, int] = {}
 
+    @contextlib.contextmanager
     def timed(self, stage: str):
-        costs = self
-
-        class _T:
-            def __enter__(self_inner):
-                self_inner.w, self_inner.c = time.perf_counter(), time.process_time()
-
-            def __exit__(self_inner, *exc):
-                costs.wall[stage] = costs.wall.get(stage, 0.0) + time.perf_counter() - self_inner.w
-                costs.cpu[stage] = costs.cpu.get(stage, 0.0) + time.process_time() - self_inner.c
-                return False
-
-        return _T()
+        w, c = time.perf_counter(), time.process_time()
+        try:
+            yield
+        finally:
+            self.wall[stage] = self.wall.get(stage, 0.0) + time.perf_counter() - w
+            self.cpu[stage] = self.cpu.get(stage, 0.0) + time.process_time() - c
 
     def as_dict(self) -> dict:
         return {"lu_factorisations": self.lu, "kt_evaluations": self.kt_points,
