@@ -229,10 +229,11 @@ def accurate_count(R: float, Y: float) -> int:
 class _Window:
     """Matrices of one window at one height for a group of classes."""
 
-    def __init__(self, group, classes, params, a, b, settings: LargeSettings, costs: _Costs, label: str):
+    def __init__(self, group, classes, params, a, b, settings: LargeSettings, costs: _Costs, label: str,
+                 nodes: int | None = None):
         self.system = BlockedSystem(group, classes, params, workers=settings.workers)
         with costs.timed("assembly"):
-            self.interp = RInterpolatedMatrices(self.system, a, b)
+            self.interp = RInterpolatedMatrices(self.system, a, b, nodes=nodes)
         costs.kt_points += self.interp.nodes * self.system.kt_points()
         costs.node_bytes_max = max(costs.node_bytes_max, self.interp.stored_bytes())
         costs.M0[label] = params.M0
@@ -247,19 +248,25 @@ class _Window:
         self.interp.release()
 
 
-def _class_groups(group, classes, p1: SolverParams, p2: SolverParams, settings: LargeSettings,
-                  nodes: int) -> list[list[SymmetryClass]]:
-    """All classes together if their node matrices fit the memory limit, else one by one."""
-    M0 = max(p1.M0, p2.M0)
-    per_class = nodes * 8.0 * M0 * M0
-    working = 4 * 8.0 * M0 * M0  # A, dA, their stacked product, LU workspace
-    if per_class * len(classes) + working <= settings.memory_limit:
-        return [list(classes)]
-    if per_class + working <= settings.memory_limit:
-        return [[c] for c in classes]
-    raise InputError(
-        f"memory_limit={settings.memory_limit:.3g} bytes is too small at M0={M0}: one class needs "
-        f"{per_class + working:.3g} bytes ({nodes} node matrices and working space)")
+def _node_count(group, b: float, half_width: float, Y: float, least: int = 2) -> int:
+    """Chebyshev nodes for an interval of the given half-width ending at b, at height Y."""
+    omega = math.acosh(max(b / (2 * math.pi * Y), 1.0))
+    return max(least, interpolation_nodes_needed(omega, half_width))
+
+
+def _class_groups(classes, p1: SolverParams, p2: SolverParams, settings: LargeSettings, nodes1: int,
+                  nodes2: int) -> list[list[SymmetryClass]]:
+    """All classes of a window together if their node matrices at the scan height fit the
+    memory limit, else one by one (the second height always holds one class at a time)."""
+    w1, w2 = 8.0 * p1.M0 ** 2, 8.0 * p2.M0 ** 2
+    working = 4  # A, dA, their stacked product, LU workspace
+    second = (nodes2 + working) * w2
+    for group_size in (len(classes), 1):
+        if max((nodes1 * group_size + working) * w1, second) <= settings.memory_limit:
+            return [list(classes)] if group_size == len(classes) else [[c] for c in classes]
+    need = max((nodes1 + working) * w1, second)
+    raise InputError(f"memory_limit={settings.memory_limit:.3g} bytes is too small at M0={p1.M0}/{p2.M0}: "
+                     f"one class needs {need:.3g} bytes (node matrices and working space)")
 
 
 def _scan_class(win: _Window, c: SymmetryClass, lo: float, hi: float, h: float, pad: float,
@@ -314,13 +321,18 @@ def _scan_class(win: _Window, c: SymmetryClass, lo: float, hi: float, h: float, 
 
 
 def _verify(group, c: SymmetryClass, r1, win2: _Window, Y1: float, settings: LargeSettings, costs: _Costs,
-            lo: float, hi: float, pad: float):
-    """Second-height check of one Y1 root; returns (ok, reason, R2, root at Y2)."""
+            lo: float, hi: float):
+    """Second-height check of one Y1 root; returns (ok, reason, R2, root at Y2).
+
+    Newton's method at Y2 starts at the Y1 root and must stay in [lo, hi], a neighbourhood a
+    few times R_tol x max(1, R) wide: a spurious root of the Y1 system has no Y2 root there.
+    """
     with costs.timed("newton"):
-        r2 = refine_root(lambda R: win2.pair(c, R), r1.R, lo=lo - pad, hi=hi + pad)
+        r2 = refine_root(lambda R: win2.pair(c, R), r1.R, lo=lo, hi=hi)
     scale = max(1.0, r1.R)
     if not r2.converged:
-        return False, "Newton's method at the second height did not converge near the root", None, r2
+        return (False, "no root at the second height near the root (Newton's method left the "
+                f"neighbourhood of +-{0.5 * (hi - lo):.1e} or did not converge)", None, r2)
     if abs(r2.R - r1.R) > settings.R_tol * scale:
         return (False, f"the root at the second height lies {abs(r2.R - r1.R):.2e} away (more than "
                 f"R_tol x max(1, R))", r2.R, r2)
@@ -400,15 +412,18 @@ def _search_window(group, classes, R0: float, lo: float, hi: float, k_left: floa
     h = spacing / settings.centres_per_spacing
     pad = 0.25 * h
     a, b = lo - pad, hi + pad
-    omega = math.acosh(max(b / (2 * math.pi * settings.Y2_frac * Y0), 1.0))
-    nodes = interpolation_nodes_needed(omega, 0.5 * (b - a))
+    nodes1 = _node_count(group, b, 0.5 * (b - a), p1.Y)
+    # the second height only follows single roots: a short interval around each, whose
+    # half-width exceeds the accepted distance of the two roots
+    w2 = max(4.0 * settings.R_tol, 1e-13) * max(1.0, hi)
+    nodes2 = _node_count(group, b + w2, w2, p2.Y, least=3)
     forms: list[Form] = []
     cands: list[LargeCandidate] = []
     mism = 0
-    for cls_group in _class_groups(group, classes, p1, p2, settings, nodes):
+    for cls_group in _class_groups(classes, p1, p2, settings, nodes1, nodes2):
         log(f"window [{lo:.8f}, {hi:.8f}]: classes {[c.label for c in cls_group]}, M0 = {p1.M0} / {p2.M0}, "
-            f"{nodes} nodes")
-        win1 = _Window(group, cls_group, p1, a, b, settings, costs, "Y1")
+            f"{nodes1} / {nodes2} nodes")
+        win1 = _Window(group, cls_group, p1, a, b, settings, costs, "Y1", nodes1)
         found = {}
         for c in cls_group:
             roots, mm = _scan_class(win1, c, lo, hi, h, pad, costs, log)
@@ -418,16 +433,16 @@ def _search_window(group, classes, R0: float, lo: float, hi: float, k_left: floa
         win1.release()
         del win1
         order = sorted(((r, c) for c in cls_group for r in found[c]), key=lambda t: abs(t[0].R - R0))
-        if not order:
-            continue
-        win2 = _Window(group, [c for c in cls_group if found[c]], p2, a, b, settings, costs, "Y2")
         confirmed_here = 0
         for r1, c in order:
             if confirmed_here >= k_left:
                 cands.append(LargeCandidate(r1.R, c, False, "not examined: farther from R0 than the "
                                                             "forms confirmed already"))
                 continue
-            ok, reason, R2, r2 = _verify(group, c, r1, win2, p1.Y, settings, costs, lo, hi, pad)
+            win2 = _Window(group, [c], p2, r1.R - w2, r1.R + w2, settings, costs, "Y2", nodes2)
+            ok, reason, R2, r2 = _verify(group, c, r1, win2, p1.Y, settings, costs, r1.R - w2, r1.R + w2)
+            win2.release()
+            del win2
             form = None
             if ok:
                 form, reason = _make_form(group, c, r1, r2, p1, p2, settings, costs)
@@ -437,8 +452,6 @@ def _search_window(group, classes, R0: float, lo: float, hi: float, k_left: floa
             if ok:
                 forms.append(form)
                 confirmed_here += 1
-        win2.release()
-        del win2
     return forms, cands, mism
 
 
