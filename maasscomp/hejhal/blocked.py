@@ -46,7 +46,7 @@ import scipy.fft
 from maasscomp.errors import ConvergenceError, InputError
 from maasscomp.hejhal.system import check_symmetry
 from maasscomp.hejhal.types import SolverParams, SymmetryClass
-from maasscomp.special import ktilde
+from maasscomp.special import ktilde, ktilde_nodes
 
 TWO_PI = 2.0 * math.pi
 
@@ -63,14 +63,14 @@ class BlockedSystem:
     params : SolverParams
         Y, M0, Q (Y below the group's fundamental-domain height).
     block : int, optional
-        Columns per block (default: about 2.5e6 Kt points per block).
+        Columns per block (default: about 6e6 Kt values per block, over all R assembled at once).
     workers : int
         Threads assembling blocks concurrently (1 = no threads).
 
     Notes
     -----
-    Memory: the output matrices (8 M0^2 bytes each) plus about ``6 x 8 x Q x block`` bytes
-    per worker. No array of size Q x M0 is formed.
+    Memory: the output matrices (8 M0^2 bytes each) plus about 100 MB per worker for the
+    block temporaries. No array of size Q x M0 is formed.
     """
 
     def __init__(self, group, classes: Sequence[SymmetryClass], params: SolverParams, *,
@@ -106,10 +106,15 @@ class BlockedSystem:
         for c in classes:
             sign = np.array([c.al_sign(group.cusps[int(j)].atkin_lehner_Q) for j in cusp], dtype=float)
             self._weight[c] = sign * np.sqrt(self.ys)
-        if block is None:
-            block = max(16, min(M0, int(2.5e6 // Q)))
-        self.block = int(block)
+        self._block_user = None if block is None else int(block)
+        self.block = self._block_size(1)
         self.x_min = TWO_PI * min(params.Y, float(self.ys.min()))
+
+    def _block_size(self, n_R: int) -> int:
+        """Columns per block: the caller's choice, else about 6e6 Kt values (all R) per block."""
+        if self._block_user is not None:
+            return self._block_user
+        return max(8, min(self.params.M0, int(6e6 // (self.params.Q * max(n_R, 1)))))
 
     # -- sizes -------------------------------------------------------------------------------
     @property
@@ -137,8 +142,11 @@ class BlockedSystem:
         for par in {c.parity for c in self.classes}:
             cs[par] = np.cos(arg) if par == "even" else np.sin(arg)
         del arg
-        for r, R in enumerate(Rs):
-            k = ktilde(R, xk)
+        # all R at once: the large phase of Kt is shared by nearby R (special.ktilde_nodes)
+        kall = ktilde_nodes(Rs, xk)
+        del xk
+        for r in range(len(Rs)):
+            k = kall[r]
             for c in self.classes:
                 B = k * cs[c.parity]
                 B *= self._weight[c][None, :]
@@ -156,7 +164,8 @@ class BlockedSystem:
         Rs = [float(R) for R in Rs]
         M0 = self.params.M0
         out = {c: np.empty((len(Rs), M0, M0)) for c in self.classes}
-        blocks = [(l0, min(l0 + self.block, M0)) for l0 in range(0, M0, self.block)]
+        bs = self._block_size(len(Rs))
+        blocks = [(l0, min(l0 + bs, M0)) for l0 in range(0, M0, bs)]
         if self.workers == 1:
             for l0, l1 in blocks:
                 self._fill_block(Rs, out, l0, l1)

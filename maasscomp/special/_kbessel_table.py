@@ -296,3 +296,48 @@ class KTable:
             if isinstance(pc, PiecewiseCheb):
                 tot += pc.coef.nbytes + pc.edges.nbytes
         return tot
+
+
+def evaluate_nodes(tables: list[KTable], x: np.ndarray) -> np.ndarray:
+    """Kt(R_j, x) for the R_j of several tables at once: array (len(tables), x.size).
+
+    With the compiled kernel and oscillatory tables (R >~ 10) the large phase is shared by
+    nearby R (:func:`._kbessel_fast.eval_nodes_kernel`); otherwise each table is evaluated
+    on its own.
+    """
+    x = np.ascontiguousarray(x, dtype=np.float64).reshape(-1)
+    m = len(tables)
+    out = np.empty((m, x.size))
+    if _fast is None or m == 0 or not all(t.osc and not t.tiny and t.zone2 is not None for t in tables):
+        for j, t in enumerate(tables):
+            out[j] = t.evaluate(x)
+        return out
+    Rs = np.array([t.R for t in tables])
+    ref = int(np.argmin(np.abs(Rs - 0.5 * (Rs.min() + Rs.max()))))
+
+    def pack(get):
+        pcs = [get(t) for t in tables]
+        n = {pc.coef.shape[0] for pc in pcs}
+        if len(n) != 1:  # pragma: no cover - all tables are built with the same degree
+            raise RuntimeError("tables of different degree")
+        P = max(pc.coef.shape[1] for pc in pcs)
+        edges = np.full((m, P + 1), np.inf)
+        coef = np.zeros((m, n.pop(), P))
+        cnt = np.empty(m, dtype=np.int64)
+        for j, pc in enumerate(pcs):
+            k = pc.coef.shape[1]
+            edges[j, : k + 1] = pc.edges
+            coef[j, :, :k] = pc.coef
+            cnt[j] = k
+        return cnt, edges, coef
+
+    nj, je, jr = pack(lambda t: t.j_re)
+    _, _, ji = pack(lambda t: t.j_im)
+    nz, ze, zc = pack(lambda t: t.zone2)
+    nm, me, mc = pack(lambda t: t.m_cheb)
+    x_lo = np.array([t.x_lo for t in tables])
+    x_hi = np.array([t.x_hi for t in tables])
+    x_max = np.array([t.x_max for t in tables])
+    _fast.eval_nodes_kernel(Rs, ref, x_lo, x_hi, x_max, nj, je, jr, ji, nz, ze, zc, nm, me, mc,
+                            _dd._C_TAB, _dd._LNC_HI, _dd._LNC_LO, x, out)
+    return out
