@@ -15,7 +15,7 @@ import numpy as np
 
 from maasscomp.errors import InputError
 from maasscomp.hejhal.types import SolverParams
-from maasscomp.special import ktilde
+from maasscomp.special import R_MAX, ktilde
 
 
 def truncation_M0(R: float, Y: float, eps: float = 1e-14) -> int:
@@ -39,9 +39,9 @@ def truncation_M0(R: float, Y: float, eps: float = 1e-14) -> int:
         raise InputError(f"sample height Y={Y!r} is not allowed; it must be a positive finite number")
     if not (0 < eps < 1):
         raise InputError(f"target accuracy eps={eps!r} is not allowed; it must lie in (0, 1)")
-    # Callers add a safety margin to R; the K-Bessel routine stops at R = 10^4, where the
-    # margin is immaterial.
-    R = min(float(R), 1e4)
+    # Callers add a safety margin to R (R + 1 for a window ending at R); at the top of the
+    # K-Bessel range the margin is dropped, where it is immaterial for M0.
+    R = min(float(R), R_MAX)
     # Start beyond the turning point 2 pi n Y = R, where Kt decays monotonically.
     n0 = max(1, int(math.ceil(R / (2 * math.pi * Y))))
     L = math.log(1.0 / eps)

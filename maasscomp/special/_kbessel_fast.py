@@ -30,7 +30,23 @@ _LN2_LO = _dd.LN2_LO
 _TWOPI_HI = _dd.TWOPI_HI
 _TWOPI_LO = _dd.TWOPI_LO
 
-_jit = numba.njit(cache=True, nogil=True, error_model="numpy")
+_JIT_OPTIONS = {"nogil": True, "error_model": "numpy"}
+
+
+def _jit(fn):
+    """Compile with numba, caching the machine code on disk where that is possible.
+
+    numba caches next to the source (``__pycache__``) or in the user's cache folder
+    (``NUMBA_CACHE_DIR``, else the home cache); on a read-only installation with neither
+    writable, ``cache=True`` raises at decoration time.  The kernels are then compiled
+    without a disk cache (a few seconds on first use in each process).
+    """
+    try:
+        return numba.njit(cache=True, **_JIT_OPTIONS)(fn)
+    except RuntimeError as exc:
+        if "cannot cache" not in str(exc):
+            raise
+        return numba.njit(cache=False, **_JIT_OPTIONS)(fn)
 
 
 @_jit
@@ -123,52 +139,112 @@ def _psi_decay(R, x):
 
 
 @_jit
+def _phase_reduced(R, r2h, r2l, xi, c_tab, lnc_hi, lnc_lo):
+    """Phi(x) = S - R (log(R + S) - log x) reduced modulo 2 pi, as a dd pair (rh, rl), together
+    with S = sqrt(R^2 - x^2) and arccosh(R/x) = log((R + S)/x) in double precision."""
+    x2h, x2l = _two_prod(xi, xi)
+    dh, dl = _dd_add(r2h, r2l, -x2h, -x2l)
+    s = math.sqrt(dh)
+    p, pe = _two_prod(s, s)
+    sh, sl = _fast_two_sum(s, ((dh - p) - pe + dl) / (2.0 * s))
+    th, tl = _dd_add(sh, sl, R, 0.0)
+    lth, ltl = _dd_log(th, c_tab, lnc_hi, lnc_lo)
+    lth, ltl = _fast_two_sum(lth, ltl + tl / th)
+    lxh, lxl = _dd_log(xi, c_tab, lnc_hi, lnc_lo)
+    ah, al = _dd_add(lth, ltl, -lxh, -lxl)
+    acosh = ah
+    ph_, pe_ = _two_prod(ah, R)
+    ah, al = _fast_two_sum(ph_, pe_ + al * R)
+    ph, pl = _dd_add(sh, sl, -ah, -al)
+    k = math.floor(ph / _TWOPI_HI + 0.5)
+    p, pe = _two_prod(k, _TWOPI_HI)
+    rh, rl = _two_sum(ph, -p)
+    rl = rl - pe - k * _TWOPI_LO + pl
+    rh, rl = _fast_two_sum(rh, rl)
+    return rh, rl, sh, acosh
+
+
+@_jit
+def _kt_point(R, r2h, r2l, osc, x_lo, x_hi, x_max, j_edges, j_re, j_im, z2_edges, z2_coef, has_z2,
+              m_edges, m_coef, c_tab, lnc_hi, lnc_lo, xi):
+    """Kt(R, xi) from one table; NaN in the series zone (not osc, xi <= x_lo)."""
+    if xi <= x_lo:
+        if not osc:
+            return np.nan
+        rh, rl, _, _ = _phase_reduced(R, r2h, r2l, xi, c_tab, lnc_hi, lnc_lo)
+        c = math.cos(rh)
+        sn = math.sin(rh)
+        cc = c - rl * sn
+        ss = sn + rl * c
+        jr = _clenshaw(j_edges, j_re, xi)
+        ji = _clenshaw(j_edges, j_im, xi)
+        return cc * jr - ss * ji
+    elif xi < x_hi:
+        if has_z2:
+            return _clenshaw(z2_edges, z2_coef, xi)
+        return np.nan
+    elif xi <= x_max:
+        return _clenshaw(m_edges, m_coef, xi) * math.exp(-_psi_decay(R, xi))
+    return 0.0
+
+
+@_jit
 def eval_kernel(R, osc, x_lo, x_hi, x_max,
                 j_edges, j_re, j_im, z2_edges, z2_coef, has_z2, m_edges, m_coef,
                 c_tab, lnc_hi, lnc_lo, x, out):
     """Fill ``out`` with Kt(R, x); points of the series zone (not osc, x <= x_lo) get NaN."""
     r2h, r2l = _two_prod(R, R)
     for idx in range(x.size):
+        out[idx] = _kt_point(R, r2h, r2l, osc, x_lo, x_hi, x_max, j_edges, j_re, j_im, z2_edges, z2_coef,
+                             has_z2, m_edges, m_coef, c_tab, lnc_hi, lnc_lo, x[idx])
+
+
+@_jit
+def eval_nodes_kernel(Rs, ref, x_lo, x_hi, x_max, nj, j_edges, j_re, j_im, nz, z2_edges, z2_coef,
+                      nm, m_edges, m_coef, c_tab, lnc_hi, lnc_lo, x, out):
+    """Fill ``out[j, i]`` with Kt(Rs[j], x[i]) for several nearby R (all with oscillatory tables).
+
+    Where x lies in zone I of every table, the large phase is formed once, in dd, at the
+    reference R = Rs[ref], and moved to each R_j by its Taylor expansion in R,
+    Phi(R_j) = Phi(R) - d arccosh(R/x) - d^2 / (2S) + d^3 R / (6 S^3), d = R_j - R (the
+    derivatives of Phi = S - R arccosh(R/x) in R), which is used only where the first
+    neglected term, d^4 3 R^2 / (24 S^5), is below 1e-19 (else every R_j gets its own dd
+    phase). Everything else is per table, as in :func:`eval_kernel`.
+    """
+    m = Rs.size
+    R = Rs[ref]
+    r2 = np.empty((m, 2))
+    dmax = 0.0
+    for j in range(m):
+        r2[j, 0], r2[j, 1] = _two_prod(Rs[j], Rs[j])
+        dmax = max(dmax, abs(Rs[j] - R))
+    lo_all = x_lo.min()
+    for idx in range(x.size):
         xi = x[idx]
-        if xi <= x_lo:
-            if not osc:
-                out[idx] = np.nan
-                continue
-            # Phi = S - R (log(R + S) - log x), S = sqrt(R^2 - x^2), all in dd
-            x2h, x2l = _two_prod(xi, xi)
-            dh, dl = _dd_add(r2h, r2l, -x2h, -x2l)
-            s = math.sqrt(dh)
-            p, pe = _two_prod(s, s)
-            sh, sl = _fast_two_sum(s, ((dh - p) - pe + dl) / (2.0 * s))
-            th, tl = _dd_add(sh, sl, R, 0.0)
-            lth, ltl = _dd_log(th, c_tab, lnc_hi, lnc_lo)
-            lth, ltl = _fast_two_sum(lth, ltl + tl / th)
-            lxh, lxl = _dd_log(xi, c_tab, lnc_hi, lnc_lo)
-            ah, al = _dd_add(lth, ltl, -lxh, -lxl)
-            ph_, pe_ = _two_prod(ah, R)
-            ah, al = _fast_two_sum(ph_, pe_ + al * R)
-            ph, pl = _dd_add(sh, sl, -ah, -al)
-            k = math.floor(ph / _TWOPI_HI + 0.5)
-            p, pe = _two_prod(k, _TWOPI_HI)
-            rh, rl = _two_sum(ph, -p)
-            rl = rl - pe - k * _TWOPI_LO + pl
-            rh, rl = _fast_two_sum(rh, rl)
-            c = math.cos(rh)
-            sn = math.sin(rh)
-            cc = c - rl * sn
-            ss = sn + rl * c
-            jr = _clenshaw(j_edges, j_re, xi)
-            ji = _clenshaw(j_edges, j_im, xi)
-            out[idx] = cc * jr - ss * ji
-        elif xi < x_hi:
-            if has_z2:
-                out[idx] = _clenshaw(z2_edges, z2_coef, xi)
+        shared = False
+        if xi <= lo_all:
+            rh, rl, S, acosh = _phase_reduced(R, r2[ref, 0], r2[ref, 1], xi, c_tab, lnc_hi, lnc_lo)
+            d2 = dmax * dmax
+            shared = d2 * d2 * 3.0 * R * R <= 24e-19 * S ** 5
+        for j in range(m):
+            e1 = nj[j] + 1
+            if shared:
+                d = Rs[j] - R
+                dphi = -d * acosh - d * d / (2.0 * S) + d * d * d * R / (6.0 * S * S * S)
+                th, tl = _two_sum(rh, dphi)
+                tl = tl + rl
+                c = math.cos(th)
+                sn = math.sin(th)
+                cc = c - tl * sn
+                ss = sn + tl * c
+                jr = _clenshaw(j_edges[j, :e1], j_re[j, :, :nj[j]], xi)
+                ji = _clenshaw(j_edges[j, :e1], j_im[j, :, :nj[j]], xi)
+                out[j, idx] = cc * jr - ss * ji
             else:
-                out[idx] = np.nan
-        elif xi <= x_max:
-            out[idx] = _clenshaw(m_edges, m_coef, xi) * math.exp(-_psi_decay(R, xi))
-        else:
-            out[idx] = 0.0
+                out[j, idx] = _kt_point(Rs[j], r2[j, 0], r2[j, 1], True, x_lo[j], x_hi[j], x_max[j],
+                                        j_edges[j, :e1], j_re[j, :, :nj[j]], j_im[j, :, :nj[j]],
+                                        z2_edges[j, :nz[j] + 1], z2_coef[j, :, :nz[j]], nz[j] > 0,
+                                        m_edges[j, :nm[j] + 1], m_coef[j, :, :nm[j]], c_tab, lnc_hi, lnc_lo, xi)
 
 
 # ---------------------------------------------------------------------------------------

@@ -89,9 +89,11 @@ def series_eval(R: float, argg: tuple[float, float], x: np.ndarray, need_deriv: 
     val = pref * (s * S.real + c * S.imag)
     if not need_deriv:
         return val, None
-    # d/dx [e^{i psi} S] = e^{i psi} (i R / x S + S')
-    T = 1j * R / x * S + dS
-    dval = pref * (s * T.real + c * T.imag)
+    # d/dx [e^{i psi} S] = e^{i psi} (i R / x S + S'); x times it is finite for every x, and
+    # the division by x comes last so that a subnormal x gives +-inf (the true value
+    # overflows there), not inf * 0 = nan
+    xT = 1j * R * S + x * dS
+    dval = pref * (s * xT.real + c * xT.imag) / x
     return val, dval
 
 

@@ -22,6 +22,12 @@ IV.  ``x > x_max``: Kt is returned as 0.0 (below 1e-300).
 The zone layout (power series / steepest descent / turning-point method, docs/theory.md §4)
 follows Gil, Segura and Temme, ACM TOMS 30 (2004) 145-158; the phase-amplitude split of zone I and the per-R tables are
 this module's own design for the many-x-per-R access pattern of Hejhal's method.
+
+Tiny R (``R < R_TINY = 1e-100``): ``K_{iR}(x)`` is even and analytic in R, and the first
+correction to ``K_0(x)`` is of relative size ``(R log(x/2))^2 <= (745 R)^2 < 1e-194`` for
+every double ``x > 0`` (small-x form DLMF 10.31.2 / 10.27.4), far below double precision;
+since also ``exp(pi R/2) = 1`` to double precision, ``Kt = K_0(x)`` and ``dKt/dx = -K_1(x)``
+(DLMF 10.29.3) there.  The power series would divide ``1/R`` by ``R`` and overflow.
 """
 
 from __future__ import annotations
@@ -29,6 +35,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import scipy.special
 
 from maasscomp.special import _dd
 from maasscomp.special._cheb import PiecewiseCheb, build_adaptive, make_piecewise
@@ -63,6 +70,7 @@ C_ZONE = 3.0
 X_LO_MIN = 3.5  # zone I is used when R - C R^{1/3} >= this
 X_SERIES = 2.0  # upper end of the power-series zone for small R
 PSI_MAX = 700.0
+R_TINY = 1e-100  # below this Kt(R, x) = K_0(x) to double precision (module docstring)
 
 
 def _phase_dd(R: float, x: np.ndarray):
@@ -84,6 +92,16 @@ class KTable:
 
     def __init__(self, R: float) -> None:
         self.R = R = float(R)
+        self.tiny = R < R_TINY
+        self._deriv_ready = False
+        self._kargs = None
+        if self.tiny:
+            # Kt = K_0(x): no zones; x_lo = x_hi = 0 and x_max = inf keep the attributes meaningful
+            self.osc = False
+            self.x_lo = self.x_hi = 0.0
+            self.x_max = math.inf
+            self.zone2 = None
+            return
         r3 = R ** (1.0 / 3.0)
         self.x_hi = R + C_ZONE * r3
         x_lo = R - C_ZONE * r3
@@ -100,8 +118,6 @@ class KTable:
             self._build_zone2()
         else:
             self.zone2 = None
-        self._deriv_ready = False
-        self._kargs = None
 
     # -- construction -------------------------------------------------------------------
     def _build_zone1(self) -> None:
@@ -196,6 +212,8 @@ class KTable:
         Values use the compiled kernel of :mod:`._kbessel_fast` (the power-series zone of
         small R and all derivatives use the numpy code below).
         """
+        if self.tiny:
+            return self._evaluate_tiny(x, deriv)
         if not deriv and _fast is not None:
             x = np.ascontiguousarray(x, dtype=np.float64)
             out = np.empty_like(x)
@@ -207,8 +225,27 @@ class KTable:
             return out
         return self.evaluate_numpy(x, deriv)
 
+    @staticmethod
+    def _evaluate_tiny(x: np.ndarray, deriv: bool) -> np.ndarray:
+        """K_0(x), or -K_1(x), for R < R_TINY.
+
+        scipy's k0/k1 fail for subnormal x (inf, nan); for x < 1e-150 the small-x forms
+        K_0(x) = -log(x/2) - gamma and K_1(x) = 1/x (DLMF 10.31.2, 10.31.1) are exact to
+        double precision (next terms relative O(x^2 log x)).
+        """
+        x = np.asarray(x, dtype=np.float64)
+        small = x < 1e-150
+        with np.errstate(over="ignore", divide="ignore"):
+            if deriv:
+                # -1/x overflows to -inf for subnormal x, as the true value does
+                return np.where(small, -1.0 / np.where(small, x, 1.0), -scipy.special.k1(x))
+            lead = -(np.log(np.where(small, x, 1.0)) - math.log(2.0)) - np.euler_gamma
+            return np.where(small, lead, scipy.special.k0(x))
+
     def evaluate_numpy(self, x: np.ndarray, deriv: bool = False) -> np.ndarray:
         """Pure-numpy evaluation (reference path for the compiled kernel; derivatives)."""
+        if self.tiny:
+            return self._evaluate_tiny(x, deriv)
         R = self.R
         out = np.zeros_like(x)
         if deriv:
@@ -226,11 +263,13 @@ class KTable:
                 if not deriv:
                     out[z1] = c * jr - s * ji
                 else:
-                    # d/dx Re[e^{i Phi} J] = Re[e^{i Phi} (i Phi' J + J')], Phi' = S / x
-                    dphi = np.sqrt((R - xx) * (R + xx)) / xx
-                    tr = self.dj_re.evaluate(xx) - dphi * ji
-                    ti = self.dj_im.evaluate(xx) + dphi * jr
-                    out[z1] = c * tr - s * ti
+                    # d/dx Re[e^{i Phi} J] = Re[e^{i Phi} (i Phi' J + J')], Phi' = S / x; formed
+                    # as (x times the derivative) / x so that a subnormal x gives +-inf, not
+                    # inf - inf = nan
+                    S = np.sqrt((R - xx) * (R + xx))
+                    tr = xx * self.dj_re.evaluate(xx) - S * ji
+                    ti = xx * self.dj_im.evaluate(xx) + S * jr
+                    out[z1] = (c * tr - s * ti) / xx
             else:
                 v, dv = series_eval(R, self.argg, xx, need_deriv=deriv)
                 out[z1] = dv if deriv else v
@@ -256,3 +295,48 @@ class KTable:
             if isinstance(pc, PiecewiseCheb):
                 tot += pc.coef.nbytes + pc.edges.nbytes
         return tot
+
+
+def evaluate_nodes(tables: list[KTable], x: np.ndarray) -> np.ndarray:
+    """Kt(R_j, x) for the R_j of several tables at once: array (len(tables), x.size).
+
+    With the compiled kernel and oscillatory tables (R >~ 10) the large phase is shared by
+    nearby R (:func:`._kbessel_fast.eval_nodes_kernel`); otherwise each table is evaluated
+    on its own.
+    """
+    x = np.ascontiguousarray(x, dtype=np.float64).reshape(-1)
+    m = len(tables)
+    out = np.empty((m, x.size))
+    if _fast is None or m == 0 or not all(t.osc and not t.tiny and t.zone2 is not None for t in tables):
+        for j, t in enumerate(tables):
+            out[j] = t.evaluate(x)
+        return out
+    Rs = np.array([t.R for t in tables])
+    ref = int(np.argmin(np.abs(Rs - 0.5 * (Rs.min() + Rs.max()))))
+
+    def pack(get):
+        pcs = [get(t) for t in tables]
+        n = {pc.coef.shape[0] for pc in pcs}
+        if len(n) != 1:  # pragma: no cover - all tables are built with the same degree
+            raise RuntimeError("tables of different degree")
+        P = max(pc.coef.shape[1] for pc in pcs)
+        edges = np.full((m, P + 1), np.inf)
+        coef = np.zeros((m, n.pop(), P))
+        cnt = np.empty(m, dtype=np.int64)
+        for j, pc in enumerate(pcs):
+            k = pc.coef.shape[1]
+            edges[j, : k + 1] = pc.edges
+            coef[j, :, :k] = pc.coef
+            cnt[j] = k
+        return cnt, edges, coef
+
+    nj, je, jr = pack(lambda t: t.j_re)
+    _, _, ji = pack(lambda t: t.j_im)
+    nz, ze, zc = pack(lambda t: t.zone2)
+    nm, me, mc = pack(lambda t: t.m_cheb)
+    x_lo = np.array([t.x_lo for t in tables])
+    x_hi = np.array([t.x_hi for t in tables])
+    x_max = np.array([t.x_max for t in tables])
+    _fast.eval_nodes_kernel(Rs, ref, x_lo, x_hi, x_max, nj, je, jr, ji, nz, ze, zc, nm, me, mc,
+                            _dd._C_TAB, _dd._LNC_HI, _dd._LNC_LO, x, out)
+    return out

@@ -18,9 +18,9 @@ import scipy.optimize
 from numpy.typing import ArrayLike
 
 from maasscomp.errors import InputError
-from maasscomp.special._kbessel_table import KTable
+from maasscomp.special._kbessel_table import KTable, evaluate_nodes
 
-R_MAX = 10000.0
+R_MAX = 100000.0  # largest R verified against arb (data/reference/kbessel_arb_table_large.csv)
 _CACHE_SIZE = 32
 
 
@@ -32,7 +32,13 @@ def _fmt(v) -> str:
         return repr(v)
 
 
+def _is_bool(v) -> bool:
+    return isinstance(v, (bool, np.bool_))
+
+
 def _check_R(R) -> float:
+    if _is_bool(R):
+        raise InputError(f"R = {R!r} is a boolean, not a number; R must be a finite float in (0, {R_MAX:g}]")
     try:
         Rf = float(R)
     except (TypeError, ValueError):
@@ -42,7 +48,19 @@ def _check_R(R) -> float:
     return Rf
 
 
+def _reject_bools(v, name: str, allowed: str) -> None:
+    """Booleans are not numbers here (numpy would silently read True as 1.0)."""
+    bad = _is_bool(v) or (isinstance(v, np.ndarray) and v.dtype == np.bool_)
+    if not bad and isinstance(v, (list, tuple)):
+        obj = np.asarray(v, dtype=object).reshape(-1)
+        bad = any(_is_bool(e) for e in obj) or (obj.size > 0 and isinstance(obj[0], np.ndarray)
+                                                and any(np.asarray(e).dtype == np.bool_ for e in obj))
+    if bad:
+        raise InputError(f"{name} = {v!r} contains booleans, which are not numbers; {allowed}")
+
+
 def _check_x(x) -> np.ndarray:
+    _reject_bools(x, "x", "x must be finite and > 0")
     try:
         xa = np.asarray(x, dtype=np.float64)
     except (TypeError, ValueError):
@@ -72,7 +90,7 @@ def ktilde(R: float, x: ArrayLike) -> np.ndarray:
     Parameters
     ----------
     R : float
-        Order parameter, ``0 < R <= 10000``.
+        Order parameter, ``0 < R <= R_MAX`` (10^5).
     x : array_like
         Arguments, all finite and ``> 0``.
 
@@ -113,7 +131,10 @@ def ktilde_dx(R: float, x: ArrayLike) -> np.ndarray:
     Same parameters and errors as :func:`ktilde`.  Computed from the same tables
     (differentiated Chebyshev interpolants, analytic derivatives of the phase and
     exponent, term-wise differentiated series), so it is about one to two digits less
-    accurate than the function itself.
+    accurate than the function itself.  For tiny x the derivative is about
+    ``R cos(R log(x/2) - arg Gamma(1 + iR)) / x`` (``-1/x`` as R -> 0); where that exceeds
+    the double range (subnormal x) the result is ``+inf`` or ``-inf`` with the sign of the
+    true value, never nan.
     """
     Rf = _check_R(R)
     xa = _check_x(x)
@@ -123,8 +144,28 @@ def ktilde_dx(R: float, x: ArrayLike) -> np.ndarray:
         return _table(Rf).evaluate(flat, deriv=True).reshape(xa.shape)
 
 
+def ktilde_nodes(Rs: ArrayLike, x: ArrayLike) -> np.ndarray:
+    """:func:`ktilde` at several R for the same points: array of shape ``(len(Rs),) + x.shape``.
+
+    Same values as ``[ktilde(R, x) for R in Rs]`` (to rounding), faster when the R are close
+    together (e.g. the Chebyshev nodes of a short R interval): on the oscillatory side the
+    double-double phase is computed once per x and carried to the other R by its Taylor
+    expansion in R (``d Phi / dR = -arccosh(R/x)``, ``d^2 Phi / dR^2 = -1/sqrt(R^2 - x^2)``),
+    wherever the neglected fourth-order term is below 1e-19.
+    """
+    _reject_bools(Rs, "R", f"R must be finite floats in (0, {R_MAX:g}]")
+    try:
+        Ra = np.asarray(Rs, dtype=np.float64).reshape(-1)
+    except (TypeError, ValueError):
+        raise InputError(f"R = {Rs!r} is not an array of real numbers; R must be finite floats in (0, {R_MAX:g}]") from None
+    tables = [_table(_check_R(R)) for R in Ra]
+    xa = _check_x(x)
+    return evaluate_nodes(tables, xa.reshape(-1)).reshape((Ra.size,) + xa.shape)
+
+
 def ktilde_many(R: ArrayLike, x: ArrayLike) -> np.ndarray:
     """:func:`ktilde` broadcast over both ``R`` and ``x`` (loops over the distinct R values)."""
+    _reject_bools(R, "R", f"R must be finite floats in (0, {R_MAX:g}]")
     try:
         Ra = np.asarray(R, dtype=np.float64)
     except (TypeError, ValueError):
@@ -158,7 +199,7 @@ def airy_peak(R: float) -> tuple[float, float]:
     Parameters
     ----------
     R : float
-        ``0 < R <= 10000``.
+        ``0 < R <= R_MAX`` (10^5).
 
     Returns
     -------

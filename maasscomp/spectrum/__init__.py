@@ -9,6 +9,8 @@ search_forms, SearchSettings, SearchResult, symmetry_classes
     classes of the multi-cusp system elsewhere).
 forms_in_window, nearest_forms, NearResult
     Forms near a target R, with the Weyl expectation (any level).
+locate_large, forms_in_window_large, LargeSettings, LargeSearchResult
+    The same at large R (to 1e5): node-interpolated matrices, linearised roots, bounded memory.
 complete_search, CompleteSearch
     Window search with Weyl's-law completeness check and automatic re-search.
 weyl_count, weyl_density, expected_in_window, weyl_constant, weyl_terms, completeness,
@@ -36,6 +38,7 @@ from maasscomp.spectrum.lfunction import (
     sym2_functional_equation_residual,
     sym2_L1,
 )
+from maasscomp.spectrum.large import LargeSearchResult, LargeSettings, forms_in_window_large, locate_large
 from maasscomp.spectrum.near import NearResult, forms_in_window, nearest_forms
 from maasscomp.spectrum.search import SearchResult, SearchSettings, search_forms, symmetry_classes
 from maasscomp.spectrum.weyl import (

@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from maasscomp.errors import InputError
-from maasscomp.special import ktilde, ktilde_dx, ktilde_many
+from maasscomp.special import R_MAX, ktilde, ktilde_dx, ktilde_many, ktilde_nodes
 
 from .kbessel_refdata import load_csv
 
@@ -51,9 +51,9 @@ def test_many_matches_fixed_R():
     assert pairs[0] == ktilde(5.0, 1.0) and pairs[1] == ktilde(500.0, 499.0)
 
 
-@pytest.mark.parametrize("R", [0.0, -1.0, math.nan, math.inf, 10000.5, 1e6, "abc"])
+@pytest.mark.parametrize("R", [0.0, -1.0, math.nan, math.inf, math.nextafter(R_MAX, math.inf), 1e6, "abc"])
 def test_bad_R_is_input_error(R):
-    with pytest.raises(InputError, match=r"R = .*\(0, 10000\]"):
+    with pytest.raises(InputError, match=r"R = .*\(0, 100000\]"):
         ktilde(R, 1.0)
     with pytest.raises(InputError, match=r"R = "):
         ktilde_dx(R, 1.0)
@@ -76,3 +76,31 @@ def test_far_tail_is_zero_or_tiny():
     # Kt(R, x) ~ sqrt(pi/(2x)) exp(-x + pi R/2) for x >> R (DLMF 10.40.2): far below 1e-300 here
     v = ktilde(10.0, [800.0, 5000.0, 1e300])
     assert np.all(v >= 0.0) and np.all(v < 1e-300)
+
+
+@pytest.mark.parametrize("R0, spread", [(3.0, 0.01), (40.0, 0.5), (1000.0, 1e-3), (40000.0, 3e-4), (99999.0, 1e-6)])
+def test_nodes_match_separate_evaluations(R0, spread):
+    """ktilde_nodes (shared phase, Taylor-moved in R) equals ktilde per R in every zone."""
+    Rs = R0 + spread * np.cos(np.pi * (2 * np.arange(5) + 1) / 10)
+    x = np.concatenate([np.geomspace(1e-3, R0, 4000), np.linspace(R0, 1.2 * R0 + 800, 4000)]).reshape(2, -1)
+    got = ktilde_nodes(Rs, x)
+    assert got.shape == (5, 2, 4000)
+    for j, R in enumerate(Rs):
+        ref = ktilde(R, x)
+        osc = x < R
+        assert np.all(np.abs(got[j] - ref)[osc] <= 1e-15 * np.maximum(1.0, np.abs(ref[osc])))
+        assert np.all(np.abs(got[j] - ref)[~osc] <= 1e-15 * np.abs(ref[~osc]))
+
+
+def test_nodes_far_apart_and_bad_input():
+    Rs = [500.0, 900.0, 2000.0]  # too far apart to share the phase: each R on its own
+    x = np.linspace(1.0, 2500.0, 1001)
+    got = ktilde_nodes(Rs, x)
+    for j, R in enumerate(Rs):
+        np.testing.assert_array_equal(got[j], ktilde(R, x))
+    with pytest.raises(InputError, match="R = "):
+        ktilde_nodes([1.0, -2.0], x)
+    with pytest.raises(InputError, match="boolean"):
+        ktilde_nodes([True], x)
+    with pytest.raises(InputError, match="x = "):
+        ktilde_nodes([1.0], [0.0])
