@@ -46,8 +46,9 @@ def level1_table() -> tuple[tuple[int, str, str, np.ndarray], ...]:
     return tuple((k, par, R, coefficients(k)[0]) for k, par, R in forms())
 
 
-def level1_parents() -> list[ParentForm]:
-    return [ParentForm(1, float(R), par, a, f"PSL(2,Z) form {k}") for k, par, R, a in level1_table()]
+@functools.lru_cache(maxsize=None)
+def level1_parents() -> tuple[ParentForm, ...]:
+    return tuple(ParentForm(1, float(R), par, a, f"PSL(2,Z) form {k}") for k, par, R, a in level1_table())
 
 
 def hermite(U) -> tuple[int, int, int]:
