@@ -12,9 +12,15 @@ on Y; Hejhal 1992, and A. Booker, A. Strömbergsson, A. Venkatesh, IMRN 2006, Ar
 71281, §2).  The working precision is raised along a ladder (about doubling the number of
 digits per stage) so that most secant steps are cheap.
 
-Only level 1 (PSL(2,Z)) is available.  Other levels plug in by supplying a pullback
-(an exact integer matrix for every sample point, plus a sign for Atkin-Lehner classes)
-and the height Y0 of their fundamental domain in ``_LEVELS``.
+Levels: 1 (PSL(2,Z)) and every squarefree N with an Atkin-Lehner class (eps_p)_{p | N}.
+For squarefree N every cusp is W_Q(infinity) with scaling matrix W_Q/sqrt(Q), so
+f(sigma_j w) = eps_Q f(w) and one expansion (at infinity) is unknown, exactly as in the
+double-precision one-cusp system (docs/theory.md §1.5).  A level plugs in through its
+pullback: for every sample point an exact integer matrix g (any determinant d > 0) with
+g z in the region where the expansion is used, and the sign of the expansion there.  For
+squarefree N, g = adj(W_Q) gamma from ``Gamma0.pullback`` (d = Q) and the sign is eps_Q.
+Non-squarefree levels need one expansion per cusp (the multi-cusp system of
+``hejhal/multicusp.py``), which is not available in multiprecision.
 
 Every K-Bessel value is K~_R(x) = e^{pi R/2} K_{iR}(x) (the common factor e^{-pi R/2}
 cancels from the homogeneous system), evaluated by arb's ``acb.bessel_k`` with a
@@ -25,6 +31,7 @@ arithmetic), so the error figures returned are *estimates*.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -72,11 +79,105 @@ class _Level:
     Y0: float  # lowest height of the fundamental domain used by the pullback
     pullback: Callable[[float, float], tuple[tuple[int, int, int, int], int]]
     Y_fracs: tuple[Fraction, Fraction]  # Y1, Y2 as fractions of Y0 (exact rationals)
+    h_indices: tuple[int, ...]  # n of H_n(R) = a_n(Y1) - a_n(Y2): first drives the secant
 
 
-_LEVELS: dict[int, _Level] = {
-    1: _Level(math.sqrt(3) / 2, _pullback_level1, (Fraction(4, 5), Fraction(18, 25))),
-}
+def _coprime_indices(level: int, count: int = 4) -> tuple[int, ...]:
+    """The first ``count`` integers n >= 2 prime to N.
+
+    For a newform a(p) = -eps_p/sqrt(p) (p | N) is fixed by the class, so H_p carries less
+    information about R; indices prime to N avoid that (at level 1: 2, 3, 4, 5).
+    """
+    out, n = [], 2
+    while len(out) < count:
+        if math.gcd(n, level) == 1:
+            out.append(n)
+        n += 1
+    return tuple(out)
+
+
+def _squarefree_pullback(level: int, signs: tuple[tuple[int, int], ...]):
+    """Pullback of Gamma0(N), N squarefree, for the Atkin-Lehner class ``signs``.
+
+    ``Gamma0.pullback`` gives gamma in Gamma0(N) and the cusp j with gamma z = sigma_j w,
+    sigma_j = W_Q / sqrt(Q) (docs/theory.md §1.1).  Then w = adj(W_Q) gamma z with the
+    integer matrix adj(W_Q) gamma of determinant Q, and f(z) = f(W_Q w) = eps_Q f(w).
+    The double-precision pullback only chooses g; the image is recomputed exactly in ball
+    arithmetic from g, and any g that raises the point is correct by automorphy.
+    """
+    from maasscomp.groups import gamma0
+
+    G = gamma0(level)
+    eps = dict(signs)
+
+    def sign_of(Q: int) -> int:
+        s = 1
+        for p, e in eps.items():
+            if Q % p == 0:
+                s *= e
+        return s
+
+    def pull(x: float, y: float) -> tuple[tuple[int, int, int, int], int]:
+        pb = G.pullback(np.array([x]), np.array([y]))
+        j = int(np.asarray(pb.cusp).ravel()[0])
+        g = np.asarray(pb.gamma).reshape(2, 2).astype(object)
+        (a, b), (c, d) = G.cusps[j].scaling
+        adj = np.array([[d, -b], [-c, a]], dtype=object)
+        m = adj.dot(g)
+        Q = G.cusps[j].atkin_lehner_Q
+        return (int(m[0, 0]), int(m[0, 1]), int(m[1, 0]), int(m[1, 1])), sign_of(int(Q))
+
+    return G.fundamental_domain_height, pull
+
+
+@functools.lru_cache(maxsize=64)
+def _level_data(level: int, al_signs: tuple[tuple[int, int], ...]) -> _Level:
+    """Level data for (level, Atkin-Lehner class); cached by the full key."""
+    fracs = (Fraction(4, 5), Fraction(18, 25))
+    if level == 1:
+        return _Level(math.sqrt(3) / 2, _pullback_level1, fracs, _coprime_indices(1))
+    Y0, pull = _squarefree_pullback(level, al_signs)
+    return _Level(Y0, pull, fracs, _coprime_indices(level))
+
+
+def _factor(n: int) -> dict[int, int]:
+    out: dict[int, int] = {}
+    d = 2
+    while d * d <= n:
+        while n % d == 0:
+            out[d] = out.get(d, 0) + 1
+            n //= d
+        d += 1
+    if n > 1:
+        out[n] = out.get(n, 0) + 1
+    return out
+
+
+def _check_level_signs(level: int, al_signs) -> tuple[tuple[int, int], ...]:
+    """Validate the level and the Atkin-Lehner class; return the signs as sorted pairs."""
+    fac = _factor(int(level))
+    if any(e > 1 for e in fac.values()):
+        raise InputError(
+            f"high-precision refinement for level {level} is not available; it needs a squarefree "
+            f"level (one-cusp Atkin-Lehner system), and {level} = "
+            + " * ".join(f"{p}^{e}" if e > 1 else str(p) for p, e in sorted(fac.items()))
+        )
+    primes = sorted(fac)
+    if al_signs is None:
+        if primes:
+            raise InputError(
+                f"level {level} needs Atkin-Lehner signs: give al_signs with one sign +1 or -1 "
+                f"for each prime in {primes}"
+            )
+        return ()
+    try:
+        pairs = dict(al_signs).items() if not isinstance(al_signs, dict) else al_signs.items()
+        signs = tuple(sorted((int(p), int(e)) for p, e in pairs))
+    except (TypeError, ValueError) as exc:
+        raise InputError(f"al_signs {al_signs!r} is not allowed; give {{p: +1 or -1}} for p in {primes}") from exc
+    if [p for p, _ in signs] != primes or any(e not in (1, -1) for _, e in signs):
+        raise InputError(f"al_signs {al_signs!r} is not allowed; give one sign +1 or -1 for each prime in {primes}")
+    return signs
 
 
 # --------------------------------------------------------------------------- K-Bessel
@@ -147,12 +248,11 @@ class _System:
     """
 
     def __init__(
-        self, level: int, parity: str, Y: Fraction, M0: int, Q: int, prec: int, eps_log: float
+        self, lev: _Level, parity: str, Y: Fraction, M0: int, Q: int, prec: int, eps_log: float
     ) -> None:
-        self.level, self.parity, self.M0, self.Q, self.prec = level, parity, M0, Q, prec
+        self.parity, self.M0, self.Q, self.prec = parity, M0, Q, prec
         self.eps_log = eps_log
         self.Yq = Y
-        lev = _LEVELS[level]
         cs = "cos" if parity == "even" else "sin"
         with ctx.workprec(prec):
             self.Y = arb(Y.numerator) / Y.denominator
@@ -161,10 +261,11 @@ class _System:
             for m in range(1, Q + 1):
                 xm = Fraction(2 * m - 1, 4 * Q)
                 (a, b, c, d), sgn = lev.pullback(float(xm), float(Y))
-                # g z = (a z + b)/(c z + d) computed exactly from rationals
+                # g z = (a z + b)/(c z + d) computed exactly from rationals; Im(g z) =
+                # det(g) Im z / |c z + d|^2 (det g = 1 at level 1, Q for W_Q at level N)
                 xr = arb(xm.numerator) / xm.denominator
                 den = (c * xr + d) ** 2 + (c * self.Y) ** 2
-                ys = self.Y / den
+                ys = (a * d - b * c) * self.Y / den
                 xs = (a * c * (xr * xr + self.Y * self.Y) + (a * d + b * c) * xr + b * d) / den
                 if not float(ys.mid()) > float(Y):
                     raise ConvergenceError(  # pragma: no cover - guarded by Y < Y0
@@ -249,6 +350,8 @@ class HighPrecisionForm:
         Number of two-Y evaluations (all stages).
     history : tuple of (int, str, float)
         (stage digits, R, |step|) after each secant step.
+    al_signs : tuple of (p, eps_p)
+        The Atkin-Lehner class (empty at level 1): f(W_p z) = eps_p f(z).
     """
 
     level: int
@@ -265,6 +368,7 @@ class HighPrecisionForm:
     prec_bits: int
     iterations: int
     history: tuple[tuple[int, str, float], ...] = field(default=())
+    al_signs: tuple[tuple[int, int], ...] = ()
 
     def R_arb(self, prec: int | None = None) -> arb:
         """R as an arb midpoint (precision in bits, default enough for ``digits``)."""
@@ -287,11 +391,6 @@ class HighPrecisionForm:
 def _check_args(level: object, R0: object, parity: object, digits: object) -> None:
     if isinstance(level, bool) or not isinstance(level, (int, np.integer)) or level < 1:
         raise InputError(f"level {level!r} is not allowed; use a positive integer")
-    if int(level) not in _LEVELS:
-        raise InputError(
-            f"high-precision refinement for level {level} is not available; "
-            f"available levels: {sorted(_LEVELS)}"
-        )
     if parity not in ("even", "odd"):
         raise InputError(f"parity {parity!r} is not allowed; use 'even' or 'odd'")
     if not isinstance(R0, (int, float, np.floating, str)) or isinstance(R0, bool):
@@ -306,8 +405,7 @@ def _check_args(level: object, R0: object, parity: object, digits: object) -> No
 class _Evaluator:
     """Two-Y solves at one precision stage (systems cached across R)."""
 
-    def __init__(self, level: int, parity: str, R_guess: float, digits: int) -> None:
-        lev = _LEVELS[level]
+    def __init__(self, lev: _Level, parity: str, R_guess: float, digits: int) -> None:
         self.digits = digits
         # truncation eps = 10^-(digits + 6): H then carries about digits + 3 digits
         self.eps_log = -(digits + 6) * _LN10
@@ -321,7 +419,7 @@ class _Evaluator:
                 Yarb = arb(Yq.numerator) / Yq.denominator
                 M0 = _truncation_M(Rarb, Yarb, self.eps_log, self.prec)
                 Q = M0 + 8
-                self.systems.append(_System(level, parity, Yq, M0, Q, self.prec, self.eps_log))
+                self.systems.append(_System(lev, parity, Yq, M0, Q, self.prec, self.eps_log))
         self.count = 0
 
     def __call__(self, R: arb) -> tuple[list[arb], list[arb]]:
@@ -341,6 +439,7 @@ def refine_high_precision(
     parity: str,
     digits: int = 30,
     *,
+    al_signs: dict[int, int] | tuple[tuple[int, int], ...] | None = None,
     progress: Callable[[str], None] | None = None,
     max_steps_per_stage: int = 12,
 ) -> HighPrecisionForm:
@@ -348,29 +447,35 @@ def refine_high_precision(
 
     Hejhal's method (Hejhal, Mem. AMS 97 (1992) no. 469; Booker-Strömbergsson-Venkatesh,
     IMRN 2006, §2) in multiprecision: the real cos/sin system at heights Y1 = 0.8 Y0
-    and Y2 = 0.72 Y0 (Y0 = sqrt(3)/2 for level 1), truncated at M0 = the smallest M with
-    sqrt(Y) K~_R(2 pi M Y) sqrt(M) < 10^{-(stage digits + 6)}, Q = M0 + 8 sample points,
-    and the secant method on H(R) = a_2(R; Y1) - a_2(R; Y2).
+    and Y2 = 0.72 Y0 (Y0 = sqrt(3)/2 for level 1, ``Gamma0(N).fundamental_domain_height``
+    otherwise), truncated at M0 = the smallest M with sqrt(Y) K~_R(2 pi M Y) sqrt(M) <
+    10^{-(stage digits + 6)}, Q = M0 + 8 sample points, and the secant method on
+    H(R) = a_n(R; Y1) - a_n(R; Y2) with n the least integer >= 2 prime to N.  At a
+    squarefree level N > 1 the system is the one-cusp Atkin-Lehner system of the class
+    ``al_signs`` (module docstring).
 
     Precision ladder: stages of about 16, 32, 64, ... digits up to ``digits`` + 2; each
     stage re-evaluates the last two iterates at its precision and runs secant steps
     until the step is below 10^{-stage digits}.
 
-    Error estimate: with slopes s_n of H_n(R) = a_n(R; Y1) - a_n(R; Y2) (n = 2..5)
-    measured in the first stage, R_error = max_n |H_n(R_final)| / |s_n|, taken at the
+    Error estimate: with slopes s_n of H_n(R) = a_n(R; Y1) - a_n(R; Y2) (the first four
+    n >= 2 prime to N; n = 2..5 at level 1) measured in the first stage, R_error = max_n |H_n(R_final)| / |s_n|, taken at the
     final R in the final stage.  This combines the distance to the root with the
     truncation noise of H.  ``digits`` is claimed only if R_error < 10^{-digits}.
 
     Parameters
     ----------
     level : int
-        Level; only 1 is available.
+        Level: 1 or any squarefree N.
     R0 : float or str
         Start value, accurate to a small fraction of the distance to the neighbouring
         eigenvalues of the same parity (double precision values are fine).
     parity : {"even", "odd"}
     digits : int, optional
         Target number of decimal places of R, 10 <= digits <= 400 (default 30).
+    al_signs : dict or tuple of (p, sign), optional
+        The Atkin-Lehner class {p: eps_p} (eps_p = +-1, one for each prime p | N), required
+        for N > 1; f(W_p z) = eps_p f(z) (docs/theory.md, conventions).
     progress : callable, optional
         Called with one line of text after each secant step.
     max_steps_per_stage : int, optional
@@ -383,13 +488,17 @@ def refine_high_precision(
     Raises
     ------
     InputError
-        For an unsupported level, bad parity, R0 or digits.
+        For an unsupported level (not squarefree), missing or bad Atkin-Lehner signs, bad
+        parity, R0 or digits.
     ConvergenceError
         If a stage does not converge (``best`` carries the last iterate as a string) or
         the final error estimate misses the target.
     """
     _check_args(level, R0, parity, digits)
     level = int(level)
+    signs = _check_level_signs(level, al_signs)
+    lev = _level_data(level, signs)
+    h0 = lev.h_indices[0]
     say = progress or (lambda s: None)
 
     # each secant step roughly multiplies the number of correct digits (and H is far
@@ -412,7 +521,7 @@ def refine_high_precision(
     last_step = float("inf")
     ev = None
     for st in stages:
-        ev = _Evaluator(level, parity, float(R_a.mid()), st)
+        ev = _Evaluator(lev, parity, float(R_a.mid()), st)
         with ctx.workprec(ev.prec):
             R_a = arb(R_a.mid())
             if R_b is None or abs(float((R_b - R_a).mid())) < 10.0 ** (-0.75 * st):
@@ -420,10 +529,10 @@ def refine_high_precision(
                 R_b = R_a + arb(10.0) ** (-min(8, max(4, st // 2)))
             Ra1, Ra2 = ev(R_a)
             Rb1, Rb2 = ev(R_b)
-            Ha, Hb = _H(Ra1, Ra2), _H(Rb1, Rb2)
+            Ha, Hb = _H(Ra1, Ra2, h0), _H(Rb1, Rb2, h0)
             if slopes is None:
                 dR = R_b - R_a
-                slopes = [float(((_H(Rb1, Rb2, n) - _H(Ra1, Ra2, n)) / dR).mid()) for n in range(2, 6)]
+                slopes = [float(((_H(Rb1, Rb2, n) - _H(Ra1, Ra2, n)) / dR).mid()) for n in lev.h_indices]
                 dadR = [float(((Rb1[n - 1] - Ra1[n - 1]) / dR).mid()) for n in range(1, ev.systems[0].M0 + 1)]
             converged = False
             for _ in range(max_steps_per_stage):
@@ -435,7 +544,7 @@ def refine_high_precision(
                 R_a, Ha, Ra1, Ra2 = R_b, Hb, Rb1, Rb2
                 R_b = R_new
                 Rb1, Rb2 = ev(R_b)
-                Hb = _H(Rb1, Rb2)
+                Hb = _H(Rb1, Rb2, h0)
                 last_step = step
                 history.append((st, R_b.mid().str(st + 5, radius=False), step))
                 say(f"stage {st} digits: R = {R_b.mid().str(min(st + 3, 60), radius=False)}  |step| = {step:.3e}")
@@ -456,7 +565,7 @@ def refine_high_precision(
     # the final iterate is R_a, with its two-Y solutions in Rb1, Rb2 (just swapped names)
     c1, c2 = Rb1, Rb2
     with ctx.workprec(ev.prec):
-        Hn = [abs(float(_H(c1, c2, n).mid())) for n in range(2, 6)]
+        Hn = [abs(float(_H(c1, c2, n).mid())) for n in lev.h_indices]
     R_error = max(h / abs(s) for h, s in zip(Hn, slopes) if s != 0)
     M0 = ev.systems[0].M0
     M0b = ev.systems[1].M0
@@ -487,6 +596,7 @@ def refine_high_precision(
         prec_bits=ev.prec,
         iterations=total_evals,
         history=tuple(history),
+        al_signs=signs,
     )
 
 
@@ -542,7 +652,7 @@ def extend_coefficients(
         raise InputError(f"heights {heights!r} not allowed; give >= 2 factors in (0, 1.5]")
     from scipy.fft import dct, dst
 
-    lev = _LEVELS[form.level]
+    lev = _level_data(form.level, form.al_signs)
     prec = 128
     eps_log = math.log(eps)
     cs = "cos" if form.parity == "even" else "sin"
@@ -565,7 +675,7 @@ def extend_coefficients(
                 (a, b, cc, d), sgn = lev.pullback(float(xm), float(Yq))
                 xr = arb(xm.numerator) / xm.denominator
                 den = (cc * xr + d) ** 2 + (cc * Y) ** 2
-                ys = Y / den
+                ys = (a * d - b * cc) * Y / den
                 xs = (a * cc * (xr * xr + Y * Y) + (a * d + b * cc) * xr + b * d) / den
                 yf = float(ys)
                 tot = arb(0)
