@@ -16,7 +16,15 @@ weyl_count, weyl_density, expected_in_window, weyl_constant, completeness
 functional_equation_check, predicted_root_number, sym2_L1, rankin_selberg_norm2
     L-function checks and L(1, sym^2 f).
 refine_high_precision, extend_coefficients
-    Multiprecision refinement (python-flint) and coefficient extension.
+    Multiprecision refinement (python-flint) and coefficient extension; level 1 and every
+    squarefree level in its Atkin--Lehner class.
+atkin_lehner_eigenvalue, atkin_lehner_matrix, apply_atkin_lehner, hecke_eigenvalue, hecke_matrix,
+cusp_label
+    Atkin--Lehner and Hecke operators on stored forms at every level (spectrum.operators).
+ParentForm, describe_old, label_old
+    Oldform recognition: parent newform and coordinates in the basis g(dz) (spectrum.oldforms).
+find_twist, label_twist, kronecker
+    Quadratic twists of lower-level newforms (spectrum.twists).
 Form
     The record of one confirmed form.
 """
@@ -33,6 +41,17 @@ from maasscomp.spectrum.lfunction import (
     sym2_L1,
 )
 from maasscomp.spectrum.near import NearResult, forms_in_window, nearest_forms
+from maasscomp.spectrum.oldforms import ParentForm, describe_old, label_old
+from maasscomp.spectrum.operators import (
+    apply_atkin_lehner,
+    atkin_lehner_eigenvalue,
+    atkin_lehner_eigenvalues,
+    atkin_lehner_matrix,
+    cusp_label,
+    hecke_eigenvalue,
+    hecke_matrix,
+    label_atkin_lehner,
+)
 from maasscomp.spectrum.search import (
     SearchResult,
     SearchSettings,
@@ -41,6 +60,7 @@ from maasscomp.spectrum.search import (
     search_window,
     symmetry_classes,
 )
+from maasscomp.spectrum.twists import find_twist, kronecker, label_twist
 from maasscomp.spectrum.weyl import (
     CompletenessReport,
     CompletenessWindow,
