@@ -60,6 +60,8 @@ __all__ = [
     "OperatorMatrix",
     "cusp_label",
     "cusp_action",
+    "match_scaling",
+    "reflection_action",
     "atkin_lehner_action",
     "apply_cusp_action",
     "apply_atkin_lehner",
@@ -136,6 +138,36 @@ def _adj(A) -> list[list[int]]:
     return [[A[1][1], -A[0][1]], [-A[1][0], A[0][0]]]
 
 
+def match_scaling(group, U) -> tuple[int, Fraction]:
+    """The cusp l and shift t with gamma U = +-c sigma_l T_t (gamma in Gamma0(N), c > 0).
+
+    ``U`` is an integer matrix of positive determinant such that U/sqrt(det U) is a scaling
+    matrix of the cusp U(infinity) (e.g. W M_k for a normaliser element W, or the reflected
+    scaling matrix J M_k J). The probe point U(iH), H = 6, is pulled back (giving gamma and
+    l), and adj(M_l) gamma U is checked exactly to be an integer multiple of T_t.
+
+    Raises
+    ------
+    InputError
+        If U/sqrt(det U) is not a scaling matrix of its cusp (the product is not a
+        translation).
+    """
+    Um = _mat(U)
+    z = complex(0.0, _PROBE_HEIGHT)
+    w = (Um[0][0] * z + Um[0][1]) / (Um[1][0] * z + Um[1][1])
+    pb = group.pullback(np.array([w.real]), np.array([w.imag]))
+    l = int(np.asarray(pb.cusp).ravel()[0])
+    gam = _mat(np.asarray(pb.gamma).reshape(2, 2))
+    T = _mul(_adj([list(r) for r in group.cusps[l].scaling]), _mul(gam, Um))
+    if T[1][0] != 0 or T[0][0] != T[1][1] or T[0][0] == 0:
+        raise InputError(
+            f"U = {Um} is not a scaling matrix of its cusp for Gamma0({group.level}): the "
+            f"conjugated stabiliser is not a translation group ({T})"
+        )
+    t = Fraction(T[0][1], T[0][0])
+    return l, t - math.floor(t)
+
+
 def cusp_action(group, W) -> tuple[CuspImage, ...]:
     """The permutation of cusps and the shifts by which ``W`` acts (module docstring).
 
@@ -164,27 +196,32 @@ def cusp_action(group, W) -> tuple[CuspImage, ...]:
         raise InputError(f"W = {Wm} has determinant {D}; a positive determinant is required")
     out = []
     for cusp in group.cusps:
-        Mk = [list(r) for r in cusp.scaling]
-        U = _mul(Wm, Mk)
-        # probe sigma_k(i H) mapped by W; the pullback returns gamma and the cusp l
-        z = complex(0.0, _PROBE_HEIGHT)
-        w = (U[0][0] * z + U[0][1]) / (U[1][0] * z + U[1][1])
-        pb = group.pullback(np.array([w.real]), np.array([w.imag]))
-        l = int(np.asarray(pb.cusp).ravel()[0])
-        gam = _mat(np.asarray(pb.gamma).reshape(2, 2))
-        T = _mul(_adj([list(r) for r in group.cusps[l].scaling]), _mul(gam, U))
-        if T[1][0] != 0 or T[0][0] != T[1][1] or T[0][0] == 0:
+        try:
+            l, t = match_scaling(group, _mul(Wm, [list(r) for r in cusp.scaling]))
+        except InputError as exc:
             raise InputError(
-                f"W = {Wm} does not normalise Gamma0({group.level}): at cusp "
-                f"{cusp_label(group, cusp.index)} the conjugated stabiliser is not a translation "
-                f"group ({T})"
-            )
-        t = Fraction(T[0][1], T[0][0])
-        t -= math.floor(t)
+                f"W = {Wm} does not normalise Gamma0({group.level}) (at cusp "
+                f"{cusp_label(group, cusp.index)}: {exc})"
+            ) from exc
         out.append(CuspImage(cusp=cusp.index, image=l, shift=t))
     images = sorted(ci.image for ci in out)
     if images != list(range(group.n_cusps)):
         raise InputError(f"W = {Wm} does not permute the cusps of Gamma0({group.level})")
+    return tuple(out)
+
+
+def reflection_action(group) -> tuple[CuspImage, ...]:
+    """How J: z -> -conj(z) acts on the cusps: J sigma_k J = +-gamma^-1 sigma_l T_t.
+
+    For a form of parity eps (f(J z) = eps f(z)): F_k(J z) = eps F_l(z + t). J sigma_k J is
+    the scaling matrix M_k with its off-diagonal entries negated (J normalises Gamma0(N),
+    docs/theory.md §1.1).
+    """
+    out = []
+    for cusp in group.cusps:
+        (a, b), (c, d) = cusp.scaling
+        l, t = match_scaling(group, [[a, -b], [-c, d]])
+        out.append(CuspImage(cusp=cusp.index, image=l, shift=t))
     return tuple(out)
 
 

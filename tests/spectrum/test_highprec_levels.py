@@ -120,3 +120,60 @@ def test_newforms_to_30_digits_agree_with_20_digits(N, R0, parity, signs):
     assert _diff(f30.R, f20.R) < 1e-20
     assert max(_diff(f30.coeffs[n], f20.coeffs[n]) for n in range(1, 8)) < 1e-18
     assert math.isclose(float(f30.R), R0, abs_tol=1e-7)
+
+
+# ----------------------------------------------------------------------------------------
+# the multi-cusp system in ball arithmetic (parity classes, any level)
+
+
+@pytest.mark.slow
+def test_multicusp_system_agrees_with_the_one_cusp_system_at_level_2():
+    """Level 2 in the odd parity class without Atkin-Lehner signs: the multi-cusp system (two
+    cusps) refines the newform of the class eps_2 = -1 to the one-cusp value, and reads off
+    eta_2 = -1 from its own cusp expansions."""
+    one = refine_high_precision(2, 5.41733481, "odd", 20, al_signs={2: -1})
+    multi = refine_high_precision(2, 5.41733481, "odd", 16)
+    assert multi.al_signs == () and len(multi.cusp_coeffs) == 2
+    assert _diff(multi.R, one.R) < 1e-16
+    assert max(_diff(multi.coeffs[n], one.coeffs[n]) for n in range(1, 8)) < 1e-15
+    (Q, eta, res), = multi.al_eigenvalues
+    print(f"level 2 multi-cusp: R = {multi.R[:22]}, eta_2 = {eta[:22]} (residual {res:.1e})")
+    assert Q == 2 and _diff(eta, "-1") < 1e-16 and res < 1e-15
+
+
+@pytest.mark.slow
+def test_multicusp_level9_twist_of_R1_to_16_digits():
+    """The chi_{-3} twist of R1 is the only even form of level 9 at R1 (simple eigenvalue):
+    its R is R1 (level-1 table, 32 decimals), c(p) = chi_{-3}(p) a(p) with a(p) from a level-1
+    refinement at the same precision, and eta_9 = chi_{-3}(-1) = -1 (Atkin & Li 1978, recalled)."""
+    f = refine_high_precision(9, float(R1), "even", 16)
+    g = refine_high_precision(1, float(R1), "odd", 16)
+    assert len(f.cusp_coeffs) == 4
+    print(f"level 9 even (multi-cusp): R = {f.R[:22]}, |R - R1| = {_diff(f.R, R1):.1e}, "
+          f"eta = {f.al_eigenvalues}")
+    assert _diff(f.R, R1) < 1e-16
+    chi = {2: -1, 3: 0, 5: -1, 7: 1}
+    for p, x in chi.items():
+        with ctx.workprec(400):
+            d = _arb(f.coeffs[p - 1]) - x * _arb(g.coeffs[p - 1])
+        assert abs(float(d)) < 1e-15, (p, float(d))
+    (Q, eta, res), = f.al_eigenvalues
+    assert Q == 9 and _diff(eta, "-1") < 1e-16 and res < 1e-15
+
+
+@pytest.mark.slow
+def test_multicusp_level4_newform_two_precisions():
+    """The even newform R = 5.8793541577586 of level 4 (found by our own search; simple in its
+    parity class): 12- and 16-digit refinements agree, eta_4 = -1 to the digits claimed, and
+    the Hecke relations hold (common practice)."""
+    f16 = refine_high_precision(4, 5.879354157758599, "even", 16)
+    f12 = refine_high_precision(4, 5.879354157758599, "even", 12)
+    assert _diff(f16.R, f12.R) < 1e-12
+    (Q, eta, res), = f16.al_eigenvalues
+    print(f"level 4 even (multi-cusp): R = {f16.R[:22]}, eta_4 = {eta[:22]} (residual {res:.1e})")
+    assert Q == 4 and _diff(eta, "-1") < 1e-16
+    with ctx.workprec(400):
+        c = [_arb(s) for s in f16.coeffs]
+        # a(2) = a(4) = a(8) = 0 (4 | N, newform), a(9) = a(3)^2 - 1; low indices only
+        rel = [c[1], c[3], c[7], c[8] - c[2] ** 2 + 1]
+        assert max(abs(float(x)) for x in rel) < 1e-14
