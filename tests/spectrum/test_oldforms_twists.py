@@ -139,3 +139,22 @@ def test_find_twist_ignores_untwisted_forms_and_wrong_levels():
     with pytest.raises(InputError, match="fundamental"):
         tw9 = synthetic_form(9, "even", g.R, tw.coeffs)
         find_twist(gamma0(9), tw9, level1_parents(), discriminants=[-12])
+
+
+def test_labels_survive_the_store_encoding():
+    """The entries written into Form.extra are plain JSON (str keys) that the store keeps."""
+    from maasscomp.spectrum.operators import label_atkin_lehner
+    from maasscomp.store._codec import decode_extra, encode_extra
+
+    from .levels_helpers import lift_at_cusps
+
+    g = _g()
+    f = synthetic_form(9, g.parity, g.R, lift_at_cusps(g.coeffs, 1, 9, g.parity, 60))
+    assert label_old(gamma0(9), f, level1_parents()) is not None
+    label_atkin_lehner(gamma0(9), f)
+    t = synthetic_form(9, "even", g.R, twist_coefficients(g.coeffs[:M], -3)[None, :])
+    assert label_twist(gamma0(9), t, level1_parents()) is not None
+    for form in (f, t):
+        text, arrays = encode_extra(form.extra)
+        assert not arrays
+        assert decode_extra(text, None) == form.extra
