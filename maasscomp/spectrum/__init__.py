@@ -25,6 +25,8 @@ ParentForm, describe_old, label_old
     Oldform recognition: parent newform and coordinates in the basis g(dz) (spectrum.oldforms).
 find_twist, label_twist, kronecker
     Quadratic twists of lower-level newforms (spectrum.twists).
+label_form, LevelLabels
+    All of the above for one confirmed form, written into Form.extra (spectrum.levels).
 Form
     The record of one confirmed form.
 """
@@ -40,6 +42,7 @@ from maasscomp.spectrum.lfunction import (
     sym2_functional_equation_residual,
     sym2_L1,
 )
+from maasscomp.spectrum.levels import LevelLabels, label_form
 from maasscomp.spectrum.near import NearResult, forms_in_window, nearest_forms
 from maasscomp.spectrum.oldforms import ParentForm, describe_old, label_old
 from maasscomp.spectrum.operators import (

@@ -158,3 +158,23 @@ def test_labels_survive_the_store_encoding():
         text, arrays = encode_extra(form.extra)
         assert not arrays
         assert decode_extra(text, None) == form.extra
+
+
+def test_label_form_writes_every_level_label():
+    from maasscomp.spectrum.levels import label_form
+
+    from .levels_helpers import lift_at_cusps
+
+    g = _g()
+    G = gamma0(9)
+    old = synthetic_form(9, g.parity, g.R, lift_at_cusps(g.coeffs, 3, 9, g.parity, 60))
+    lab = label_form(G, old, level1_parents())
+    assert lab.old is not None and lab.twist is None
+    assert abs(lab.old.components[0].coordinates[3] - 1.0) < 1e-12
+    assert set(old.extra) >= {"atkin_lehner", "old_parents", "old_fit_residual", "old_fit_n"}
+    # g(3z) is fixed by W_9 (d = 3 -> 9 * 1 / 3 = 3, docs/theory-additions/levels.md §L.2)
+    assert old.extra["atkin_lehner"]["9"]["sign"] == 1
+    tw = synthetic_form(9, "even", g.R, twist_coefficients(g.coeffs[:M], -3)[None, :])
+    lab = label_form(G, tw, level1_parents())
+    assert lab.old is None and lab.twist is not None and lab.twist.discriminant == -3
+    assert "twist_character" in tw.extra and "old_parents" not in tw.extra
