@@ -18,9 +18,9 @@ functional_equation_check, predicted_root_number, sym2_L1, rankin_selberg_norm2
 refine_high_precision, extend_coefficients
     Multiprecision refinement (python-flint) and coefficient extension; level 1 and every
     squarefree level in its Atkin--Lehner class.
-atkin_lehner_eigenvalue, atkin_lehner_matrix, apply_atkin_lehner, hecke_eigenvalue, hecke_matrix,
-cusp_label
-    Atkin--Lehner and Hecke operators on stored forms at every level (spectrum.operators).
+atkin_lehner_eigenvalue, atkin_lehner_matrix, hecke_eigenvalue, hecke_matrix, cusp_label
+    Atkin--Lehner and Hecke operators on stored forms at every level (spectrum.operators;
+    also apply_atkin_lehner, atkin_lehner_eigenvalues, label_atkin_lehner).
 ParentForm, describe_old, label_old
     Oldform recognition: parent newform and coordinates in the basis g(dz) (spectrum.oldforms).
 find_twist, label_twist, kronecker
