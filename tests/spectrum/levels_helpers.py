@@ -30,11 +30,18 @@ from ._psl2z_table import coefficients, forms
 
 
 @functools.lru_cache(maxsize=None)
-def search_forms(level: int, parity: str, R_min: float, R_max: float) -> tuple[Form, ...]:
-    """Every form of Gamma0(level) of one parity with R_min <= R <= R_max (cached)."""
-    from maasscomp.spectrum.general import search_window_general
+def search_forms(level: int, parity: str, R_min: float, R_max: float, n_coeffs: int = 60) -> tuple[Form, ...]:
+    """Every form of Gamma0(level) of one parity with R_min <= R <= R_max (cached).
 
-    return tuple(search_window_general(gamma0(level), parity, R_min, R_max).forms)
+    ``n_coeffs``: least number of coefficients stored per cusp (the search's default is 60;
+    the coefficient extension behind the L-function check needs the truncation at Y0,
+    e.g. 68 at level 64).
+    """
+    from maasscomp.spectrum.general import search_window_general
+    from maasscomp.spectrum.search import SearchSettings
+
+    settings = SearchSettings(n_coeffs=n_coeffs)
+    return tuple(search_window_general(gamma0(level), parity, R_min, R_max, settings).forms)
 
 
 def forms_at(forms, R: float, tol: float = 1e-8) -> list[Form]:
