@@ -28,7 +28,7 @@ The cusp l and the shift t are found exactly: a probe point sigma_k(iH), H > 1, 
 and pulled back (which gives gamma), and adj(M_l) gamma W M_k is then checked to be an integer
 multiple of [[1, t], [0, 1]].
 
-Hecke operators (Iwaniec, *Topics in Classical Automorphic Forms* (1997) §6.3 for the
+Hecke operators (Iwaniec, *Topics in Classical Automorphic Forms* (1997) Ch. 6, recalled, for the
 holomorphic case; the Maass case is common practice), in the normalisation c(1) = 1 where a
 Hecke newform has c(n) = lambda_f(n):
 
