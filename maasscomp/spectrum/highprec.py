@@ -675,8 +675,8 @@ def refine_high_precision(
     until the step is below 10^{-stage digits}.
 
     Error estimate: with slopes s_n of H_n(R) = a_n(R; Y1) - a_n(R; Y2) (the first four
-    n >= 2 prime to N; n = 2..5 at level 1) measured in the first stage, R_error = max_n |H_n(R_final)| / |s_n|, taken at the
-    final R in the final stage.  This combines the distance to the root with the
+    n >= 2 prime to N; n = 2..5 at level 1) measured in the first stage,
+    R_error = max_n |H_n(R_final)| / |s_n|, taken at the final R in the final stage.  This combines the distance to the root with the
     truncation noise of H.  ``digits`` is claimed only if R_error < 10^{-digits}.
 
     Parameters
@@ -832,11 +832,10 @@ def _multi_cusp_data(system: "_MultiSystem", parity: str, digits: int) -> tuple[
     cc = system.cusp_coefficients(system.last)
     nd = digits + 5
     with ctx.workprec(system.prec):
-        strs = tuple(
-            tuple((_strip_brackets(re.str(nd, radius=False, more=True)), _strip_brackets(im.str(nd, radius=False, more=True)))
-                  for re, im in row)
-            for row in cc
-        )
+        def dec(x: arb) -> str:
+            return _strip_brackets(x.str(nd, radius=False, more=True))
+
+        strs = tuple(tuple((dec(re), dec(im)) for re, im in row) for row in cc)
         sgn = -1 if parity == "even" else 1
         twopi = 2 * arb.pi()
         al = []
@@ -854,10 +853,9 @@ def _multi_cusp_data(system: "_MultiSystem", parity: str, digits: int) -> tuple[
                 vals.append((re * ang.cos() - im * ang.sin(), re * ang.sin() + im * ang.cos()))
             eta = vals[0][0]  # c_infinity(1) = 1
             res = 0.0
-            for n in range(1, K + 1):
-                c0 = cc[0][n - 1]
-                res = max(res, abs(float((vals[n - 1][0] - eta * c0[0]).mid())), abs(float((vals[n - 1][1] - eta * c0[1]).mid())))
-            al.append((int(Q), _strip_brackets(eta.str(nd, radius=False, more=True)), res))
+            for (vre, vim), (c0re, c0im) in zip(vals, cc[0]):
+                res = max(res, abs(float((vre - eta * c0re).mid())), abs(float((vim - eta * c0im).mid())))
+            al.append((int(Q), dec(eta), res))
     return strs, tuple(al)
 
 

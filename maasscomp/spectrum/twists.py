@@ -16,8 +16,8 @@ exchanges cos and sin, so it flips the parity (derived: chi(-n) = chi(-1) chi(n)
 :func:`find_twist` compares c(n) with chi_D(n) a_g(n) at the well-determined n prime to D,
 for every candidate parent g and every fundamental discriminant D with |D| | N and the
 right parity whose twist can have level N: N = M D^2 when gcd(M, D) = 1 (the twist of a
-newform of level prime to the conductor has exact level M D^2), N | lcm(M, D^2) otherwise. Results go into ``Form.extra``
-(:meth:`TwistDescription.as_extra`):
+newform of level prime to the conductor has exact level M D^2), N | lcm(M, D^2) otherwise.
+Results go into ``Form.extra`` (:meth:`TwistDescription.as_extra`):
 
 ``twist_of``
     {"level": M, "R": R of g, "parity": parity of g, "label": ...};

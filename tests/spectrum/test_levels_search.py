@@ -87,8 +87,8 @@ def _check_oldforms(N: int) -> None:
         good = f.coeff_errors <= 1e-9
         assert good[:, :10].all()
         assert np.max(np.abs(f.coeffs - lift)[good]) <= 1e-8
-        print(f"  basis member {f.basis_index}: coordinates in (g(dz))_d", {k: round(v, 12) for k, v in comp.coordinates.items()},
-              f"fit residual {d.residual:.1e}")
+        coords = {k: round(v, 12) for k, v in comp.coordinates.items()}
+        print(f"  basis member {f.basis_index}: coordinates in (g(dz))_d {coords}, fit residual {d.residual:.1e}")
     sv = np.linalg.svd(X, compute_uv=False)
     assert sv[-1] > 1e-3 * sv[0]  # the members span the whole oldspace
     # whatever else shares R1 and the parity is a newform, here always a twist of g
