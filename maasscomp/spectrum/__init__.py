@@ -23,7 +23,17 @@ search_exceptional
 functional_equation_check, predicted_root_number, sym2_L1, rankin_selberg_norm2
     L-function checks and L(1, sym^2 f).
 refine_high_precision, extend_coefficients
-    Multiprecision refinement (python-flint) and coefficient extension.
+    Multiprecision refinement (python-flint) and coefficient extension; level 1 and every
+    squarefree level in its Atkin--Lehner class.
+atkin_lehner_eigenvalue, atkin_lehner_matrix, hecke_eigenvalue, hecke_matrix, cusp_label
+    Atkin--Lehner and Hecke operators on stored forms at every level (spectrum.operators;
+    also apply_atkin_lehner, atkin_lehner_eigenvalues, label_atkin_lehner).
+ParentForm, describe_old, label_old
+    Oldform recognition: parent newform and coordinates in the basis g(dz) (spectrum.oldforms).
+find_twist, label_twist, kronecker
+    Quadratic twists of lower-level newforms (spectrum.twists).
+label_form, LevelLabels
+    All of the above for one confirmed form, written into Form.extra (spectrum.levels).
 Form
     The record of one confirmed form.
 """
@@ -39,8 +49,21 @@ from maasscomp.spectrum.lfunction import (
     sym2_L1,
 )
 from maasscomp.spectrum.large import LargeSearchResult, LargeSettings, forms_in_window_large, locate_large
+from maasscomp.spectrum.levels import LevelLabels, label_form
+from maasscomp.spectrum.oldforms import ParentForm, describe_old, label_old
+from maasscomp.spectrum.operators import (
+    apply_atkin_lehner,
+    atkin_lehner_eigenvalue,
+    atkin_lehner_eigenvalues,
+    atkin_lehner_matrix,
+    cusp_label,
+    hecke_eigenvalue,
+    hecke_matrix,
+    label_atkin_lehner,
+)
 from maasscomp.spectrum.near import NearResult, forms_in_window, nearest_forms
 from maasscomp.spectrum.search import SearchResult, SearchSettings, search_forms, symmetry_classes
+from maasscomp.spectrum.twists import find_twist, kronecker, label_twist
 from maasscomp.spectrum.weyl import (
     CompletenessReport,
     CompletenessWindow,

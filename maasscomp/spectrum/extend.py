@@ -25,12 +25,18 @@ from maasscomp.spectrum.form import Form
 
 def extend_form_coefficients(group, form: Form, n_max: int, *, eps: float = 1e-14,
                              heights: tuple[float, ...] = (0.95, 0.82, 0.7)) -> tuple[np.ndarray, np.ndarray]:
-    """a(1..n_max) at infinity of a form of squarefree level, with error estimates.
+    """a(1..n_max) at infinity of a stored form of any level, with error estimates.
+
+    The form's stored expansion at every cusp is used (docs/theory.md,
+    conventions: F_j(w) = sum sqrt(y) Kt(2 pi l y) [Re c_j(l) cs(2 pi l x) + Im c_j(l)
+    cs'(2 pi l x)] at the pulled-back point w of cusp j). A form of squarefree level that
+    stores only its expansion at infinity uses c_j = eps_Q c_0 at the cusp W_Q(infinity)
+    with the signs of its symmetry class (docs/theory.md §1.5).
 
     Parameters
     ----------
     group : Gamma0
-        The form's group (squarefree level).
+        The form's group.
     form : Form
         A stored form whose coefficients reach the truncation at height Y0.
     n_max : int
@@ -45,18 +51,29 @@ def extend_form_coefficients(group, form: Form, n_max: int, *, eps: float = 1e-1
     a, err : ndarray
         The coefficients (a(1) = 1) and their estimated absolute errors.
     """
-    if not group.is_squarefree or group.level != form.level:
-        raise InputError(f"coefficient extension needs the squarefree group of the form (level {form.level})")
+    if group.level != form.level:
+        raise InputError(f"coefficient extension needs the group of the form (level {form.level}), got level {group.level}")
     if not (isinstance(n_max, int) and 10 <= n_max <= 200000):
         raise InputError(f"n_max={n_max!r} is not allowed; it must be an integer in [10, 200000]")
     R = form.R
-    a_st = np.real(np.asarray(form.coeffs[0])).astype(float)
+    C = np.asarray(form.coeffs)
+    # a squarefree-level form given by its expansion at infinity alone uses its signs eps_Q;
+    # otherwise every cusp's stored expansion is read
+    one_cusp = group.is_squarefree and C.shape[0] == 1
+    if not one_cusp and C.shape[0] != group.n_cusps:
+        raise InputError(f"the form stores {C.shape[0]} cusp expansions; level {group.level} has {group.n_cusps} cusps")
     Y0 = group.fundamental_domain_height
     need = truncation_M0(R, Y0, eps)
-    if a_st.size < need:
-        raise InputError(f"the form stores {a_st.size} coefficients; extending it needs at least {need}")
-    a_st = a_st[:need]
+    if C.shape[1] < need:
+        raise InputError(f"the form stores {C.shape[1]} coefficients; extending it needs at least {need}")
+    if one_cusp:
+        rows = np.real(C[:1, :need]).astype(float)
+        imag = np.zeros_like(rows)
+    else:
+        rows = np.real(C[:, :need]).astype(float)
+        imag = np.imag(C[:, :need]).astype(float) if np.iscomplexobj(C) else np.zeros_like(rows)
     cs = np.cos if form.parity == "even" else np.sin
+    cs_other = np.sin if form.parity == "even" else np.cos
     l = np.arange(1, need + 1)
     n = np.arange(1, n_max + 1)
     vals, kmag = [], []
@@ -65,13 +82,21 @@ def extend_form_coefficients(group, form: Form, n_max: int, *, eps: float = 1e-1
         Q = max(n_max, truncation_M0(R, Y, eps)) + 8
         x = (np.arange(1, Q + 1) - 0.5) / (2 * Q)
         pb = group.pullback(x, np.full_like(x, Y))
-        sign = np.array([form.symmetry.al_sign(group.cusps[int(j)].atkin_lehner_Q) for j in np.asarray(pb.cusp)])
+        jc = np.asarray(pb.cusp, dtype=np.int64)
+        if one_cusp:
+            sign = np.array([form.symmetry.al_sign(group.cusps[int(j)].atkin_lehner_Q) for j in jc])
+            row_of = np.zeros(Q, dtype=np.int64)
+        else:
+            sign = np.ones(Q)
+            row_of = jc
         ys, xs = np.asarray(pb.y), np.asarray(pb.x)
         f = np.empty(Q)
         for i0 in range(0, Q, 4096):  # blocks keep the Q x need work arrays small
             sl = slice(i0, i0 + 4096)
             kb = ktilde(R, (TWO_PI * ys[sl])[:, None] * l[None, :]) * np.sqrt(ys[sl])[:, None]
-            f[sl] = sign[sl] * ((kb * cs(TWO_PI * xs[sl][:, None] * l[None, :])) @ a_st)
+            ang = TWO_PI * xs[sl][:, None] * l[None, :]
+            r = row_of[sl]
+            f[sl] = sign[sl] * np.sum(kb * (cs(ang) * rows[r] + cs_other(ang) * imag[r]), axis=1)
         from scipy.fft import dct, dst
 
         b = dct(f, type=2)[1 : n_max + 1] / Q if form.parity == "even" else dst(f, type=2)[:n_max] / Q
@@ -93,29 +118,50 @@ LFUNCTION_MAX_COEFFS = 20000
 
 
 def lfunction_label(group, form: Form) -> dict:
-    """Functional-equation check of a newform of squarefree level (spectrum.lfunction).
+    """Functional-equation check of a newform of any level (spectrum.lfunction).
+
+    The predicted sign (-1)^delta eta_N needs the Atkin--Lehner eigenvalues: at squarefree
+    levels they follow from a(p) = -eps_p/sqrt(p); at other levels they are fitted on the
+    stored cusp expansions (:func:`maasscomp.spectrum.operators.atkin_lehner_eigenvalues`).
 
     Returns a dict for ``Form.extra["lfunction"]``: the sign found, the sign predicted from
     the Atkin--Lehner data, the residual, the number of coefficients used and ``passed``;
-    or ``{"skipped": reason}`` when the check would need more than
-    :data:`LFUNCTION_MAX_COEFFS` coefficients.
+    at non-squarefree levels also ``fricke_eigenvalue`` (the raw fitted eta_N); or
+    ``{"skipped": reason}`` when the check would need more than
+    :data:`LFUNCTION_MAX_COEFFS` coefficients or the stored coefficients do not allow the
+    extension.
     """
     from maasscomp.spectrum.lfunction import TooFewCoefficients, functional_equation_check
 
+    al = None
+    fricke = None
+    if not group.is_squarefree:
+        from maasscomp.spectrum.operators import atkin_lehner_eigenvalue
+
+        fit = atkin_lehner_eigenvalue(group, form, group.level)
+        fricke = float(fit.value)
+        al = {group.level: fricke}
+    a0 = np.real(form.coeffs[0])
     try:
-        chk = functional_equation_check(form.R, np.real(form.coeffs[0]), form.parity, group.level)
+        chk = functional_equation_check(form.R, a0, form.parity, group.level, al_eigenvalues=al)
         used = int(form.coeffs.shape[1])
     except TooFewCoefficients as exc:
         n_need = exc.needed + 8
         if n_need > LFUNCTION_MAX_COEFFS:
             return {"skipped": f"needs {n_need} coefficients (limit {LFUNCTION_MAX_COEFFS})"}
-        a, _ = extend_form_coefficients(group, form, n_need)
-        chk = functional_equation_check(form.R, a, form.parity, group.level)
+        try:
+            a, _ = extend_form_coefficients(group, form, n_need)
+        except InputError as exc2:
+            return {"skipped": f"coefficient extension not possible: {exc2}"}
+        chk = functional_equation_check(form.R, a, form.parity, group.level, al_eigenvalues=al)
         used = n_need
-    return {
+    out = {
         "sign": int(chk.sign),
         "predicted_sign": None if chk.predicted_sign is None else int(chk.predicted_sign),
         "residual": float(chk.residual),
         "passed": bool(chk.passed),
         "n_coeffs_used": used,
     }
+    if fricke is not None:
+        out["fricke_eigenvalue"] = fricke
+    return out

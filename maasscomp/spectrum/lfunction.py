@@ -20,18 +20,22 @@ large R.
 Conventions: f(z) = sum a(n) sqrt(y) K_{iR}(2 pi n y) cs(2 pi n x), a(1) = 1, a(n) the
 Hecke eigenvalues of a newform (docs/theory.md, conventions).
 
-Standard L-function (degree 2, level N squarefree, parity delta = 0 even / 1 odd):
+Standard L-function (degree 2, any level N, trivial character, parity delta = 0 even /
+1 odd):
 
     Lambda(s, f) = N^{s/2} Gamma_R(s + delta + iR) Gamma_R(s + delta - iR) L(s, f),
     Gamma_R(s) = pi^{-s/2} Gamma(s/2),  Lambda(s, f) = eps Lambda(1 - s, f),
 
-with eps = (-1)^delta eta_N, eta_N the Fricke eigenvalue (eta_1 = 1).  [Derived here by
-Mellin transform of f(iy) (even) and of d/dx f(iy) (odd) under z -> -1/(Nz); for level 1
-it gives eps = +1 for even and -1 for odd forms, which the check confirms numerically.]
-For squarefree N and a newform, eta_N = prod_{p|N} eps_p with eps_p = -sqrt(p) a(p)
-(Atkin-Lehner; docs/theory.md §1.1, from memory for Maass forms), so the predicted sign is
-eps = (-1)^delta prod_{p|N} (-sqrt(p) a(p)).  The check determines eps numerically and
-reports the prediction beside it.
+with eps = (-1)^delta eta_N, eta_N the Fricke eigenvalue, f(-1/(Nz)) = eta_N f(z)
+(eta_1 = 1).  [Derived here by Mellin transform of f(iy) (even) and of d/dx f(iy) (odd)
+under z -> -1/(Nz); the derivation uses only the Fricke symmetry, so it holds for every N;
+for level 1 it gives eps = +1 for even and -1 for odd forms, which the check confirms
+numerically.]  For a newform eta_N = prod_{Q} eta_Q over the prime powers Q = p^e || N
+(W_N is the product of the W_Q modulo Gamma0(N); Atkin & Lehner, Math. Ann. 185 (1970)),
+and for e = 1, eta_p = -sqrt(p) a(p) (Atkin-Lehner; docs/theory.md §1.1, from memory for
+Maass forms).  For e >= 2 the coefficient a(p) vanishes and eta_{p^e} must be supplied
+(computed from the cusp expansions by maasscomp.spectrum.operators).  The check determines
+eps numerically and reports the prediction beside it.
 
 Symmetric square (degree 3, conductor N^2 for squarefree N; root number +1):
 
@@ -50,7 +54,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Callable, Sequence
+from typing import Callable, Mapping, Sequence
 
 import numpy as np
 from scipy.special import loggamma
@@ -116,6 +120,23 @@ def _squarefree_primes(level: object) -> tuple[int, ...]:
     if n > 1:
         ps.append(n)
     return tuple(ps)
+
+
+def _level_primes(level: object) -> dict[int, int]:
+    """Factorisation {p: e} of a positive integer level (any N)."""
+    if isinstance(level, bool) or not isinstance(level, (int, np.integer)) or level < 1:
+        raise InputError(f"level {level!r} is not allowed; use a positive integer")
+    n = int(level)
+    out: dict[int, int] = {}
+    d = 2
+    while d * d <= n:
+        while n % d == 0:
+            out[d] = out.get(d, 0) + 1
+            n //= d
+        d += 1
+    if n > 1:
+        out[n] = out.get(n, 0) + 1
+    return out
 
 
 def _check_R(R: object) -> float:
@@ -483,8 +504,8 @@ class FunctionalEquationCheck:
     other_sign_residual : float
         The residual with the opposite sign (large when the sign is determined).
     predicted_sign : int or None
-        (-1)^delta prod_{p|N} (-sqrt(p) a(p)) rounded to +-1 (None if the a(p) for
-        p | N are not close to +-1/sqrt(p)); see the module docstring.
+        (-1)^delta eta_N from :func:`predicted_root_number` (None if the Atkin--Lehner
+        data needed are missing or not close to +-1); see the module docstring.
     values : tuple of complex
         L(s, f) at the s points (first smoothing, chosen sign).
     s_points : tuple of complex
@@ -511,25 +532,60 @@ class FunctionalEquationCheck:
         return ok_sign and self.residual <= 1e-8
 
 
-def predicted_root_number(parity: str, coeffs: Sequence[float] | np.ndarray, level: int = 1) -> int | None:
-    """eps = (-1)^delta prod_{p|N} (-sqrt(p) a(p)) for a squarefree-level newform.
+def predicted_root_number(
+    parity: str,
+    coeffs: Sequence[float] | np.ndarray,
+    level: int = 1,
+    *,
+    al_eigenvalues: Mapping[int, float] | None = None,
+) -> int | None:
+    """eps = (-1)^delta eta_N for a newform of level N (module docstring).
 
-    Derived in the module docstring (Fricke sign from the Atkin-Lehner signs
-    eps_p = -sqrt(p) a(p), docs/theory.md §1.1).  Returns None if some a(p), p | N, is
-    not within 1e-6 of +-1/sqrt(p) (not a newform, or coefficients too inaccurate).
+    eta_N is taken from ``al_eigenvalues[N]`` if given; otherwise it is the product over
+    the prime powers Q = p^e || N of eta_Q, with eta_Q = ``al_eigenvalues[Q]`` when given
+    and, for e = 1, eta_p = -sqrt(p) a(p) (Atkin-Lehner, docs/theory.md §1.1).  Each
+    eigenvalue must be within 1e-6 of +-1.  Returns None when some eta_Q is missing (e >= 2
+    and not supplied) or not close to +-1 (not a newform, or inaccurate data).
+
+    Parameters
+    ----------
+    parity : {"even", "odd"}
+    coeffs : array
+        a(1..M) at infinity (only a(p) for p || N is read).
+    level : int
+    al_eigenvalues : mapping Q -> eta_Q, optional
+        Atkin--Lehner eigenvalues f|W_Q = eta_Q f for exact divisors Q of N (e.g. from
+        :func:`maasscomp.spectrum.operators.atkin_lehner_eigenvalues`).
     """
     if parity not in ("even", "odd"):
         raise InputError(f"parity {parity!r} is not allowed; use 'even' or 'odd'")
-    primes = _squarefree_primes(level)
+    fac = _level_primes(level)
+    N = int(level)
     a = np.asarray(coeffs, dtype=float).ravel()
+    given = {int(Q): float(v) for Q, v in (al_eigenvalues or {}).items()}
+    for Q in given:
+        if Q < 1 or N % Q or math.gcd(Q, N // Q) != 1:
+            raise InputError(f"al_eigenvalues has Q={Q}, not an exact divisor of N={N}")
+
+    def as_sign(v: float) -> int | None:
+        return (1 if v > 0 else -1) if abs(abs(v) - 1.0) <= 1e-6 else None
+
     eps = 1 if parity == "even" else -1
-    for p in primes:
-        if p > a.size:
+    if N in given and N > 1:
+        s = as_sign(given[N])
+        return None if s is None else eps * s
+    for p, e in fac.items():
+        Q = p**e
+        if Q in given:
+            v = given[Q]
+        elif e == 1 and p <= a.size:
+            v = -math.sqrt(p) * a[p - 1]
+        else:
             return None
-        e = -math.sqrt(p) * a[p - 1]
-        if abs(abs(e) - 1.0) > 1e-6:
+        s = as_sign(v)
+        if s is None:
             return None
-        eps *= 1 if e > 0 else -1
+        eps *= s
     return eps
 
 
@@ -542,6 +598,7 @@ def functional_equation_check(
     *,
     A: tuple[float, float] = (6.0, 16.0),
     tol: float = 1e-12,
+    al_eigenvalues: Mapping[int, float] | None = None,
 ) -> FunctionalEquationCheck:
     """Check Lambda(s) = eps Lambda(1 - s) for the standard L-function of a newform.
 
@@ -561,7 +618,7 @@ def functional_equation_check(
         a(1..M), a(1) = 1, Hecke eigenvalues.
     parity : {"even", "odd"}
     level : int, optional
-        Squarefree level (default 1).
+        Level N (default 1), any positive integer; the conductor is N.
     s_points : sequence of complex, optional
         Points s (default :func:`default_s_points`: 0.5+0.3i, 0.7, 0.2+i,
         0.5+1.2iR, 0.8+1.5iR, 0.6+1.7iR).
@@ -569,6 +626,9 @@ def functional_equation_check(
         Smoothing parameters (default (6, 16); smaller A needs many more terms).
     tol : float, optional
         Truncation target used to choose the number of terms.
+    al_eigenvalues : mapping Q -> eta_Q, optional
+        Atkin--Lehner eigenvalues for the predicted sign (:func:`predicted_root_number`);
+        needed at levels with p^2 | N.
 
     Returns
     -------
@@ -582,7 +642,7 @@ def functional_equation_check(
     R = _check_R(R)
     if parity not in ("even", "odd"):
         raise InputError(f"parity {parity!r} is not allowed; use 'even' or 'odd'")
-    primes = _squarefree_primes(level)
+    _level_primes(level)
     a = _coeff_array(coeffs)
     pts = tuple(complex(s) for s in (default_s_points(R) if s_points is None else s_points))
     if not pts:
@@ -634,7 +694,7 @@ def functional_equation_check(
         residual=float(best),
         residuals=tuple(float(x) for x in res[sign]),
         other_sign_residual=float(other),
-        predicted_sign=predicted_root_number(parity, a, level) if primes or level == 1 else None,
+        predicted_sign=predicted_root_number(parity, a, level, al_eigenvalues=al_eigenvalues),
         values=tuple(vals[sign]),
         s_points=pts,
         cutoff=int(needed),

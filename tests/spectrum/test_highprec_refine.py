@@ -112,7 +112,9 @@ def test_wrong_parity_does_not_converge_to_claimed_value():
 @pytest.mark.parametrize(
     "kw",
     [
-        dict(level=2, R0=9.5, parity="odd"),
+        dict(level=4, R0=9.5, parity="odd", al_signs={2: 1}),
+        dict(level=2, R0=9.5, parity="odd", al_signs={3: 1}),
+        dict(level=6, R0=9.5, parity="odd", al_signs={2: 1, 3: 0}),
         dict(level=0, R0=9.5, parity="odd"),
         dict(level=1, R0=-1.0, parity="odd"),
         dict(level=1, R0=9.5, parity="both"),
@@ -121,8 +123,12 @@ def test_wrong_parity_does_not_converge_to_claimed_value():
     ],
 )
 def test_bad_input(kw):
-    with pytest.raises(InputError):
+    with pytest.raises(InputError) as exc:
         refine_high_precision(**kw)
+    if kw["level"] == 4:
+        assert "not squarefree" in str(exc.value)
+    elif kw["level"] in (2, 6):
+        assert "al_signs" in str(exc.value)
 
 
 def test_extend_bad_input(r1_30):

@@ -145,6 +145,16 @@ def test_predicted_root_number():
     assert predicted_root_number("even", [1.0, -1 / math.sqrt(2)], 2) == 1
     assert predicted_root_number("odd", [1.0, -1 / math.sqrt(2)], 2) == -1
     assert predicted_root_number("even", [1.0, 1 / math.sqrt(2), 0.1], 6) is None
+    # p^2 | N: a(p) = 0 says nothing about eta_{p^e}; the Atkin-Lehner eigenvalue is needed
+    assert predicted_root_number("even", [1.0, 0.0, 0.3], 4) is None
+    assert predicted_root_number("even", [1.0, 0.0, 0.3], 4, al_eigenvalues={4: -1.0}) == -1
+    assert predicted_root_number("odd", [1.0, 0.0, 0.3], 4, al_eigenvalues={4: -1.0}) == 1
+    # level 12 = 4 * 3: eta_3 from a(3) = -eta_3/sqrt 3, eta_4 given
+    assert predicted_root_number("even", [1.0, 0.0, 1 / math.sqrt(3)], 12, al_eigenvalues={4: 1.0}) == -1
+    # a raw value not close to +-1 gives no prediction; Q must divide N exactly
+    assert predicted_root_number("even", [1.0, 0.0], 4, al_eigenvalues={4: 0.5}) is None
+    with pytest.raises(InputError, match="exact divisor"):
+        predicted_root_number("even", [1.0, 0.0], 12, al_eigenvalues={2: 1.0})
 
 
 @pytest.mark.parametrize(
@@ -153,7 +163,8 @@ def test_predicted_root_number():
         dict(R=-1.0, coeffs=[1.0, 0.5], parity="odd"),
         dict(R=9.5, coeffs=[2.0, 0.5], parity="odd"),
         dict(R=9.5, coeffs=[1.0, 0.5], parity="up"),
-        dict(R=9.5, coeffs=[1.0, 0.5], parity="odd", level=4),
+        dict(R=9.5, coeffs=[1.0, 0.5], parity="odd", level=0),
+        dict(R=9.5, coeffs=[1.0, 0.5], parity="odd", level=4.0),
         dict(R=9.5, coeffs=[1.0, float("nan")], parity="odd"),
     ],
 )

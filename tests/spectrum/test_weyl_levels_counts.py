@@ -5,7 +5,7 @@ H. Iwaniec, *Spectral Methods of Automorphic Forms*, 2nd ed. 2002, Thm 10.2; D. 
 Springer LNM 1001, 1983), from which the project derived W_N
 (docs/theory-additions/weyl.md §W3).  The lists of eigenvalues are our own:
 data/reference/weyl_level{4,8,9}_R12.csv, computed here with maasscomp
-(maasscomp.spectrum.general.search_window_general, two independent fine-grid runs; see the
+(a fine-grid search of the project, two independent fine-grid runs; see the
 file headers and tests/spectrum/make_spectrum_lists.py).  A list is compared with the law,
 so this checks the law only as far as the lists are complete, and the lists only as far as
 the law is right; the two were made independently.
