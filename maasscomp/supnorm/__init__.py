@@ -13,8 +13,8 @@ scan_form, ScanSettings, ScanResult, RegionPeak, leading_profile_peak
     Peaks of |f|/||f|| in each cusp region and on the compact part, with a grid bound.
 scan_store, load_scans, load_norm
     Normalise and scan the forms of a store file; results are kept as attachments.
-table_rows, cusp_share, write_csv, write_markdown (module ``stats``), make_figures and the
-plot functions (module ``figures``), add_commands (module ``commands``: ``scan``, ``figures``).
+
+Tables and figures of the scans are made by the report stage (:mod:`maasscomp.report`).
 """
 
 from maasscomp.supnorm.evaluate import Evaluation, FormEvaluator, evaluate

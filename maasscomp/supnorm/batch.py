@@ -73,6 +73,7 @@ def scan_store(path: str | os.PathLike, *, keys: Iterable[str] | None = None, le
 
     st = settings or ScanSettings()
     out = []
+    Store.open(path, "r").close()  # a missing or foreign file is an error, never a new store
     with Store.open(path, "a") as store:
         for key in select_keys(store, keys, level, R_min, R_max):
             if not overwrite and SCAN_ATTACHMENT in store.attachments(key):

@@ -881,7 +881,7 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
         alpha, beta = tab.cos_sin(j, 1)
         T1 = A1 * (alpha[0] * math.cos(TWO_PI * x) + beta[0] * math.sin(TWO_PI * x))
         lead_peak.append(c1 * pmax * scale)
-        n2_peak.append((F - T1) * scale)
+        n2_peak.append(float((F - T1) * scale))
         n2_sup.append((_rest_bound(rs, slab, j) + ev.tol) * scale)
         n2_grid.append(max(hh.n2max for hh in slab.horos) * scale)
         y_tops.append(y_top)

@@ -140,7 +140,8 @@ def foreign_files(tmp_path):
 def test_files_that_are_not_ours(tmp_path, monkeypatch, capsys, foreign_files):
     monkeypatch.chdir(tmp_path)
     text, other = foreign_files
-    for cmd in (["list"], ["export", "--json", tmp_path / "x.json"], ["report", "--out", tmp_path / "rep"]):
+    for cmd in (["list"], ["export", "--json", tmp_path / "x.json"], ["report", "--out", tmp_path / "rep"],
+                ["figures", "--out", tmp_path / "figs"], ["scan"]):
         _expect_error(capsys, tmp_path, [cmd[0], tmp_path / "missing.h5", *cmd[1:]], "does not exist")
         _expect_error(capsys, tmp_path, [cmd[0], text, *cmd[1:]], "is not an HDF5 file")
         _expect_error(capsys, tmp_path, [cmd[0], other, *cmd[1:]], "not a maasscomp store")

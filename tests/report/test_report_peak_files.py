@@ -1,4 +1,4 @@
-"""The scan/figures commands, store attachments, tables and shares (project-internal checks)."""
+"""The scan and figures commands, store attachments, peak tables and shares (project-internal checks)."""
 
 from __future__ import annotations
 
@@ -11,7 +11,7 @@ from maasscomp.cli import main
 from maasscomp.store import Store
 from maasscomp.supnorm import load_norm, load_scans
 from maasscomp.supnorm.scan import NORM_ATTACHMENT, SCAN_ATTACHMENT
-from maasscomp.supnorm.stats import COLUMNS, cusp_share
+from maasscomp.report.peaks import COLUMNS, cusp_share
 
 
 @pytest.fixture()
@@ -44,19 +44,23 @@ def test_figures_command(small_store, tmp_path):
     assert main(["scan", str(small_store), "-q", "--table", str(tmp_path / "t.csv")]) == 0
     with open(tmp_path / "t.csv", encoding="utf-8") as fh:
         rows = list(csv.DictReader(fh))
-    assert len(rows) == 4 and list(rows[0]) == [c for c, _ in COLUMNS]
+    assert len(rows) == 4 and list(rows[0]) == [c.name for c in COLUMNS]
+    # every number reads back as a float (no numpy reprs such as np.float64(...))
+    for r in rows:
+        for c in ("R", "cusp_peak", "n2_at_peak", "compact_peak", "ratio"):
+            float(r[c])
     out = tmp_path / "figs"
-    assert main(["figures", str(small_store), str(out)]) == 0
+    assert main(["figures", str(small_store), "--out", str(out)]) == 0
     names = {p.name for p in out.iterdir()}
-    assert {"peaks_vs_lambda.png", "cusp_share.png", "value_distribution.png", "supnorm_table.csv",
-            "supnorm_report.md"} <= names
+    assert {"peaks_vs_lambda.png", "cusp_share.png", "value_distribution.png", "peaks.csv",
+            "peaks.md"} <= names
     for p in out.iterdir():
         assert p.stat().st_size > 0
-    md = (out / "supnorm_report.md").read_text()
+    md = (out / "peaks.md").read_text()
     assert "Global maximum in a cusp" in md and "random wave" in md.lower()
     key = rows[0]["key"]
     one = tmp_path / "one"
-    assert main(["figures", str(small_store), str(one), "--key", key]) == 0
+    assert main(["figures", str(small_store), "--out", str(one), "--key", key]) == 0
     assert any(p.name.startswith("form_") for p in one.iterdir())
 
 
@@ -88,12 +92,12 @@ def test_scan_skips_forms_with_too_few_coefficients(tmp_path, forms_by_level, ca
 
 
 def test_figures_need_a_scan(small_store, tmp_path, capsys):
-    assert main(["figures", str(small_store), str(tmp_path / "f")]) == 2
+    assert main(["figures", str(small_store), "--out", str(tmp_path / "f")]) == 2
     assert "scan" in capsys.readouterr().err
 
 
 def test_scan_missing_store(tmp_path, capsys):
-    assert main(["figures", str(tmp_path / "none.h5"), str(tmp_path / "f")]) == 2
+    assert main(["figures", str(tmp_path / "none.h5"), "--out", str(tmp_path / "f")]) == 2
 
 
 def test_cusp_share_counts(small_store):

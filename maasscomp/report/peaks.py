@@ -1,4 +1,4 @@
-"""Statistics across scanned forms: tables (CSV, Markdown) and cusp-versus-compact shares.
+"""Statistics across scanned forms: the per-form peak table and cusp-versus-compact shares.
 
 All peak values are those of the L2-normalised form f/||f|| (norm over Gamma0(N)\\H with
 dmu = dx dy / y^2, not divided by the area). Reference curves used by the report:
@@ -12,42 +12,41 @@ dmu = dx dy / y^2, not divided by the area). Reference curves used by the report
 
 from __future__ import annotations
 
-import csv
 import math
-import os
 from pathlib import Path
 from typing import Any, Iterable, Sequence
 
 import numpy as np
 
+from maasscomp.report.tables import Column, markdown_table
 from maasscomp.supnorm.scan import ScanResult
 
 #: Columns of the per-form table, with their meaning (used for the Markdown legend).
-COLUMNS: list[tuple[str, str]] = [
-    ("key", "store key of the form"),
-    ("level", "N"),
-    ("symmetry", "parity and Atkin-Lehner signs"),
-    ("R", "spectral parameter (lambda = 1/4 + R^2)"),
-    ("cusp_peak", "largest max of |f|/||f|| over the cusp regions Im w >= Y_c"),
-    ("cusp", "cusp holding it"),
-    ("cusp_x", "its location x (cusp coordinate)"),
-    ("cusp_y", "its location y (cusp coordinate)"),
-    ("transition_peak", "largest local max in the transition zone of the first term"),
-    ("leading_term_peak", "peak of the n = 1 term alone (normalised)"),
-    ("n2_at_peak", "n >= 2 terms at the cusp peak (normalised)"),
-    ("compact_peak", "max of |f|/||f|| on the compact part"),
-    ("compact_x", "its location x (cusp coordinate, highest representative)"),
-    ("compact_y", "its location y"),
-    ("global_region", "region holding the global maximum"),
-    ("ratio", "cusp peak / compact peak"),
-    ("exp_cusp", "log(cusp peak) / log(lambda)"),
-    ("exp_compact", "log(compact peak) / log(lambda)"),
-    ("grid_bound_rel", "largest relative grid bound (sup <= value (1 + bound))"),
-    ("compact_var_area", "variance of f/||f|| on the compact part times the area (random wave model: 1)"),
-    ("compact_skew", "skewness on the compact part (Gaussian: 0)"),
-    ("compact_exkurt", "excess kurtosis on the compact part (Gaussian: 0)"),
-    ("extended", "coefficients extended by Hecke multiplicativity"),
-    ("seconds", "scan time"),
+COLUMNS: list[Column] = [
+    Column("key", "store key of the form"),
+    Column("level", "N"),
+    Column("symmetry", "parity and Atkin-Lehner signs"),
+    Column("R", "spectral parameter (lambda = 1/4 + R^2)"),
+    Column("cusp_peak", "largest max of |f|/||f|| over the cusp regions Im w >= Y_c"),
+    Column("cusp", "cusp holding it"),
+    Column("cusp_x", "its location x (cusp coordinate)"),
+    Column("cusp_y", "its location y (cusp coordinate)"),
+    Column("transition_peak", "largest local max in the transition zone of the first term"),
+    Column("leading_term_peak", "peak of the n = 1 term alone (normalised)"),
+    Column("n2_at_peak", "n >= 2 terms at the cusp peak (normalised)"),
+    Column("compact_peak", "max of |f|/||f|| on the compact part"),
+    Column("compact_x", "its location x (cusp coordinate, highest representative)"),
+    Column("compact_y", "its location y"),
+    Column("global_region", "region holding the global maximum"),
+    Column("ratio", "cusp peak / compact peak"),
+    Column("exp_cusp", "log(cusp peak) / log(lambda)"),
+    Column("exp_compact", "log(compact peak) / log(lambda)"),
+    Column("grid_bound_rel", "largest relative grid bound (sup <= value (1 + bound))"),
+    Column("compact_var_area", "variance of f/||f|| on the compact part times the area (random wave model: 1)"),
+    Column("compact_skew", "skewness on the compact part (Gaussian: 0)"),
+    Column("compact_exkurt", "excess kurtosis on the compact part (Gaussian: 0)"),
+    Column("extended", "coefficients extended by Hecke multiplicativity"),
+    Column("seconds", "scan time"),
 ]
 
 
@@ -77,45 +76,6 @@ def table_rows(results: Iterable[ScanResult]) -> list[dict[str, Any]]:
             "extended": r.extended, "seconds": r.elapsed,
         })
     return rows
-
-
-def _fmt(v: Any) -> str:
-    if isinstance(v, bool) or v is None:
-        return "" if v is None else ("yes" if v else "no")
-    if isinstance(v, (int, np.integer)):
-        return str(int(v))
-    if isinstance(v, (float, np.floating)):
-        v = float(v)
-        if not math.isfinite(v):
-            return str(v)
-        if v != 0 and (abs(v) < 1e-3 or abs(v) >= 1e5):
-            return f"{v:.3e}"
-        return f"{v:.6g}"
-    return str(v)
-
-
-def _atomic_write(path: Path, text: str) -> None:
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(text, encoding="utf-8")
-    os.replace(tmp, path)
-
-
-def write_csv(rows: Sequence[dict[str, Any]], path: str | os.PathLike) -> Path:
-    """Write the table as CSV (full precision; atomic replace)."""
-    p = Path(path)
-    tmp = p.with_name(p.name + ".tmp")
-    with open(tmp, "w", newline="", encoding="utf-8") as fh:
-        w = csv.writer(fh)
-        w.writerow([c for c, _ in COLUMNS])
-        for r in rows:
-            w.writerow([repr(r[c]) if isinstance(r[c], float) else r[c] for c, _ in COLUMNS])
-    os.replace(tmp, p)
-    return p
-
-
-def markdown_table(columns: Sequence[str], rows: Sequence[dict[str, Any]]) -> str:
-    head = "| " + " | ".join(columns) + " |\n|" + "---|" * len(columns) + "\n"
-    return head + "".join("| " + " | ".join(_fmt(r[c]) for c in columns) + " |\n" for r in rows)
 
 
 def _r_bins(Rs: np.ndarray) -> list[tuple[float, float]]:
@@ -158,35 +118,35 @@ def cusp_share(results: Sequence[ScanResult]) -> dict[str, list[dict[str, Any]]]
     return {"by_level": by_level, "by_R": by_R}
 
 
-def write_markdown(results: Sequence[ScanResult], path: str | os.PathLike, figures: Sequence[str] = (),
-                   title: str = "Sup-norm scan") -> Path:
-    """A Markdown report: per-form table, cusp shares, value-distribution moments, figures."""
+def peaks_markdown(results: Sequence[ScanResult], figures: Sequence[str] = (),
+                   title: str = "Sup-norm scan") -> str:
+    """Markdown text: per-form table, cusp shares, value-distribution moments, figures."""
     results = list(results)
     rows = table_rows(results)
-    main_cols = ["key", "level", "symmetry", "R", "cusp_peak", "transition_peak", "compact_peak",
-                 "global_region", "ratio", "exp_cusp", "exp_compact", "grid_bound_rel"]
-    dist_cols = ["key", "compact_var_area", "compact_skew", "compact_exkurt"]
+    by_name = {c.name: c for c in COLUMNS}
+    main_cols = [by_name[c] for c in ("key", "level", "symmetry", "R", "cusp_peak", "transition_peak",
+                                      "compact_peak", "global_region", "ratio", "exp_cusp", "exp_compact",
+                                      "grid_bound_rel")]
+    dist_cols = [by_name[c] for c in ("key", "compact_var_area", "compact_skew", "compact_exkurt")]
     share = cusp_share(results)
-    lines = [f"# {title}\n", f"{len(results)} forms. Values are max |f| / ||f|| with ||f||^2 = "
+    lines = [f"# {title}\n\n", f"{len(results)} forms. Values are max |f| / ||f|| with ||f||^2 = "
              "integral of |f|^2 dx dy / y^2 over Gamma0(N)\\H. Cusp regions: Im w >= Y_c in each cusp's "
              f"coordinate (Y_c = {results[0].Y_c if results else 1.0:g}); a maximum on their boundary "
              "counts as compact.\n"]
-    lines.append("## Peaks per form\n")
+    lines.append("\n## Peaks per form\n\n")
     lines.append(markdown_table(main_cols, rows))
-    lines.append("\n## Global maximum in a cusp\n")
-    lines.append(markdown_table(["level", "forms", "in_cusp", "share"], share["by_level"]))
+    lines.append("\n## Global maximum in a cusp\n\n")
+    lines.append(markdown_table(["level", "forms", "in_cusp", Column("share", fixed=3)], share["by_level"]))
     lines.append("\n")
-    lines.append(markdown_table(["R_range", "forms", "in_cusp", "share"], share["by_R"]))
-    lines.append("\n## Value distribution on the compact part\n")
+    lines.append(markdown_table(["R_range", "forms", "in_cusp", Column("share", fixed=3)], share["by_R"]))
+    lines.append("\n## Value distribution on the compact part\n\n")
     lines.append("Random wave model (Hejhal & Rackner 1992): Gaussian with mean 0 and variance 1/area, i.e. "
                  "variance x area = 1, skewness 0, excess kurtosis 0.\n\n")
     lines.append(markdown_table(dist_cols, rows))
     if figures:
-        lines.append("\n## Figures\n")
+        lines.append("\n## Figures\n\n")
         for fpath in figures:
             lines.append(f"![{Path(fpath).stem}]({Path(fpath).name})\n")
-    lines.append("\n## Columns\n")
-    lines.extend(f"* `{c}`: {m}\n" for c, m in COLUMNS)
-    p = Path(path)
-    _atomic_write(p, "".join(lines))
-    return p
+    lines.append("\n## Columns\n\n")
+    lines.extend(f"* `{c.name}`: {c.meaning}\n" for c in COLUMNS)
+    return "".join(lines)

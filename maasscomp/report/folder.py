@@ -12,28 +12,30 @@ Contents (file names fixed, so scripts can rely on them):
     For every level whose searched R range covers all symmetry classes: forms found
     against Weyl's law (:func:`maasscomp.spectrum.weyl.completeness`) window by window,
     and a figure of N(T) and W(T) with the remainder N(T) - W(T).
-``peaks.csv``, ``peaks_vs_lambda.png``, ``peak_ratio.png``
-    Peak statistics of the sup-norm scans (cusp and compact peaks against lambda, their
-    ratio), when the store holds scans.
+``peaks.csv``, ``peaks.md`` and the peak figures (``peaks_vs_lambda.png``, ``cusp_share.png``,
+``value_distribution.png``)
+    Peak statistics of the sup-norm scans, when the store holds scans; the same files as
+    ``maasscomp figures`` writes (:func:`write_peak_files`).
 """
 
 from __future__ import annotations
 
-import csv
-import math
 from collections import defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
 from maasscomp import __version__
-from maasscomp.errors import InputError, MaasscompError
+from maasscomp.errors import InputError
+from maasscomp.report.tables import Column, markdown_table, write_csv, write_markdown
 
-SUMMARY_COLUMNS = ("level", "class", "forms", "new", "old", "unclassified", "R_min", "R_max",
-                   "max_R_error", "max_hecke_residual")
-WEYL_COLUMNS = ("level", "T_lo", "T_hi", "found", "expected", "deficit", "remainder_end", "flagged")
+SUMMARY_COLUMNS = (Column("level"), Column("class"), Column("forms"), Column("new"), Column("old"),
+                   Column("unclassified"), Column("R_min", digits=12), Column("R_max", digits=12),
+                   Column("max_R_error", digits=2), Column("max_hecke_residual", digits=2))
+WEYL_COLUMNS = (Column("level"), Column("T_lo"), Column("T_hi"), Column("found"), Column("expected", fixed=2),
+                Column("deficit", fixed=2), Column("remainder_end", fixed=3), Column("flagged"))
 
 
 @dataclass
@@ -82,29 +84,6 @@ def all_class_labels(level: int) -> list[str]:
     from maasscomp.spectrum.search import symmetry_classes
 
     return [s.label for s in symmetry_classes(gamma0(level), ("even", "odd"))]
-
-
-def _fmt(v: Any) -> str:
-    if isinstance(v, float):
-        if math.isnan(v):
-            return ""
-        return f"{v:.12g}"
-    return str(v)
-
-
-def _markdown_table(columns, rows) -> str:
-    lines = ["| " + " | ".join(columns) + " |", "|" + "---|" * len(columns)]
-    for r in rows:
-        lines.append("| " + " | ".join(_fmt(r[c]) for c in columns) + " |")
-    return "\n".join(lines)
-
-
-def _write_csv(path: Path, columns, rows) -> None:
-    with open(path, "w", newline="", encoding="utf-8") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(columns))
-        w.writeheader()
-        for r in rows:
-            w.writerow({c: (repr(r[c]) if isinstance(r[c], float) else r[c]) for c in columns})
 
 
 def summary_rows(st) -> list[dict[str, Any]]:
@@ -197,129 +176,87 @@ def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[
     return rows, text
 
 
-PEAK_COLUMNS = ("key", "level", "class", "R", "eigenvalue", "cusp_peak", "cusp", "compact_peak",
-                "global_region", "ratio_cusp_compact", "exponent_cusp", "exponent_compact",
-                "grid_bound_rel")
+def write_peak_files(store_path: str | Path, out_dir: str | Path, *, keys: Sequence[str] | None = None,
+                     per_form: bool = False) -> list[Path]:
+    """Tables and figures of the scanned forms of a store, written into ``out_dir``.
+
+    With ``keys`` only those forms are used and a map of |f| is drawn for each of them; without
+    keys every scanned form of the store is used (maps only with ``per_form``). Writes
+    ``peaks.csv``, ``peaks.md`` and PNG figures; returns the written paths (tables first).
+
+    Raises
+    ------
+    StoreError
+        Missing store or unknown key.
+    InputError
+        The output folder cannot be created, or no selected form has been scanned yet.
+    """
+    from maasscomp.report.figures import plot_cusp_share, plot_form, plot_peaks_vs_lambda, plot_value_distributions
+    from maasscomp.report.peaks import COLUMNS, peaks_markdown, table_rows
+    from maasscomp.store import Store
+    from maasscomp.supnorm.batch import select_keys
+    from maasscomp.supnorm.scan import SCAN_ATTACHMENT, ScanResult
+
+    with Store.open(store_path, "r") as st:
+        out = _prepare_folder(out_dir)
+        ks = select_keys(st, keys) if keys else st.keys()
+        scanned = [k for k in ks if SCAN_ATTACHMENT in st.attachments(k)]
+        if keys:
+            missing = [k for k in ks if k not in scanned]
+            if missing:
+                raise InputError(f"form {missing[0]!r} has not been scanned yet; run 'maasscomp scan "
+                                 f"{store_path} --key {missing[0]}' first")
+        if not scanned:
+            raise InputError(f"no scanned forms in {store_path}; run 'maasscomp scan {store_path}' first")
+        results = [ScanResult.from_dict(st.get_attachment(k, SCAN_ATTACHMENT)) for k in scanned]
+        figs = [plot_peaks_vs_lambda(results, out / "peaks_vs_lambda.png"),
+                plot_cusp_share(results, out / "cusp_share.png"),
+                plot_value_distributions(results, out / "value_distribution.png")]
+        if keys or per_form:
+            for k, r in zip(scanned, results):
+                figs.append(plot_form(st.get(k), r, out / f"form_{_safe(k)}.png"))
+    tables = [write_csv(out / "peaks.csv", COLUMNS, table_rows(results)),
+              write_markdown(out / "peaks.md", peaks_markdown(results, figures=[str(f) for f in figs]))]
+    return tables + figs
 
 
-def peak_rows(st) -> list[dict[str, Any]]:
-    """One row per scanned form, from the scan attachments of the store."""
-    from maasscomp.pipeline.tasks import scanner
-
-    sc = scanner()
-    if sc is None:
-        return []
-    attachment = sc[0]
-    rows = []
-    for k in st.keys():
-        if attachment not in st.attachments(k):
-            continue
-        d = st.get_attachment(k, attachment)
-        cusps = d["cusp_peaks"]
-        best = max(cusps.values(), key=lambda p: p["value"])
-        rows.append({
-            "key": k, "level": int(d["level"]), "class": str(d["symmetry"]), "R": float(d["R"]),
-            "eigenvalue": float(d["eigenvalue"]), "cusp_peak": float(best["value"]),
-            "cusp": int(best["cusp"]), "compact_peak": float(d["compact_peak"]["value"]),
-            "global_region": str(d["global_region"]),
-            "ratio_cusp_compact": float(d["ratio_cusp_compact"]),
-            "exponent_cusp": float(d["exponent_cusp"]), "exponent_compact": float(d["exponent_compact"]),
-            "grid_bound_rel": float(d["grid_bound_rel"]),
-        })
-    return rows
+def _safe(key: str) -> str:
+    return "".join(ch if ch.isalnum() or ch in "._-" else "_" for ch in key)
 
 
-def _peak_figures(rows: list[dict], folder: Path) -> list[str]:
-    from matplotlib.figure import Figure
-
-    lam = np.array([r["eigenvalue"] for r in rows])
-    cusp = np.array([r["cusp_peak"] for r in rows])
-    comp = np.array([r["compact_peak"] for r in rows])
-    R = np.array([r["R"] for r in rows])
-    levels = sorted({r["level"] for r in rows})
-    names = []
-
-    fig = Figure(figsize=(7.5, 4.8), layout="constrained")
-    ax = fig.subplots()
-    for i, N in enumerate(levels):
-        m = np.array([r["level"] == N for r in rows])
-        ax.loglog(lam[m], cusp[m], "^", color=f"C{i % 10}", label=f"N={N} cusp peak")
-        ax.loglog(lam[m], comp[m], "o", mfc="none", color=f"C{i % 10}", label=f"N={N} compact peak")
-    lo, hi = lam.min(), lam.max()
-    if hi > lo:
-        g = np.geomspace(lo, hi, 50)
-        c0 = np.median(cusp / lam ** (1 / 12))
-        ax.loglog(g, c0 * g ** (1 / 12), "k--", lw=0.8, label="slope 1/12 (cusp transition growth)")
-    ax.set_xlabel("eigenvalue lambda = 1/4 + R^2")
-    ax.set_ylabel("max |f| / ||f||")
-    ax.set_title("Peaks of the L2-normalised forms: cusp regions and compact part")
-    ax.legend(fontsize=7, ncol=2)
-    fig.savefig(folder / "peaks_vs_lambda.png", dpi=110)
-    names.append("peaks_vs_lambda.png")
-
-    fig = Figure(figsize=(7.5, 4.0), layout="constrained")
-    ax = fig.subplots()
-    ratio = cusp / comp
-    for i, N in enumerate(levels):
-        m = np.array([r["level"] == N for r in rows])
-        ax.plot(R[m], ratio[m], "o", color=f"C{i % 10}", label=f"N={N}")
-    ax.axhline(1.0, color="0.5", lw=0.8)
-    ax.set_xlabel("R")
-    ax.set_ylabel("cusp peak / compact peak")
-    ax.set_title("Where the maximum sits: above 1 in a cusp, below 1 on the compact part")
-    ax.legend(fontsize=8)
-    fig.savefig(folder / "peak_ratio.png", dpi=110)
-    names.append("peak_ratio.png")
-    return names
+def _prepare_folder(out_dir: str | Path) -> Path:
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise InputError(f"output folder {out} exists and is not a folder")
+    if not out.parent.resolve().is_dir():
+        raise InputError(f"cannot create {out}: folder {out.parent} does not exist")
+    out.mkdir(exist_ok=True)
+    return out
 
 
 def _peaks_section(st, folder: Path, rep: Report) -> list[str]:
     """Peak statistics of the sup-norm scans stored beside the forms."""
-    from maasscomp.pipeline.tasks import scanner
+    from maasscomp.supnorm.scan import SCAN_ATTACHMENT
 
-    if scanner() is None:
-        return ["No sup-norm scan statistics: this version has no sup-norm scanner."]
-    rows = peak_rows(st)
-    if not rows:
+    if not any(SCAN_ATTACHMENT in st.attachments(k) for k in st.keys()):
         return ["No sup-norm scan statistics: the store holds no scans (set `[scan] enabled = "
-                "true` in the config and rerun it)."]
-    _write_csv(folder / "peaks.csv", PEAK_COLUMNS, rows)
-    try:  # the scanner's own figures and tables, in peaks/
-        from maasscomp.supnorm.figures import make_figures
+                "true` in the config and rerun it, or run `maasscomp scan`)."]
+    made = write_peak_files(st.path, folder)
+    names = [p.name for p in made]
+    rep.files += names
+    from maasscomp.report.peaks import cusp_share
+    from maasscomp.supnorm.batch import load_scans
 
-        made = make_figures(st.path, folder / "peaks")
-    except (ImportError, MaasscompError) as exc:
-        rep.notes.append(f"scanner figures not drawn ({exc}); drew the report's own")
-        figs = _peak_figures(rows, folder)
-    else:
-        figs = [f"peaks/{Path(p).name}" for p in made if str(p).endswith(".png")]
-        rep.files += [f"peaks/{Path(p).name}" for p in made if not str(p).endswith(".png")]
-    rep.files += ["peaks.csv"] + figs
-    n_cusp = sum(r["global_region"].startswith("cusp") for r in rows)
+    results = load_scans(st.path)
+    n_cusp = sum(r.global_region != "compact" for r in results)
     lines = [
-        f"{len(rows)} forms scanned: the global maximum lies in a cusp region for {n_cusp} and on "
-        f"the compact part for {len(rows) - n_cusp}. Per form in [peaks.csv](peaks.csv) "
-        "(exponents are log(peak) / log(lambda)).",
+        f"{len(results)} forms scanned: the global maximum lies in a cusp region for {n_cusp} and on "
+        f"the compact part for {len(results) - n_cusp}. Per form in [peaks.csv](peaks.csv), with the "
+        "statistics in [peaks.md](peaks.md).",
         "",
+        markdown_table(["level", "forms", "in_cusp", Column("share", fixed=3)], cusp_share(results)["by_level"]),
     ]
-    by_level: dict[int, list[dict]] = defaultdict(list)
-    for r in rows:
-        by_level[r["level"]].append(r)
-    cols = ("level", "scanned", "max in cusp", "max on compact", "median ratio", "max cusp exponent",
-            "max compact exponent")
-    table = []
-    for N, rs in sorted(by_level.items()):
-        table.append({"level": N, "scanned": len(rs),
-                      "max in cusp": sum(r["global_region"].startswith("cusp") for r in rs),
-                      "max on compact": sum(not r["global_region"].startswith("cusp") for r in rs),
-                      "median ratio": float(np.median([r["ratio_cusp_compact"] for r in rs])),
-                      "max cusp exponent": max(r["exponent_cusp"] for r in rs),
-                      "max compact exponent": max(r["exponent_compact"] for r in rs)})
-    lines.append(_markdown_table(cols, table))
-    lines.append("")
-    if (folder / "peaks" / "supnorm_report.md").exists():
-        lines += ["The scanner's own tables: [peaks/supnorm_report.md](peaks/supnorm_report.md).", ""]
-    lines += [f"![{f}]({f})" for f in figs]
+    lines += [f"![{n}]({n})" for n in names if n.endswith(".png")]
     return lines
 
 
@@ -347,14 +284,14 @@ def make_report(store_path: str | Path, out_dir: str | Path) -> Report:
         rep = Report(folder=folder)
 
         srows = summary_rows(st)
-        _write_csv(folder / "summary.csv", SUMMARY_COLUMNS, srows)
-        smd = _markdown_table(SUMMARY_COLUMNS, srows) if srows else "(no forms)"
-        (folder / "summary.md").write_text(smd + "\n", encoding="utf-8")
+        write_csv(folder / "summary.csv", SUMMARY_COLUMNS, srows)
+        smd = markdown_table(SUMMARY_COLUMNS, srows) if srows else "(no forms)\n"
+        write_markdown(folder / "summary.md", smd)
         rep.files += ["summary.csv", "summary.md"]
 
         cov = searched_coverage(st)
         wrows, wtext = _weyl_section(st, folder, rep, cov)
-        _write_csv(folder / "weyl.csv", WEYL_COLUMNS, wrows)
+        write_csv(folder / "weyl.csv", WEYL_COLUMNS, wrows)
         rep.files.append("weyl.csv")
 
         runs_text = []
@@ -418,7 +355,7 @@ def make_report(store_path: str | Path, out_dir: str | Path) -> Report:
         *peaks_text,
         "",
     ]
-    (folder / "README.md").write_text("\n".join(md), encoding="utf-8")
+    write_markdown(folder / "README.md", "\n".join(md))
     rep.files.insert(0, "README.md")
     return rep
 

@@ -24,7 +24,7 @@ import scipy.fft
 
 from maasscomp.supnorm.evaluate import FormEvaluator
 from maasscomp.supnorm.scan import ScanResult
-from maasscomp.supnorm.stats import cusp_share
+from maasscomp.report.peaks import cusp_share
 
 
 def _plt():
@@ -176,58 +176,6 @@ def plot_value_distributions(results: Sequence[ScanResult], path: str | os.PathL
     out = _save(fig, path)
     plt.close(fig)
     return out
-
-
-def make_figures(path: str | os.PathLike, out_dir: str | os.PathLike, *, keys: Sequence[str] | None = None,
-                 per_form: bool = False) -> list[Path]:
-    """Draw the figures and tables of the scanned forms of a store into ``out_dir``.
-
-    With ``keys`` only those forms are used and a map of |f| is drawn for each of them; without
-    keys every scanned form of the file is used (maps only with ``per_form``). Writes
-    ``supnorm_table.csv``, ``supnorm_report.md`` and PNG figures; returns the written paths.
-
-    Raises
-    ------
-    StoreError
-        Missing store or unknown key.
-    InputError
-        The output folder cannot be created, or no selected form has been scanned yet.
-    """
-    from maasscomp.errors import InputError
-    from maasscomp.store import Store
-    from maasscomp.supnorm.batch import select_keys
-    from maasscomp.supnorm.scan import SCAN_ATTACHMENT
-    from maasscomp.supnorm.stats import table_rows, write_csv, write_markdown
-
-    out = Path(out_dir)
-    if out.exists() and not out.is_dir():
-        raise InputError(f"output folder {out} exists and is not a folder")
-    if not out.parent.resolve().is_dir():
-        raise InputError(f"cannot create {out}: folder {out.parent} does not exist")
-    out.mkdir(exist_ok=True)
-    with Store.open(path, "r") as st:
-        ks = select_keys(st, keys) if keys else st.keys()
-        scanned = [k for k in ks if SCAN_ATTACHMENT in st.attachments(k)]
-        if keys:
-            missing = [k for k in ks if k not in scanned]
-            if missing:
-                raise InputError(f"form {missing[0]!r} has not been scanned yet; run 'maasscomp scan {path} "
-                                 f"--key {missing[0]}' first")
-        if not scanned:
-            raise InputError(f"no scanned forms in {path}; run 'maasscomp scan {path}' first")
-        results = [ScanResult.from_dict(st.get_attachment(k, SCAN_ATTACHMENT)) for k in scanned]
-        written: list[Path] = []
-        figs = [plot_peaks_vs_lambda(results, out / "peaks_vs_lambda.png"),
-                plot_cusp_share(results, out / "cusp_share.png"),
-                plot_value_distributions(results, out / "value_distribution.png")]
-        if keys or per_form:
-            for k, r in zip(scanned, results):
-                figs.append(plot_form(st.get(k), r, out / f"form_{_safe(k)}.png"))
-        written += figs
-    rows = table_rows(results)
-    written.append(write_csv(rows, out / "supnorm_table.csv"))
-    written.append(write_markdown(results, out / "supnorm_report.md", figures=[str(f) for f in figs]))
-    return written
 
 
 def _safe(key: str) -> str:
