@@ -130,21 +130,21 @@ def _cmd_report(args: argparse.Namespace) -> int:
 
 def _cmd_scan(args: argparse.Namespace) -> int:
     """Normalise and scan the selected forms of a store; results go into the store."""
-    from maasscomp.report.peaks import COLUMNS, table_rows
+    from maasscomp.report.peaks import FORM_COLUMNS, form_rows
     from maasscomp.report.tables import write_csv
     from maasscomp.supnorm.batch import scan_store
     from maasscomp.supnorm.scan import ScanSettings
 
     if args.table and not Path(args.table).parent.resolve().is_dir():
         raise InputError(f"cannot write {args.table}: directory {Path(args.table).parent} does not exist")
-    settings = ScanSettings(Y_c=args.Y_cusp, rtol=args.rtol)
+    settings = ScanSettings(Y_omega=args.Y_omega, rtol=args.rtol)
 
     def show(key, res, reused):
         if args.quiet:
             return
-        cp = res.cusp_peak
-        print(f"{key:<34} R={res.R:<14.10g} cusp {cp.value:9.5f}  compact {res.compact_peak.value:9.5f}  "
-              f"max in {res.global_region:<8} {'(stored)' if reused else f'{res.elapsed:6.1f} s'}", flush=True)
+        print(f"{key:<34} R={res.R:<14.10g} transition {res.transition.value:8.4f}  Omega {res.omega.value:8.4f}  "
+              f"bulk {res.bulk_value:8.4f}  max in {res.global_region:<16} "
+              f"{'(stored)' if reused else f'{res.elapsed:6.1f} s'}", flush=True)
 
     skipped: list[tuple[str, str]] = []
     results = scan_store(args.store, keys=args.key or None, level=args.level, R_min=args.R_min, R_max=args.R_max,
@@ -154,10 +154,11 @@ def _cmd_scan(args: argparse.Namespace) -> int:
     if not results and not skipped:
         raise InputError(f"no forms in {args.store} match the selection")
     if args.table and results:
-        write_csv(args.table, COLUMNS, table_rows(results))
+        write_csv(args.table, FORM_COLUMNS, form_rows(results))
     if not args.quiet:
-        n_cusp = sum(r.global_region != "compact" for r in results)
-        print(f"{len(results)} forms scanned; global maximum in a cusp for {n_cusp}; results stored in {args.store}"
+        kinds = {k: sum(r.global_kind == k for r in results) for k in ("transition", "omega", "intermediate")}
+        print(f"{len(results)} forms scanned; global maximum in a transition zone for {kinds['transition']}, on "
+              f"Omega for {kinds['omega']}, in between for {kinds['intermediate']}; results stored in {args.store}"
               + (f"; table {args.table}" if args.table else ""))
     if skipped:
         print(f"maasscomp: {len(skipped)} form(s) could not be scanned (see above)", file=sys.stderr)
@@ -221,14 +222,16 @@ def build_parser() -> argparse.ArgumentParser:
     k = sub.add_parser("keys", help="print the documentation of every config key (Markdown)")
     k.set_defaults(func=_cmd_keys)
 
-    s = sub.add_parser("scan", help="L2-normalise and scan stored forms for their maxima (cusp vs compact)")
+    s = sub.add_parser("scan", help="L2-normalise and scan stored forms for their maxima (transition zones, "
+                                    "the fixed compact set, in between)")
     s.add_argument("store", help="HDF5 store file (results are written into it)")
     s.add_argument("--key", action="append", metavar="KEY", help="scan this form (repeatable; default: all)")
     s.add_argument("--level", type=arg_int(1), help="only forms of this level")
     s.add_argument("--R-min", dest="R_min", type=arg_positive_float, help="only forms with R >= this")
     s.add_argument("--R-max", dest="R_max", type=arg_positive_float, help="only forms with R <= this")
-    s.add_argument("--Y-cusp", dest="Y_cusp", type=arg_positive_float, default=1.0,
-                   help="height (>= 1, in each cusp's coordinate) where the cusp regions start (default 1)")
+    s.add_argument("--Y-omega", dest="Y_omega", type=arg_positive_float, default=2.0,
+                   help="height (>= 1, in each cusp's coordinate) below which points form the fixed compact "
+                        "set Omega (default 2)")
     s.add_argument("--rtol", type=arg_positive_float, default=1e-3,
                    help="relative accuracy of each maximum guaranteed by the grid bound (default 1e-3)")
     s.add_argument("--overwrite", action="store_true", help="rescan forms that already carry a scan")

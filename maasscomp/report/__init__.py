@@ -11,11 +11,13 @@ make_report(store_path, out_dir) -> Report
     The report folder of a store (``maasscomp report``).
 write_peak_files(store_path, out_dir, keys=None, per_form=False) -> list of Path
     Peak tables and figures of the scanned forms (``maasscomp figures``).
+peak_study(results) -> dict
+    Every statistic of the peak study across scanned forms.
 Column, write_csv, markdown_table, write_markdown
     The table writers.
 """
 
-from maasscomp.report.folder import Report, make_report, write_peak_files
+from maasscomp.report.folder import Report, make_report, peak_study, write_peak_files
 from maasscomp.report.tables import Column, markdown_table, write_csv, write_markdown
 
-__all__ = ["make_report", "Report", "write_peak_files", "Column", "write_csv", "markdown_table", "write_markdown"]
+__all__ = ["make_report", "Report", "write_peak_files", "peak_study", "Column", "write_csv", "markdown_table", "write_markdown"]

@@ -12,10 +12,11 @@ Contents (file names fixed, so scripts can rely on them):
     For every level whose searched R range covers all symmetry classes: forms found
     against Weyl's law (:func:`maasscomp.spectrum.weyl.completeness`) window by window,
     and a figure of N(T) and W(T) with the remainder N(T) - W(T).
-``peaks.csv``, ``peaks.md`` and the peak figures (``peaks_vs_lambda.png``, ``cusp_share.png``,
-``value_distribution.png``)
-    Peak statistics of the sup-norm scans, when the store holds scans; the same files as
-    ``maasscomp figures`` writes (:func:`write_peak_files`).
+``peaks.csv``, ``regions.csv``, ``shares.csv``, ``fits.csv``, ``beats.csv``, ``peaks.md``,
+the figures of :data:`PEAK_FIGURES` and ``form_<key>.png`` maps
+    The peak study of the sup-norm scans (where the maximum lies, predictions, fits, the
+    fraction of forms whose transition peak beats the bulk), when the store holds scans; the
+    same files as ``maasscomp figures`` writes (:func:`write_peak_files`).
 """
 
 from __future__ import annotations
@@ -176,13 +177,44 @@ def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[
     return rows, text
 
 
+#: Figures of the peak study, in the order they appear in the report.
+PEAK_FIGURES = ("peaks_vs_lambda.png", "region_share.png", "transition_vs_bulk.png", "sym2.png",
+                "value_distribution.png", "equidistribution.png", "peak_heights.png")
+#: R values at which the fraction "transition peak beats the bulk" is modelled.
+EXTRAP_R = (10.0, 20.0, 50.0, 100.0, 200.0, 500.0, 1000.0, 2000.0, 5000.0, 1e4, 3e4, 1e5, 1e6)
+
+
+def _load_results(st, keys: Sequence[str] | None):
+    """(keys, results, notes) of the scanned forms among ``keys`` (default: all)."""
+    from maasscomp.supnorm.batch import select_keys
+    from maasscomp.supnorm.scan import SCAN_ATTACHMENT, ScanResult
+
+    ks = select_keys(st, keys) if keys else st.keys()
+    scanned = [k for k in ks if SCAN_ATTACHMENT in st.attachments(k)]
+    if keys:
+        missing = [k for k in ks if k not in scanned]
+        if missing:
+            raise InputError(f"form {missing[0]!r} has not been scanned yet; run 'maasscomp scan "
+                             f"{st.path} --key {missing[0]}' first")
+    out_k, out_r, notes = [], [], []
+    for k in scanned:
+        try:
+            out_r.append(ScanResult.from_dict(st.get_attachment(k, SCAN_ATTACHMENT)))
+            out_k.append(k)
+        except InputError as exc:
+            notes.append(f"{k}: {exc}")
+    return out_k, out_r, notes
+
+
 def write_peak_files(store_path: str | Path, out_dir: str | Path, *, keys: Sequence[str] | None = None,
-                     per_form: bool = False) -> list[Path]:
+                     per_form: bool = False, maps: int = 3) -> list[Path]:
     """Tables and figures of the scanned forms of a store, written into ``out_dir``.
 
-    With ``keys`` only those forms are used and a map of |f| is drawn for each of them; without
-    keys every scanned form of the store is used (maps only with ``per_form``). Writes
-    ``peaks.csv``, ``peaks.md`` and PNG figures; returns the written paths (tables first).
+    Writes ``peaks.csv`` (one row per form), ``regions.csv`` (one row per form and region),
+    ``shares.csv``, ``fits.csv``, ``beats.csv``, ``peaks.md`` (every table with its legend, the
+    figures) and the figures :data:`PEAK_FIGURES`, plus a map ``form_<key>.png`` of |f| for the
+    ``maps`` forms with the largest global peaks, for every form given in ``keys`` and, with
+    ``per_form``, for every form. Returns the written paths (tables first).
 
     Raises
     ------
@@ -191,33 +223,149 @@ def write_peak_files(store_path: str | Path, out_dir: str | Path, *, keys: Seque
     InputError
         The output folder cannot be created, or no selected form has been scanned yet.
     """
-    from maasscomp.report.figures import plot_cusp_share, plot_form, plot_peaks_vs_lambda, plot_value_distributions
-    from maasscomp.report.peaks import COLUMNS, peaks_markdown, table_rows
+    from maasscomp.report import figures as F
     from maasscomp.store import Store
-    from maasscomp.supnorm.batch import select_keys
-    from maasscomp.supnorm.scan import SCAN_ATTACHMENT, ScanResult
 
     with Store.open(store_path, "r") as st:
         out = _prepare_folder(out_dir)
-        ks = select_keys(st, keys) if keys else st.keys()
-        scanned = [k for k in ks if SCAN_ATTACHMENT in st.attachments(k)]
-        if keys:
-            missing = [k for k in ks if k not in scanned]
-            if missing:
-                raise InputError(f"form {missing[0]!r} has not been scanned yet; run 'maasscomp scan "
-                                 f"{store_path} --key {missing[0]}' first")
-        if not scanned:
-            raise InputError(f"no scanned forms in {store_path}; run 'maasscomp scan {store_path}' first")
-        results = [ScanResult.from_dict(st.get_attachment(k, SCAN_ATTACHMENT)) for k in scanned]
-        figs = [plot_peaks_vs_lambda(results, out / "peaks_vs_lambda.png"),
-                plot_cusp_share(results, out / "cusp_share.png"),
-                plot_value_distributions(results, out / "value_distribution.png")]
-        if keys or per_form:
-            for k, r in zip(scanned, results):
-                figs.append(plot_form(st.get(k), r, out / f"form_{_safe(k)}.png"))
-    tables = [write_csv(out / "peaks.csv", COLUMNS, table_rows(results)),
-              write_markdown(out / "peaks.md", peaks_markdown(results, figures=[str(f) for f in figs]))]
+        scanned, results, notes = _load_results(st, keys)
+        if not results:
+            raise InputError(f"no scanned forms in {store_path}; run 'maasscomp scan {store_path}' first"
+                             + (f" ({notes[0]})" if notes else ""))
+        study = peak_study(results)
+        figs = [F.plot_peaks_vs_lambda(results, out / PEAK_FIGURES[0]),
+                F.plot_region_share(results, out / PEAK_FIGURES[1]),
+                F.plot_transition_vs_bulk(results, study["extrapolation"], out / PEAK_FIGURES[2]),
+                F.plot_sym2(results, out / PEAK_FIGURES[3]),
+                F.plot_value_distribution(results, out / PEAK_FIGURES[4]),
+                F.plot_equidistribution(results, out / PEAK_FIGURES[5]),
+                F.plot_peak_heights(results, out / PEAK_FIGURES[6])]
+        order = sorted(range(len(results)), key=lambda i: -results[i].global_value)
+        chosen = list(range(len(results))) if (keys or per_form) else order[:maps]
+        map_names = []
+        for i in chosen:
+            name = f"form_{_safe(scanned[i])}.png"
+            figs.append(F.plot_form_map(st.get(scanned[i]), results[i], out / name))
+            map_names.append(name)
+    from maasscomp.report import peaks as P
+
+    tables = [write_csv(out / "peaks.csv", P.FORM_COLUMNS, P.form_rows(results)),
+              write_csv(out / "regions.csv", P.REGION_COLUMNS, P.region_rows(results)),
+              write_csv(out / "shares.csv", [Column("by")] + P.SHARE_COLUMNS,
+                        [dict(r, by="band") for r in study["share_band"]]
+                        + [dict(r, by="level") for r in study["share_level"]]),
+              write_csv(out / "fits.csv", P.FIT_COLUMNS, P.fit_rows(study["fits"])),
+              write_csv(out / "beats.csv", P.BEATS_COLUMNS, study["beats"])]
+    text = "\n".join(["# Where do the forms peak?", "", *peak_summary(results, study, map_names, notes,
+                                                                           detail=True)])
+    tables.append(write_markdown(out / "peaks.md", text + "\n"))
     return tables + figs
+
+
+def peak_study(results) -> dict:
+    """Every statistic of the peak study (see :mod:`maasscomp.report.peaks`)."""
+    from maasscomp.report import peaks as P
+
+    return {"share_band": P.region_share(results, "band"), "share_level": P.region_share(results, "level"),
+            "fits": P.peak_fits(results), "beats": P.transition_beats_bulk(results),
+            "extrapolation": P.extrapolate_beats_bulk(results, EXTRAP_R), "sym2": P.sym2_summary(results),
+            "equi": P.equidistribution(results)}
+
+
+def peak_summary(results, study: dict, map_names: Sequence[str], notes: Sequence[str] = (),
+                 detail: bool = False) -> list[str]:
+    """Markdown lines of the peak study: what was measured, the tables, the figures."""
+    from maasscomp.report import peaks as P
+
+    n = len(results)
+    Yo = sorted({r.Y_omega for r in results})
+    levels = sorted({r.level for r in results})
+    kinds = {k: sum(r.global_kind == k for r in results) for k in P.KINDS}
+    marked = sum(r.overlap for r in results)
+    lines = [
+        f"{n} forms scanned (levels {', '.join(map(str, levels))}, R from {min(r.R for r in results):.4g} to "
+        f"{max(r.R for r in results):.5g}). Values are max |f|/‖f‖ with ‖f‖² = ∫ |f|² dμ over Γ0(N)\\H.",
+        "",
+        "Regions, for each cusp in its own period-1 coordinate (docs/theory-additions/peaks.md): the **fixed "
+        f"compact set Ω** = points whose highest representative has height ≤ Y_Ω = {', '.join(f'{y:g}' for y in Yo)}; "
+        "the **transition zone** of cusp j = heights ≥ Y_T = (R − c_T R^(1/3)) / (2π n0), c_T = |a_1| 2^(−1/3) = "
+        "1.8558 (a_1 the first zero of Ai, DLMF Table 9.9.1; n0 the first non-zero frequency), where the first "
+        "non-zero Fourier term dominates; the **intermediate region** in between. Where Y_T < Y_Ω (small R) Ω "
+        f"keeps its points and the transition zone starts at Y_Ω; such forms are marked ({marked} here).",
+        "",
+        f"Global maximum: in a transition zone for {kinds['transition']}, on Ω for {kinds['omega']}, in an "
+        f"intermediate region for {kinds['intermediate']} forms.",
+        "",
+        "### Share of global maxima by region, per band of R",
+        "",
+        _md(P.SHARE_COLUMNS, study["share_band"], legend=detail),
+        "### Per level",
+        "",
+        _md(P.SHARE_COLUMNS, study["share_level"]),
+        "### Transition peak against the bulk",
+        "",
+        "Bulk = everything but the transition zones (Ω and the intermediate regions). Per band, the forms whose "
+        "transition peak is above their bulk peak, with the Wilson 95% interval:",
+        "",
+        _md(P.BEATS_COLUMNS, study["beats"], legend=detail),
+    ]
+    ex = study["extrapolation"]
+    if ex is not None:
+        lines += [
+            f"Model (level 1, {ex.forms} forms): the transition peak is the first-term prediction "
+            "2 max|A_1| √((1 + e^(−2πR)) / L) with L drawn from the measured L(1, sym² f), the bulk peak is the "
+            f"fitted trend {ex.alpha:.3f} + {ex.beta:.3f} √(log λ) plus a measured residual; 95% intervals from "
+            "400 bootstrap resamples of the forms. **Rows marked 'extrapolated' lie beyond the data: they assume "
+            "that the distribution of L(1, sym² f) and the bulk trend stay as measured.**",
+            "",
+            _md(P.EXTRAP_COLUMNS, P.extrapolation_rows(ex), legend=detail),
+        ]
+    else:
+        lines += ["(Too few level-1 forms with L(1, sym² f) for the model of this fraction.)", ""]
+    lines += ["### Peaks against λ", "",
+              "log(peak) = a + b log λ by least squares over the forms without a cut transition zone, with the 95% "
+              "interval of b:", "", _md(P.FIT_COLUMNS, P.fit_rows(study["fits"]), legend=detail)]
+    s2 = study["sym2"]
+    if s2["forms"]:
+        lines += ["### L(1, sym² f)", "",
+                  f"From the norm by Rankin–Selberg for {s2['forms']} newforms: median {s2['median']:.4g}, "
+                  f"5%–95% range {s2['q05']:.4g}–{s2['q95']:.4g}, min {s2['min']:.4g}, max {s2['max']:.4g}. "
+                  + (f"Checked against the value from the coefficients (approximate functional equation) for "
+                     f"{s2['checked']} forms: largest relative difference {s2['max_rel_diff']:.1e}."
+                     if s2["checked"] else "No form stores enough coefficients for the value from the coefficients."),
+                  ""]
+    lines += ["### Mass of Ω (equidistribution)", "",
+              "vol × (mean of |f|²/‖f‖² over Ω); quantum unique ergodicity predicts 1 as λ → ∞ (a limit "
+              "statement: no finite-λ bound is claimed). Spread over the forms of each band:", "",
+              _md(P.EQUI_COLUMNS, study["equi"], legend=detail)]
+    lines += ["### Figures", ""]
+    captions = {
+        "peaks_vs_lambda.png": "Peak of each region against λ, with the first-term and random-wave predictions.",
+        "region_share.png": "Where the global maximum lies, per band of R and per level.",
+        "transition_vs_bulk.png": "Fraction of forms whose transition peak beats the bulk, with the model.",
+        "sym2.png": "L(1, sym² f) and the transition peak against 1/√L(1, sym² f).",
+        "value_distribution.png": "Values on Ω against the Gaussian of the random wave model.",
+        "equidistribution.png": "Mass of Ω per unit area.",
+        "peak_heights.png": "Heights of the maxima relative to Y_T; Y_T/n is the transition of the n-th term.",
+    }
+    for name in PEAK_FIGURES:
+        lines += [f"**{captions[name]}**", "", f"![{name}]({name})", ""]
+    if map_names:
+        lines += ["Maps of |f|/‖f‖ over the fundamental domain (regions shaded, peaks marked) for the forms with "
+                  "the largest peaks:", ""]
+        lines += [f"![{m}]({m})" for m in map_names] + [""]
+    if detail:
+        lines += ["### Columns of peaks.csv", ""]
+        lines += [f"* `{c.name}`: {c.meaning}" for c in P.FORM_COLUMNS] + [""]
+        lines += ["Per region in [regions.csv](regions.csv); the tables above in shares.csv, beats.csv, "
+                  "fits.csv.", ""]
+    if notes:
+        lines += ["Scans that could not be read: " + "; ".join(notes), ""]
+    return lines
+
+
+def _md(columns, rows, legend: bool = False) -> str:
+    return markdown_table(columns, rows, legend=legend) if rows else "(none)\n"
 
 
 def _safe(key: str) -> str:
@@ -241,23 +389,15 @@ def _peaks_section(st, folder: Path, rep: Report) -> list[str]:
     if not any(SCAN_ATTACHMENT in st.attachments(k) for k in st.keys()):
         return ["No sup-norm scan statistics: the store holds no scans (set `[scan] enabled = "
                 "true` in the config and rerun it, or run `maasscomp scan`)."]
+    _, results, notes = _load_results(st, None)
+    if not results:
+        return ["No sup-norm scan statistics: every stored scan was made by an older scanner ("
+                + notes[0] + ")."]
     made = write_peak_files(st.path, folder)
-    names = [p.name for p in made]
-    rep.files += names
-    from maasscomp.report.peaks import cusp_share
-    from maasscomp.supnorm.batch import load_scans
-
-    results = load_scans(st.path)
-    n_cusp = sum(r.global_region != "compact" for r in results)
-    lines = [
-        f"{len(results)} forms scanned: the global maximum lies in a cusp region for {n_cusp} and on "
-        f"the compact part for {len(results) - n_cusp}. Per form in [peaks.csv](peaks.csv), with the "
-        "statistics in [peaks.md](peaks.md).",
-        "",
-        markdown_table(["level", "forms", "in_cusp", Column("share", fixed=3)], cusp_share(results)["by_level"]),
-    ]
-    lines += [f"![{n}]({n})" for n in names if n.endswith(".png")]
-    return lines
+    rep.files += [p.name for p in made]
+    maps = [p.name for p in made if p.name.startswith("form_")]
+    return ["Every table below with its column legend, and the per-form table, in [peaks.md](peaks.md) "
+            "and [peaks.csv](peaks.csv).", "", *peak_summary(results, peak_study(results), maps, notes)]
 
 
 def make_report(store_path: str | Path, out_dir: str | Path) -> Report:

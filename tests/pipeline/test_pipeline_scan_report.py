@@ -48,7 +48,7 @@ def test_each_form_is_scanned_once_and_resume_skips_it(scanned):
     direct = scan_form(form, settings=ScanSettings(rtol=1e-3), form_key=key)
     assert stored["global_region"] == direct.global_region
     assert stored["global_value"] == pytest.approx(direct.global_value, rel=1e-12)
-    assert stored["compact_peak"]["value"] == pytest.approx(direct.compact_peak.value, rel=1e-12)
+    assert stored["regions"]["0"]["value"] == pytest.approx(direct.omega.value, rel=1e-12)
     assert "sup-norm scans: 1 run" in first.as_text()
 
 

@@ -11,7 +11,8 @@ from maasscomp.cli import main
 from maasscomp.store import Store
 from maasscomp.supnorm import load_norm, load_scans
 from maasscomp.supnorm.scan import NORM_ATTACHMENT, SCAN_ATTACHMENT
-from maasscomp.report.peaks import COLUMNS, cusp_share
+from maasscomp.report.folder import PEAK_FIGURES
+from maasscomp.report.peaks import FORM_COLUMNS, region_share
 
 
 @pytest.fixture()
@@ -37,36 +38,42 @@ def test_scan_command_writes_attachments(small_store, capsys):
     assert math.isclose(norm.scale, scans[0].scale) and abs(norm.rs_rel_diff) < 1e-6
     # a second run reuses the stored results
     assert main(["scan", str(small_store), "--level", "1", "--R-max", "13", "-q"]) == 0
-    assert load_scans(small_store) == scans
+    assert repr(load_scans(small_store)) == repr(scans)  # repr: empty regions carry NaN
 
 
 def test_figures_command(small_store, tmp_path):
     assert main(["scan", str(small_store), "-q", "--table", str(tmp_path / "t.csv")]) == 0
     with open(tmp_path / "t.csv", encoding="utf-8") as fh:
         rows = list(csv.DictReader(fh))
-    assert len(rows) == 4 and list(rows[0]) == [c.name for c in COLUMNS]
+    assert len(rows) == 4 and list(rows[0]) == [c.name for c in FORM_COLUMNS]
     # every number reads back as a float (no numpy reprs such as np.float64(...))
     for r in rows:
-        for c in ("R", "cusp_peak", "n2_at_peak", "compact_peak", "ratio"):
+        for c in ("R", "global_peak", "transition_peak", "transition_rest", "omega_peak", "bulk_peak"):
             float(r[c])
     out = tmp_path / "figs"
     assert main(["figures", str(small_store), "--out", str(out)]) == 0
     names = {p.name for p in out.iterdir()}
-    assert {"peaks_vs_lambda.png", "cusp_share.png", "value_distribution.png", "peaks.csv",
-            "peaks.md"} <= names
+    assert set(PEAK_FIGURES) | {"peaks.csv", "regions.csv", "shares.csv", "fits.csv", "beats.csv", "peaks.md"} <= names
+    assert sum(n.startswith("form_") for n in names) == 3  # maps of the three largest peaks
     for p in out.iterdir():
         assert p.stat().st_size > 0
     md = (out / "peaks.md").read_text()
-    assert "Global maximum in a cusp" in md and "random wave" in md.lower()
+    assert "Share of global maxima by region" in md and "random-wave" in md.lower()
+    for name in PEAK_FIGURES:
+        assert f"]({name})" in md
+    with open(out / "regions.csv", encoding="utf-8") as fh:
+        regs = list(csv.DictReader(fh))
+    # level 1: Omega, intermediate, transition; level 2: Omega and two cusps
+    assert len(regs) == 3 * 3 + 5
     key = rows[0]["key"]
     one = tmp_path / "one"
     assert main(["figures", str(small_store), "--out", str(one), "--key", key]) == 0
-    assert any(p.name.startswith("form_") for p in one.iterdir())
+    assert [p.name for p in one.iterdir() if p.name.startswith("form_")] == [f"form_{key}.png"]
 
 
 @pytest.mark.parametrize("argv_tail, needle", [
     (["--key", "no-such-form"], "no-such-form"),
-    (["--Y-cusp", "0.5"], "Y_c"),
+    (["--Y-omega", "0.5"], "Y_omega"),
     (["--R-min", "5", "--R-max", "4"], "R_min"),
 ])
 def test_scan_user_errors(small_store, capsys, argv_tail, needle):
@@ -100,11 +107,13 @@ def test_scan_missing_store(tmp_path, capsys):
     assert main(["figures", str(tmp_path / "none.h5"), "--out", str(tmp_path / "f")]) == 2
 
 
-def test_cusp_share_counts(small_store):
+def test_region_share_counts(small_store):
     main(["scan", str(small_store), "-q"])
     scans = load_scans(small_store)
-    share = cusp_share(scans)
-    total = sum(d["forms"] for d in share["by_level"])
-    assert total == len(scans) == sum(d["forms"] for d in share["by_R"])
-    k = sum(s.global_region != "compact" for s in scans)
-    assert sum(d["in_cusp"] for d in share["by_level"]) == k
+    for by in ("band", "level"):
+        rows = region_share(scans, by=by)
+        assert sum(d["forms"] for d in rows) == len(scans)
+        for kind in ("transition", "omega", "intermediate"):
+            assert sum(d[kind] for d in rows) == sum(s.global_kind == kind for s in scans)
+        for d in rows:
+            assert math.isclose(d["transition_share"] + d["omega_share"] + d["intermediate_share"], 1.0)
