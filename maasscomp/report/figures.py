@@ -77,7 +77,8 @@ def plot_form_map(form, result: ScanResult, path: str | os.PathLike, *, evaluato
     im = None
     for j, ax in enumerate(axes):
         Yt = result.Y_T[j]
-        y_lo = charts[j].r * math.sqrt(3.0) / 2.0
+        # the highest representatives reach down to the group's fundamental-domain height
+        y_lo = min(G.fundamental_domain_height, charts[j].r * math.sqrt(3.0) / 2.0) * 0.98
         y_hi = max(1.6 * max(Yt, Yo), 1.3 * result.y_top[j] ** 0.5 * max(Yt, Yo) ** 0.5, 2.5 * Yo)
         edges = np.geomspace(y_lo, y_hi, rows + 1)
         V = np.full((rows, cols), np.nan)
@@ -118,9 +119,12 @@ def plot_form_map(form, result: ScanResult, path: str | os.PathLike, *, evaluato
                     bbox=dict(facecolor="w", alpha=0.7, lw=0, pad=1.0))
         ax.axhline(Yo, color=KIND_COLOURS["omega"], lw=1.0, ls="--")
         ax.axhline(Tz, color=KIND_COLOURS["transition"], lw=1.0, ls="--")
-        ax.text(0.49, Yo, f"Y_Ω = {Yo:g}", color="w", fontsize=7, ha="right", va="bottom")
-        ax.text(0.49, Tz, f"Y_T = {Yt:.4g}" + (" (cut at Y_Ω)" if Yt < Yo else ""), color="w", fontsize=7,
-                ha="right", va="bottom")
+        if Yt > Yo:
+            ax.text(0.49, Yo, f"Y_Ω = {Yo:g}", color="w", fontsize=7, ha="right", va="bottom")
+            ax.text(0.49, Tz, f"Y_T = {Yt:.4g}", color="w", fontsize=7, ha="right", va="bottom")
+        else:
+            ax.text(0.49, Yo, f"Y_Ω = {Yo:g} (Y_T = {Yt:.3g} below it: zone cut)", color="w", fontsize=7,
+                    ha="right", va="bottom")
         for p, mk in ((result.region(f"transition {j}"), "^"), (result.region(f"intermediate {j}"), "s")):
             if not p.empty:
                 ax.plot([p.x], [p.y], marker=mk, ms=9, mfc="none", mec=KIND_COLOURS[p.kind], mew=2.0, ls="none",

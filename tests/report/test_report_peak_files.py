@@ -59,6 +59,8 @@ def test_figures_command(small_store, tmp_path):
         assert p.stat().st_size > 0
     md = (out / "peaks.md").read_text()
     assert "Share of global maxima by region" in md and "random-wave" in md.lower()
+    # the mass of Omega per unit area is reported beside 1/vol, with its spread over the forms
+    assert "Mass of Ω" in md and "| band | forms | mean | sd |" in md
     for name in PEAK_FIGURES:
         assert f"]({name})" in md
     with open(out / "regions.csv", encoding="utf-8") as fh:
