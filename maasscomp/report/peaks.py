@@ -294,7 +294,8 @@ def peak_fits(results: Sequence[ScanResult]) -> list[PowerFit]:
     t = np.array([r.transition.value for r in rs])
     out.append(power_fit("transition peak", lam, t, "1/12 up to the spread of L(1, sym^2 f)"))
     L = np.array([r.sym2_L1_norm * r.level for r in rs])
-    out.append(power_fit("transition peak x sqrt(N L(1, sym^2 f))", lam, t * np.sqrt(L), "1/12 (first term)"))
+    out.append(power_fit("transition peak x sqrt(N L(1, sym^2 f))", lam, t * np.sqrt(L),
+                         "1/12 as lambda -> oo (first term; its R^(-2/3) correction raises the slope at small lambda)"))
     out.append(power_fit("Omega peak", lam, np.array([r.omega.value for r in rs]), "-> 0 (random waves)"))
     inter = np.array([r.best("intermediate").value if r.best("intermediate") else math.nan for r in rs])
     out.append(power_fit("intermediate peak", lam, inter, "-> 0 (random waves)"))
@@ -432,7 +433,7 @@ def extrapolate_beats_bulk(results: Sequence[ScanResult], R_targets: Sequence[fl
     return BeatsExtrapolation(forms=len(rs), alpha=a, beta=b, rows=rows)
 
 
-EXTRAP_COLUMNS = [Column("R", digits=4), Column("model_fraction", "modelled P(transition > bulk)", fixed=2),
+EXTRAP_COLUMNS = [Column("R", fixed=0), Column("model_fraction", "modelled P(transition > bulk)", fixed=2),
                   Column("boot_lo", "bootstrap 2.5%", fixed=2), Column("boot_hi", "bootstrap 97.5%", fixed=2),
                   Column("extrapolated", "R beyond the largest R measured")]
 
