@@ -119,3 +119,20 @@ def test_region_share_counts(small_store):
             assert sum(d[kind] for d in rows) == sum(s.global_kind == kind for s in scans)
         for d in rows:
             assert math.isclose(d["transition_share"] + d["omega_share"] + d["intermediate_share"], 1.0)
+
+
+def test_scans_of_an_older_format_are_named_not_misread(tmp_path, forms_by_level, capsys):
+    """A store scanned by an older scanner (no regions): the report says so, figures refuses with
+    the rescan command, and scan --overwrite replaces the old result."""
+    from maasscomp.report import make_report
+
+    path = tmp_path / "old.h5"
+    with Store.open(path, "w") as st:
+        (key,) = st.add_forms(forms_by_level[1][:1])
+        st.put_attachment(key, SCAN_ATTACHMENT, {"global_region": "cusp 0", "global_value": 2.8, "Y_c": 1.0})
+    make_report(path, tmp_path / "rep")
+    assert "older scanner" in (tmp_path / "rep" / "README.md").read_text()
+    assert main(["figures", str(path), "--out", str(tmp_path / "f")]) == 2
+    assert "rescan" in capsys.readouterr().err
+    assert main(["scan", str(path), "-q"]) == 0
+    assert len(load_scans(path)) == 1
