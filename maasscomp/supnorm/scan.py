@@ -1216,10 +1216,9 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
     omega_mass = 1.0 - sum(strip[(j, Yo)] for j in range(h))
     omega_area = vol - h / Yo
 
-    regions: list[RegionPeak] = []
     trans_scans = []
     prof_max, prof_y, rest_b, rest_g, y_tops, tails = ([] for _ in range(6))
-    inter: list[RegionPeak | None] = []
+    inter: list[RegionPeak] = []
     for j in range(h):
         # ---- intermediate region [Y_omega, Y_T]
         if Y_T[j] > Yo * (1 + 1e-9):
