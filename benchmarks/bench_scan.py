@@ -1,47 +1,41 @@
-"""Sup-norm scan time per form against R (L2 norm + scan of every region).
+"""Sup-norm scan cost per form against R: L2 norm + scan of every region, time and peak memory.
 
-Forms: the first level-1 forms found by the project's search near R = 10, 20, 40 (searched
-in this run, not timed) and a level-11 form near R = 10. Goal: <= 5 s per form at R = 20 on
-level 1, cost growing no faster than R^2 (the fitted exponent is printed). With ``--large``
-the same is timed on synthetic level-1 coefficient vectors at R = 100, 300, 1000 (random
-Hecke-multiplicative eigenvalues: not Maass forms, but the scanner's work depends only on R
-and the coefficient sizes), which shows the cost where later studies need it (R ~ 10^3).
+Each form is normalised and scanned in its own subprocess, which reports its wall time, CPU time
+and peak resident memory (``resource.getrusage``), so one form's memory does not hide another's.
 
-Every time is printed as wall and CPU seconds, and as a ratio to a reference measured in the
-same run: the time of 10^6 evaluations of the scaled K-Bessel function at R = 20.
+Forms: with ``--store FILE`` the level-1 forms of that store nearest to R = 100, 1000, 3000 and
+10^4 (e.g. the study store of configs/study-peaks.toml); without it, level-1 test coefficients
+at exactly those R: a(p) = 2 cos(theta_p) with random theta_p, extended by Hecke
+multiplicativity (not Maass forms, but the scanner's work depends only on R and on the sizes of
+the coefficients, which match those of Hecke eigenforms). ``--R 100,1000`` picks other R.
 
-Run: ``python benchmarks/bench_scan.py [--large]``.
+Goals: R = 3000 in <= 20 s and R = 10^4 in <= 3 minutes and <= 2 GB per form. The cost exponent
+k (time ~ R^k) is fitted to the largest three R. Every time is also printed as a ratio to a
+reference measured in the same run: 10^6 evaluations of the scaled K-Bessel function at R = 20.
+CPU time is the better measure on a shared machine; the load average is printed.
+
+Run: ``python benchmarks/bench_scan.py [--store FILE] [--R 100,1000,3000,10000]``.
 """
 
 from __future__ import annotations
 
+import json
 import math
+import os
+import subprocess
 import sys
 import time
 
 import numpy as np
 
-from maasscomp.groups import gamma0
-from maasscomp.hejhal.types import SolverParams, SymmetryClass
-from maasscomp.special import ktilde
-from maasscomp.spectrum.form import Form
-from maasscomp.spectrum.search import SearchSettings, search_forms
-from maasscomp.supnorm import l2_norm, scan_form
+GOALS = {3000.0: (20.0, None), 10000.0: (180.0, 2048.0)}  # R: (seconds, MB)
 
 
-def first_form(level: int, R: float, n_coeffs: int = 120) -> Form:
-    g = gamma0(level)
-    width = 0.6
-    while True:
-        found = list(search_forms(g, R, R + width, settings=SearchSettings(n_coeffs=n_coeffs)).forms)
-        found = [f for f in found if f.is_new is not False]
-        if found:
-            return min(found, key=lambda f: f.R)
-        width *= 2
-
-
-def synthetic_form(R: float, M: int, seed: int = 1) -> Form:
+def synthetic_form(R: float, M: int, seed: int = 1):
     """Level-1 coefficients a(p) = 2 cos(theta_p) (random theta_p), extended multiplicatively."""
+    from maasscomp.hejhal.types import SolverParams, SymmetryClass
+    from maasscomp.spectrum.form import Form
+
     rng = np.random.default_rng(seed)
     a = np.zeros(M + 1)
     a[1] = 1.0
@@ -65,51 +59,78 @@ def synthetic_form(R: float, M: int, seed: int = 1) -> Form:
                 params=SolverParams(Y=0.1, M0=10, Q=20), extra={"synthetic": True})
 
 
-def timed(form: Form) -> tuple[float, float, float, float, object]:
+def worker(spec: str) -> None:
+    """Child process: normalise and scan one form, print a JSON line."""
+    import resource
+
+    from maasscomp.supnorm import FormEvaluator, l2_norm, scan_form
+
+    kind, arg, R = spec.split("|")
+    R = float(R)
+    if kind == "store":
+        from maasscomp.store import Store
+
+        with Store.open(arg, "r") as st:
+            keys = st.select(level=1)
+            form = st.get(min(keys, key=lambda k: abs(st.get(k).R - R)))
+    else:
+        form = synthetic_form(R, int(R / 2.5) + 80)
     w0, c0 = time.perf_counter(), time.process_time()
-    norm = l2_norm(form, rankin_selberg=False)
+    ev = FormEvaluator(form)
+    norm = l2_norm(form, evaluator=ev, rankin_selberg=False)
     w1, c1 = time.perf_counter(), time.process_time()
-    res = scan_form(form, norm=norm)
+    res = scan_form(form, norm=norm, evaluator=ev)
     w2, c2 = time.perf_counter(), time.process_time()
-    return w1 - w0, w2 - w1, w2 - w0, c2 - c0, res
+    print(json.dumps({"R": form.R, "norm_wall": w1 - w0, "norm_cpu": c1 - c0, "scan_wall": w2 - w1,
+                      "scan_cpu": c2 - c1, "mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+                      "points": sum(p.grid_points for p in res.regions), "region": res.global_region,
+                      "synthetic": kind != "store"}))
 
 
 def main() -> None:
-    large = "--large" in sys.argv[1:]
+    if len(sys.argv) > 2 and sys.argv[1] == "--worker":
+        worker(sys.argv[2])
+        return
+    store = sys.argv[sys.argv.index("--store") + 1] if "--store" in sys.argv else None
+    Rs = [float(v) for v in sys.argv[sys.argv.index("--R") + 1].split(",")] if "--R" in sys.argv \
+        else [100.0, 1000.0, 3000.0, 10000.0]
+    from maasscomp.special import ktilde
+
     x = np.random.default_rng(0).uniform(0.5, 40.0, 1_000_000)
     ktilde(20.0, x[:10])
     t = time.perf_counter()
     ktilde(20.0, x)
     ref = time.perf_counter() - t
-    print(f"reference: 1e6 Kt evaluations at R = 20 take {ref:.3f} s")
-
-    cases = [(1, 10.0), (1, 20.0), (1, 40.0), (11, 10.0)]
-    forms = [(N, first_form(N, R)) for N, R in cases]
-    timed(forms[0][1])  # warm caches and compiled kernels
-    print(f"{'level':>5} {'R':>10} {'norm s':>8} {'scan s':>8} {'total s':>8} {'cpu s':>8} {'/ref':>7} "
-          f"{'points':>9}  global max")
+    print(f"reference: 1e6 Kt evaluations at R = 20 take {ref:.3f} s; load average {os.getloadavg()[0]:.1f} "
+          f"on {os.cpu_count()} cores")
+    print(f"{'R':>10} {'norm cpu':>9} {'scan cpu':>9} {'cpu s':>8} {'wall s':>8} {'/ref':>7} {'peak MB':>8} "
+          f"{'points':>11}  global max")
     rows = []
-    for N, f in forms:
-        tn, ts, tt, tc, res = timed(f)
-        pts = sum(p.grid_points for p in res.cusp_peaks) + res.compact_peak.grid_points
-        rows.append((N, f.R, tt, tc))
-        print(f"{N:>5} {f.R:>10.5f} {tn:>8.2f} {ts:>8.2f} {tt:>8.2f} {tc:>8.2f} {tt / ref:>7.1f} {pts:>9}  "
-              f"{res.global_region}")
-    if large:
-        for R in (100.0, 300.0, 1000.0):
-            f = synthetic_form(R, int(R / 2.5) + 80)
-            tn, ts, tt, tc, res = timed(f)
-            pts = sum(p.grid_points for p in res.cusp_peaks) + res.compact_peak.grid_points
-            rows.append((1, R, tt, tc))
-            print(f"{1:>5} {R:>10.1f} {tn:>8.2f} {ts:>8.2f} {tt:>8.2f} {tc:>8.2f} {tt / ref:>7.1f} {pts:>9}  "
-                  f"{res.global_region} (synthetic coefficients)")
-    lvl1 = [(R, t, c) for N, R, t, c in rows if N == 1]
-    Rs = np.log([r[0] for r in lvl1])
-    k_wall = np.polyfit(Rs, np.log([r[1] for r in lvl1]), 1)[0]
-    k_cpu = np.polyfit(Rs, np.log([r[2] for r in lvl1]), 1)[0]
-    t20 = [t for N, R, t, _ in rows if N == 1 and abs(R - 20) < 5]
-    print(f"level 1 at R ~ 20: {t20[0]:.2f} s per form (goal <= 5 s)")
-    print(f"fitted cost exponent on level 1 (time ~ R^k): k = {k_wall:.2f} wall, {k_cpu:.2f} cpu (goal <= 2)")
+    env = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1")
+    for R in Rs:
+        spec = f"store|{store}|{R}" if store else f"synthetic||{R}"
+        out = subprocess.run([sys.executable, __file__, "--worker", spec], capture_output=True, text=True, env=env)
+        if out.returncode != 0:
+            print(f"{R:>10g} failed: {out.stderr.strip().splitlines()[-1]}")
+            continue
+        d = json.loads(out.stdout.strip().splitlines()[-1])
+        cpu = d["norm_cpu"] + d["scan_cpu"]
+        wall = d["norm_wall"] + d["scan_wall"]
+        rows.append((d["R"], cpu, wall, d["mb"]))
+        print(f"{d['R']:>10.4f} {d['norm_cpu']:>9.2f} {d['scan_cpu']:>9.2f} {cpu:>8.2f} {wall:>8.2f} "
+              f"{wall / ref:>7.0f} {d['mb']:>8.0f} {d['points']:>11}  {d['region']}"
+              + (" (test coefficients)" if d["synthetic"] else ""))
+    for R0, (secs, mb) in GOALS.items():
+        for R, cpu, wall, m in rows:
+            if abs(R - R0) / R0 < 0.01:
+                print(f"R = {R0:g}: {cpu:.1f} s CPU, {wall:.1f} s wall (goal <= {secs:g} s)"
+                      + (f", {m:.0f} MB (goal <= {mb:g} MB)" if mb else ""))
+    big = sorted(rows)[-3:]
+    if len(big) >= 2:
+        k_cpu = np.polyfit(np.log([r[0] for r in big]), np.log([r[1] for r in big]), 1)[0]
+        k_wall = np.polyfit(np.log([r[0] for r in big]), np.log([r[2] for r in big]), 1)[0]
+        print(f"fitted cost exponent over R = {', '.join(f'{r[0]:.0f}' for r in big)} (time ~ R^k): "
+              f"k = {k_cpu:.2f} cpu, {k_wall:.2f} wall")
 
 
 if __name__ == "__main__":

@@ -16,7 +16,7 @@ from pathlib import Path
 from typing import Sequence
 
 from maasscomp import __version__
-from maasscomp.config import arg_int
+from maasscomp.config import arg_int, arg_positive_float
 from maasscomp.errors import InputError, StoreError, StoreWriteError
 
 
@@ -187,22 +187,68 @@ def _cmd_keys(args: argparse.Namespace) -> int:
     return 0
 
 
-def _cmd_report(args: argparse.Namespace) -> int:
-    from maasscomp.pipeline.report import make_report
+def _default_out(store: str, suffix: str) -> Path:
+    return Path(store).with_name(Path(store).stem + suffix)
 
-    out = Path(args.out) if args.out else Path(args.store).with_suffix("").with_name(
-        Path(args.store).stem + "-report")
+
+def _cmd_report(args: argparse.Namespace) -> int:
+    from maasscomp.report import make_report
+
+    out = Path(args.out) if args.out else _default_out(args.store, "-report")
     rep = make_report(args.store, out)
     print(f"report written to {rep.folder} ({', '.join(rep.files)})")
     return 0
 
 
-#: Commands defined in this module; parsing them needs no other stage's command hooks (which
-#: import the numerical stages, seconds of start-up for a listing).
-_OWN_COMMANDS = ("run", "check", "list", "export", "report", "salvage", "keys")
+def _cmd_scan(args: argparse.Namespace) -> int:
+    """Normalise and scan the selected forms of a store; results go into the store."""
+    from maasscomp.report.peaks import FORM_COLUMNS, form_rows
+    from maasscomp.report.tables import write_csv
+    from maasscomp.supnorm.batch import scan_store
+    from maasscomp.supnorm.scan import ScanSettings
+
+    if args.table and not Path(args.table).parent.resolve().is_dir():
+        raise InputError(f"cannot write {args.table}: directory {Path(args.table).parent} does not exist")
+    settings = ScanSettings(Y_omega=args.Y_omega, rtol=args.rtol)
+
+    def show(key, res, reused):
+        if args.quiet:
+            return
+        print(f"{key:<34} R={res.R:<14.10g} transition {res.transition.value:8.4f}  Omega {res.omega.value:8.4f}  "
+              f"bulk {res.bulk_value:8.4f}  max in {res.global_region:<16} "
+              f"{'(stored)' if reused else f'{res.elapsed:6.1f} s'}", flush=True)
+
+    skipped: list[tuple[str, str]] = []
+    results = scan_store(args.store, keys=args.key or None, level=args.level, R_min=args.R_min, R_max=args.R_max,
+                         settings=settings, overwrite=args.overwrite, progress=show, skipped=skipped)
+    for key, msg in skipped:
+        print(f"maasscomp: skipped {key}: {msg}", file=sys.stderr)
+    if not results and not skipped:
+        raise InputError(f"no forms in {args.store} match the selection")
+    if args.table and results:
+        write_csv(args.table, FORM_COLUMNS, form_rows(results))
+    if not args.quiet:
+        kinds = {k: sum(r.global_kind == k for r in results) for k in ("transition", "omega", "intermediate")}
+        print(f"{len(results)} forms scanned; global maximum in a transition zone for {kinds['transition']}, on "
+              f"Omega for {kinds['omega']}, in between for {kinds['intermediate']}; results stored in {args.store}"
+              + (f"; table {args.table}" if args.table else ""))
+    if skipped:
+        print(f"maasscomp: {len(skipped)} form(s) could not be scanned (see above)", file=sys.stderr)
+        return 1
+    return 0
 
 
-def build_parser(hooks: bool = True) -> argparse.ArgumentParser:
+def _cmd_figures(args: argparse.Namespace) -> int:
+    """Draw the sup-norm figures and tables of a store (or of selected forms) into a folder."""
+    from maasscomp.report import write_peak_files
+
+    out = Path(args.out) if args.out else _default_out(args.store, "-figures")
+    paths = write_peak_files(args.store, out, keys=args.key or None, per_form=args.per_form)
+    print(f"wrote {len(paths)} files to {out}")
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="maasscomp",
                 description="Maass cusp forms on Gamma0(N): eigenvalues, coefficients, sup-norms.")
     p.add_argument("--version", action="version", version=f"maasscomp {__version__}")
@@ -260,12 +306,30 @@ def build_parser(hooks: bool = True) -> argparse.ArgumentParser:
     k = sub.add_parser("keys", help="print the documentation of every config key (Markdown)")
     k.set_defaults(func=_cmd_keys)
 
-    import importlib.util
+    s = sub.add_parser("scan", help="L2-normalise and scan stored forms for their maxima (transition zones, "
+                                    "the fixed compact set, in between)")
+    s.add_argument("store", help="HDF5 store file (results are written into it)")
+    s.add_argument("--key", action="append", metavar="KEY", help="scan this form (repeatable; default: all)")
+    s.add_argument("--level", type=arg_int(1), help="only forms of this level")
+    s.add_argument("--R-min", dest="R_min", type=arg_positive_float, help="only forms with R >= this")
+    s.add_argument("--R-max", dest="R_max", type=arg_positive_float, help="only forms with R <= this")
+    s.add_argument("--Y-omega", dest="Y_omega", type=arg_positive_float, default=2.0,
+                   help="height (>= 1, in each cusp's coordinate) below which points form the fixed compact "
+                        "set Omega (default 2)")
+    s.add_argument("--rtol", type=arg_positive_float, default=1e-3,
+                   help="relative accuracy of each maximum guaranteed by the grid bound (default 1e-3)")
+    s.add_argument("--overwrite", action="store_true", help="rescan forms that already carry a scan")
+    s.add_argument("--table", metavar="CSV", help="also write the results table to this CSV file")
+    s.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    s.set_defaults(func=_cmd_scan)
 
-    if hooks and importlib.util.find_spec("maasscomp.supnorm.commands") is not None:
-        from maasscomp.supnorm import commands as supnorm_commands
-
-        supnorm_commands.add_commands(sub)
+    f = sub.add_parser("figures", help="draw sup-norm figures and tables of scanned forms into a folder")
+    f.add_argument("store", help="HDF5 store file with scanned forms")
+    f.add_argument("--out", metavar="DIR", help="output folder (created if missing; default: <store name>-figures)")
+    f.add_argument("--key", action="append", metavar="KEY",
+                   help="only this form (repeatable); draws its map of |f| as well")
+    f.add_argument("--per-form", action="store_true", help="draw a map of |f| for every selected form")
+    f.set_defaults(func=_cmd_figures)
     return p
 
 
@@ -280,8 +344,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Entry point; returns the exit code (2 for user errors)."""
     import signal
 
-    first = (list(argv) if argv is not None else sys.argv[1:])[:1]
-    parser = build_parser(hooks=not (first and first[0] in _OWN_COMMANDS))
+    parser = build_parser()
     try:
         old = signal.signal(signal.SIGTERM, _on_sigterm)
     except ValueError:  # not the main thread: leave signals alone

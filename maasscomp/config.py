@@ -104,15 +104,15 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
      "each window flagged as incomplete once more with a shifted lattice of expansion "
      "points, twice as many of them, and lower sample heights."),
     ("scan", "enabled", "bool", False,
-     "After the search, scan every form of the config for the maximum of |f|/||f|| in each "
-     "cusp region and on the compact part (one task per form; results stored beside the "
-     "form)."),
-    ("scan", "Y_c", "float", 1.0,
-     "Height (in each cusp's coordinate) above which a point belongs to the cusp region; "
-     ">= 1."),
+     "After the search, scan every form of the config for the maximum of |f|/||f|| on the "
+     "fixed compact set, in each cusp's transition zone and in between (one task per form; "
+     "results stored beside the form)."),
+    ("scan", "Y_omega", "float", 2.0,
+     "Height (in each cusp's coordinate) below which a point belongs to the fixed compact "
+     "set Omega; >= 1. The default gives Omega 52% of the area of PSL(2,Z)\\H."),
     ("scan", "rtol", "float", 1e-3,
      "Relative accuracy the scan grid guarantees for each region's maximum, in [1e-9, 0.5]."),
-    ("scan", "samples_per_wavelength", "float", 6.0,
+    ("scan", "samples_per_wavelength", "float", 9.0,
      "Initial density of the scan grid, in [2, 100]."),
     ("executor", "backend", "string", "joblib",
      "Where tasks run: 'serial' (this process), 'joblib' (worker processes on this "
@@ -132,7 +132,7 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
 # keys of the executor section and job paths do not change results (see module docstring)
 _RESULT_KEYS = {("search", "eps"), ("search", "n_coeffs"), ("search", "step")}
 # compared only when both runs scanned (enabling scans later adds results, changes none)
-_SCAN_RESULT_KEYS = {("scan", "Y_c"), ("scan", "rtol"), ("scan", "samples_per_wavelength")}
+_SCAN_RESULT_KEYS = {("scan", "Y_omega"), ("scan", "rtol"), ("scan", "samples_per_wavelength")}
 
 _SECTIONS = list(dict.fromkeys(s for s, *_ in KEYS))
 
@@ -172,9 +172,9 @@ class SearchConfig:
 @dataclass(frozen=True)
 class ScanConfig:
     enabled: bool = False
-    Y_c: float = 1.0
+    Y_omega: float = 2.0
     rtol: float = 1e-3
-    samples_per_wavelength: float = 6.0
+    samples_per_wavelength: float = 9.0
 
 
 @dataclass(frozen=True)
@@ -562,13 +562,13 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     enabled = scn.get("enabled", False)
     if not isinstance(enabled, bool):
         problems.append(f"[scan] enabled={enabled!r} must be true or false")
-    Y_c = scn.get("Y_c", 1.0)
-    if not _is_real(Y_c) or not math.isfinite(Y_c) or Y_c < 1.0:
-        problems.append(f"[scan] Y_c={Y_c!r} is not allowed; it must be a finite number >= 1")
+    Y_omega = scn.get("Y_omega", 2.0)
+    if not _is_real(Y_omega) or not math.isfinite(Y_omega) or Y_omega < 1.0:
+        problems.append(f"[scan] Y_omega={Y_omega!r} is not allowed; it must be a finite number >= 1")
     rtol = scn.get("rtol", 1e-3)
     if not _is_real(rtol) or not (1e-9 <= rtol <= 0.5):
         problems.append(f"[scan] rtol={rtol!r} is not allowed; it must be a number in [1e-9, 0.5]")
-    spw = scn.get("samples_per_wavelength", 6.0)
+    spw = scn.get("samples_per_wavelength", 9.0)
     if not _is_real(spw) or not (2.0 <= spw <= 100.0):
         problems.append(f"[scan] samples_per_wavelength={spw!r} is not allowed; it must be a "
                         "number in [2, 100]")
@@ -631,7 +631,7 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
             chunk_width=float(chunk),
             recheck=bool(recheck),
         ),
-        scan=ScanConfig(enabled=bool(enabled), Y_c=float(Y_c), rtol=float(rtol),
+        scan=ScanConfig(enabled=bool(enabled), Y_omega=float(Y_omega), rtol=float(rtol),
                         samples_per_wavelength=float(spw)),
         executor=ExecutorConfig(backend=backend, workers=int(workers),
                                 address=address, memory_limit_gb=float(mem),

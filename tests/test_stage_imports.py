@@ -6,7 +6,7 @@ import ast
 from pathlib import Path
 
 PKG = Path(__file__).resolve().parents[1] / "maasscomp"
-ORDER = ["errors", "config", "special", "groups", "hejhal", "spectrum", "store", "supnorm", "pipeline", "cli"]
+ORDER = ["errors", "config", "special", "groups", "hejhal", "spectrum", "store", "supnorm", "pipeline", "report", "cli"]
 # numerical stages must not import the parallel back ends
 NUMERICAL = {"special", "groups", "hejhal", "spectrum", "store", "supnorm"}
 FORBIDDEN_IN_NUMERICAL = {"joblib", "dask", "distributed"}
@@ -41,4 +41,25 @@ def test_stages_import_only_earlier_stages():
                     bad.append(f"{path.relative_to(PKG)} imports {mod}")
             if stage in NUMERICAL and parts[0] in FORBIDDEN_IN_NUMERICAL:
                 bad.append(f"{path.relative_to(PKG)} imports {mod} (parallel back ends belong to pipeline)")
+    assert not bad, "\n".join(bad)
+
+
+def test_every_module_belongs_to_a_stage():
+    """A new folder or top-level module must be placed in ORDER (else the rule above skips it)."""
+    top = {"__init__", "__main__"}
+    found = {p.name.removesuffix(".py") for p in PKG.iterdir()
+             if (p.is_dir() and (p / "__init__.py").exists()) or p.suffix == ".py"}
+    assert found - top == set(ORDER), sorted(found.symmetric_difference(set(ORDER) | top))
+
+
+def test_report_stage_sits_between_pipeline_and_cli():
+    """Tables and figures are written by the report stage only: the numerical stages and the
+    pipeline never import it, and it is the only stage that imports matplotlib."""
+    assert ORDER.index("pipeline") < ORDER.index("report") < ORDER.index("cli")
+    bad = []
+    for path in PKG.rglob("*.py"):
+        stage = _stage(path)
+        for mod in _imports(path):
+            if mod.split(".")[0] == "matplotlib" and stage != "report":
+                bad.append(f"{path.relative_to(PKG)} imports {mod}")
     assert not bad, "\n".join(bad)

@@ -8,8 +8,6 @@ preflight(cfg) -> Plan
     Every check that can fail before a file is written (``maasscomp check``).
 build_plan(cfg) -> Plan
     The search tasks of a config (level x symmetry class x R chunk).
-make_report(store_path, out_dir) -> Report
-    The report folder of a store (``maasscomp report``).
 SerialExecutor, JoblibExecutor, DaskExecutor, make_executor
     Executors with ``as_completed(fn, items)`` and ``map(fn, items)``.
 
@@ -18,8 +16,7 @@ Only this stage imports joblib and dask.
 
 from maasscomp.pipeline.executors import DaskExecutor, JoblibExecutor, SerialExecutor, make_executor
 from maasscomp.pipeline.job import JobSummary, preflight, run_job
-from maasscomp.pipeline.report import Report, make_report
 from maasscomp.pipeline.tasks import Plan, build_plan
 
-__all__ = ["run_job", "preflight", "build_plan", "make_report", "JobSummary", "Plan", "Report",
+__all__ = ["run_job", "preflight", "build_plan", "JobSummary", "Plan",
            "SerialExecutor", "JoblibExecutor", "DaskExecutor", "make_executor"]

@@ -90,8 +90,8 @@ class JobSummary:
         for w in self.weyl:
             lines.append("  " + w)
         if self.scans_total:
-            where = ", ".join(f"{n} {'in a cusp' if r == 'cusp' else 'on the compact part'}"
-                              for r, n in sorted(self.scan_regions.items()))
+            names = {"transition": "in a transition zone", "omega": "on Omega", "intermediate": "in between"}
+            where = ", ".join(f"{n} {names.get(r, r)}" for r, n in sorted(self.scan_regions.items()))
             lines.append(f"sup-norm scans: {self.scans_run} run, {self.scans_skipped} already done"
                          + (f"; global maximum {where}" if where else ""))
         if self.stage_seconds:
@@ -531,12 +531,13 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
             old = st.get_attachment(k, attachment)
         except StoreError:  # a damaged scan is made again (and replaced)
             return False
-        return old.get("Y_c") == sc.Y_c and old.get("rtol") == sc.rtol
+        return (old.get("Y_omega") == sc.Y_omega and old.get("rtol") == sc.rtol
+                and "regions" in old)
 
     todo = [k for k in keys if not scanned(k)]
     summary.scans_total = len(keys)
     summary.scans_skipped = len(keys) - len(todo)
-    tasks = [ScanTask(k, st.get(k), sc.Y_c, sc.rtol, sc.samples_per_wavelength) for k in todo]
+    tasks = [ScanTask(k, st.get(k), sc.Y_omega, sc.rtol, sc.samples_per_wavelength) for k in todo]
     log.info("scan stage: %d forms, %d already scanned", len(keys), summary.scans_skipped)
     bar = tqdm(total=len(keys), initial=summary.scans_skipped, desc="scan", unit="form",
                disable=not show_progress, file=sys.stderr, dynamic_ncols=True, smoothing=0.1)
@@ -558,7 +559,7 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
                     st.mark_task_done(o.task_id, [out.form_key], run_id=run_id)
                 summary.commit_seconds += time.perf_counter() - t
                 regions[out.region.split()[0]] += 1
-                log.info("task %s: global maximum %.6g in %s (cusp/compact %.4f), %.2f s on %s",
+                log.info("task %s: global maximum %.6g in %s (transition/bulk %.4f), %.2f s on %s",
                          o.task_id, out.value, out.region, out.ratio, o.seconds, o.worker)
             bar.update(1)
     except (KeyboardInterrupt, InputError, StoreError):

@@ -193,7 +193,7 @@ class ScanTask:
 
     form_key: str
     form: Any
-    Y_c: float
+    Y_omega: float
     rtol: float
     samples_per_wavelength: float
 
@@ -208,14 +208,14 @@ class ScanTask:
         from maasscomp.supnorm.norm import l2_norm
         from maasscomp.supnorm.scan import ScanSettings, scan_form
 
-        settings = ScanSettings(Y_c=self.Y_c, rtol=self.rtol,
+        settings = ScanSettings(Y_omega=self.Y_omega, rtol=self.rtol,
                                 samples_per_wavelength=self.samples_per_wavelength)
         ev = FormEvaluator(self.form, tol=settings.eval_tol)
         norm = l2_norm(self.form, evaluator=ev)
         res = scan_form(self.form, settings=settings, norm=norm, form_key=self.form_key, evaluator=ev)
         return ScanOutput(form_key=self.form_key, data=_plain(res.as_dict()),
                           norm=_plain(norm.as_dict()), region=res.global_region,
-                          value=float(res.global_value), ratio=float(res.ratio_cusp_compact))
+                          value=float(res.global_value), ratio=float(res.transition.value / res.bulk_value))
 
 
 def _plain(d: dict) -> dict:

@@ -55,7 +55,7 @@ def scan_store(path: str | os.PathLike, *, keys: Iterable[str] | None = None, le
         Selection (all forms when nothing is given).
     settings : ScanSettings, optional
     overwrite : bool
-        Rescan forms that already carry a scan made with the same Y_c and rtol (otherwise the
+        Rescan forms that already carry a scan made with the same Y_omega and rtol (otherwise the
         stored result is returned).
     progress : callable(key, result, reused), optional
         Called after each form.
@@ -73,11 +73,13 @@ def scan_store(path: str | os.PathLike, *, keys: Iterable[str] | None = None, le
 
     st = settings or ScanSettings()
     out = []
+    Store.open(path, "r").close()  # a missing or foreign file is an error, never a new store
     with Store.open(path, "a") as store:
         for key in select_keys(store, keys, level, R_min, R_max):
             if not overwrite and SCAN_ATTACHMENT in store.attachments(key):
-                old = ScanResult.from_dict(store.get_attachment(key, SCAN_ATTACHMENT))
-                if old.Y_c == st.Y_c and old.rtol == st.rtol:
+                stored = store.get_attachment(key, SCAN_ATTACHMENT)
+                old = ScanResult.from_dict(stored) if "regions" in stored else None
+                if old is not None and old.Y_omega == st.Y_omega and old.rtol == st.rtol:
                     out.append(old)
                     if progress is not None:
                         progress(key, old, True)
@@ -103,13 +105,19 @@ def scan_store(path: str | os.PathLike, *, keys: Iterable[str] | None = None, le
 
 
 def load_scans(path: str | os.PathLike, keys: Iterable[str] | None = None) -> list[ScanResult]:
-    """Stored scan results (forms without a scan are skipped)."""
+    """Stored scan results (forms without a scan, or with a scan of an older format, are skipped)."""
     from maasscomp.store import Store
 
+    out = []
     with Store.open(path, "r") as store:
         ks = select_keys(store, keys) if keys else store.keys()
-        return [ScanResult.from_dict(store.get_attachment(k, SCAN_ATTACHMENT))
-                for k in ks if SCAN_ATTACHMENT in store.attachments(k)]
+        for k in ks:
+            if SCAN_ATTACHMENT not in store.attachments(k):
+                continue
+            d = store.get_attachment(k, SCAN_ATTACHMENT)
+            if "regions" in d:
+                out.append(ScanResult.from_dict(d))
+    return out
 
 
 def load_norm(path: str | os.PathLike, key: str) -> NormResult:

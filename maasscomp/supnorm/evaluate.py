@@ -61,8 +61,12 @@ class Evaluation:
     values : ndarray
         F(z) (shape of the input points).
     error_bound : ndarray
-        Bound on |computed - exact| from the truncated tail and from coefficients that are
-        neither stored nor obtainable by the Hecke relations (coefficient envelope bound).
+        Bound on |computed - exact| from the truncated tail, from coefficients that are
+        neither stored nor obtainable by the Hecke relations (coefficient envelope bound), and
+        from the conditioning of the pullback: rounding moves the computed w = sigma^{-1} gamma z
+        by up to 16 u max(1, |z|^2) / Im z |w| (u = 2^-53; the relative error of the pullback
+        grows like |z|^2 / Im z, see ``Gamma0.pullback``), which changes F by at most that
+        times the termwise gradient bound sum_n |c_n| (2 pi n |A_n| + |A_n'|) at Im w.
     cusp : ndarray of int
         Cusp whose expansion was used (the one where the pulled-back point is highest).
     x, y : ndarray
@@ -108,6 +112,13 @@ class FormEvaluator:
         R = float(form.R)
         if not (math.isfinite(R) and R > 0):
             raise InputError(f"form R={form.R!r} is not allowed; R must be positive and finite")
+        C = np.asarray(form.coeffs)
+        if C.size and not np.all(np.isfinite(C)):
+            bad = np.argwhere(~np.isfinite(C.reshape(C.shape[0] if C.ndim == 2 else 1, -1)))[0]
+            raise InputError(
+                f"form at level {form.level}, R={R:.10g}: coefficient c_{int(bad[0])}({int(bad[1]) + 1}) is "
+                f"{C.reshape(-1, C.shape[-1])[bad[0], bad[1]]!r}; every stored coefficient must be a finite "
+                "number (re-solve or re-extend the form)")
         self.form = form
         self.R = R
         self.lam = 0.25 + R * R
@@ -223,8 +234,29 @@ class FormEvaluator:
 
     # ------------------------------------------------------------------ anywhere in H
 
-    def __call__(self, x: ArrayLike, y: ArrayLike) -> Evaluation:
-        """F(z) at z = x + i y (broadcast), via pullback to the highest cusp expansion."""
+    def gradient_bound(self, cusp: int, y: ArrayLike, n_terms: int) -> np.ndarray:
+        """sum_n |c_n| (2 pi n |A_n(y)| + |A_n'(y)|) >= |F_x| + |F_y| on the horocycle Im w = y."""
+        y = np.atleast_1d(np.asarray(y, dtype=float))
+        tab = self.ensure_terms(n_terms)
+        n = np.arange(1, n_terms + 1, dtype=float)
+        alpha, beta = tab.cos_sin(cusp, n_terms)
+        c = np.hypot(alpha, beta)
+        miss = tab.missing_mask(cusp, n_terms)
+        if miss.any():
+            c = np.where(miss, tab.envelope(n_terms), c)
+        t = TWO_PI * y[:, None] * n[None, :]
+        K, Kp = ktilde_and_derivative(self.R, t)
+        sy = np.sqrt(y)[:, None]
+        A = sy * K
+        Ap = K / (2.0 * sy) + sy * TWO_PI * n[None, :] * Kp
+        return (TWO_PI * n[None, :] * np.abs(A) + np.abs(Ap)) @ c
+
+    def __call__(self, x: ArrayLike, y: ArrayLike, *, conditioning: bool = True) -> Evaluation:
+        """F(z) at z = x + i y (broadcast), via pullback to the highest cusp expansion.
+
+        With ``conditioning=False`` the error bound leaves out the pullback's conditioning
+        term (for callers that use the values only).
+        """
         pb = self.group.pullback(x, y)
         shape = np.shape(pb.x)
         cus = np.asarray(pb.cusp).ravel()
@@ -232,18 +264,28 @@ class FormEvaluator:
         wy = np.asarray(pb.y, dtype=float).ravel()
         vals = np.empty(wx.size)
         errs = np.empty(wx.size)
+        cond = np.zeros(wx.size)
         n_used = 0
         for j in np.unique(cus):
             sel = np.nonzero(cus == j)[0]
             v, e = self.expansion(int(j), wx[sel], wy[sel])
             vals[sel] = v
             errs[sel] = e
-            n_used = max(n_used, self.terms_needed(float(wy[sel].min())))
+            nt = self.terms_needed(float(wy[sel].min()))
+            n_used = max(n_used, nt)
+            if conditioning:
+                xi, yi = np.broadcast_arrays(np.asarray(x, dtype=float), np.asarray(y, dtype=float))
+                xi, yi = xi.ravel()[sel], yi.ravel()[sel]
+                kappa = np.maximum(1.0, xi * xi + yi * yi) / yi
+                dw = 16.0 * 2.0**-53 * kappa * np.maximum(1.0, np.hypot(wx[sel], wy[sel]))
+                for start in range(0, sel.size, _CHUNK):
+                    part = slice(start, start + _CHUNK)
+                    cond[sel[part]] = dw[part] * self.gradient_bound(int(j), wy[sel[part]], nt)
         used = sorted(int(j) for j in np.unique(cus))
         return self._result(vals.reshape(shape), errs.reshape(shape), cus.reshape(shape),
-                            wx.reshape(shape), wy.reshape(shape), n_used, used)
+                            wx.reshape(shape), wy.reshape(shape), n_used, used, cond.reshape(shape))
 
-    def _result(self, vals, errs, cus, wx, wy, n_used, used_cusps) -> Evaluation:
+    def _result(self, vals, errs, cus, wx, wy, n_used, used_cusps, cond=None) -> Evaluation:
         tab = self._table
         notes = []
         complete = not any(tab.missing_mask(j, n_used).any() for j in used_cusps) if n_used else True
@@ -262,6 +304,10 @@ class FormEvaluator:
                 f"form at level {self.form.level}, R={self.R:.10g}: evaluation error bound {worst:.2e} "
                 f"exceeds tol={self.tol:.1e}; store more coefficients", AccuracyWarning, stacklevel=3,
             )
+        if cond is not None and cond.size and float(np.max(cond)) > self.tol:
+            notes.append(f"the pullback's conditioning limits the accuracy to {float(np.max(cond)):.1e} "
+                         "(rounding of the input point, amplified near the real axis)")
+            errs = errs + cond
         return Evaluation(values=vals, error_bound=errs, cusp=cus, x=wx, y=wy, n_terms=int(n_used),
                           extended=bool(tab.extended and n_used > tab.n_stored), complete=complete,
                           notes=tuple(notes))

@@ -27,10 +27,11 @@ SL2(Z)). Split F_1 into its top {|x| <= 1/2, y >= 1} and bottom B = F_1 ∩ {y <
       int_B g dmu = int_0^{1/2} (s / y^3) [ int_{s <= |x| <= 1/2} g(x + i y) dx ] ds.
 
   The inner integral is done exactly when the coset's own cusp expansion converges on the
-  piece with known coefficients: the piece is a horocycle segment there and
-  int (sum_n u_n cos + v_n sin)^2 dX is a quadratic form in closed form (autocorrelations of
-  the term vectors against int cos(2 pi k X) dX, int sin(2 pi k X) dX). Otherwise the inner
-  integral uses Gauss--Legendre nodes evaluated through the pullback. Every node count is
+  piece with known coefficients: the piece is a horocycle segment there, the Fourier
+  coefficients of F^2 on that horocycle come from two FFTs, and the integral over the
+  segments of all translates of the cusp is a sum over them in closed form
+  (:func:`_bottom_own`). Otherwise the inner integral uses Gauss--Legendre nodes evaluated
+  through the pullback. Every node count is
   taken from the oscillation rate ~2R/y of |F|^2 and the whole sum is repeated with 1.5 times
   the nodes; the difference is the reported error estimate.
 
@@ -64,12 +65,21 @@ _GL_PANEL = 16
 @functools.lru_cache(maxsize=64)
 def _gl(n: int) -> tuple[np.ndarray, np.ndarray]:
     # numpy's leggauss solves an n x n eigenproblem (O(n^3), 0.5 s at n = 1000); scipy's
-    # roots_legendre uses an O(n) method with the same accuracy for large n
+    # roots_legendre is faster but still takes seconds for thousands of nodes, so large rules
+    # are composite: panels of 100 nodes, about 10% more nodes in all (each panel is exact for
+    # polynomials of degree 199 on its own 1/p of the interval)
     if n <= 150:
         x, w = np.polynomial.legendre.leggauss(n)
-    else:
+    elif n <= 400:
         x, w = scipy.special.roots_legendre(n)
         x, w = np.array(x), np.array(w)
+    else:
+        p = int(math.ceil(n / 90.0))
+        x0, w0 = np.polynomial.legendre.leggauss(100)
+        edges = np.linspace(-1.0, 1.0, p + 1)
+        c, h = 0.5 * (edges[1:] + edges[:-1]), 0.5 * np.diff(edges)
+        x = (c[:, None] + h[:, None] * x0[None, :]).ravel()
+        w = (h[:, None] * w0[None, :]).ravel()
     x.setflags(write=False)
     w.setflags(write=False)
     return x, w
@@ -195,8 +205,12 @@ def kt2_tail(R: float, T: np.ndarray) -> np.ndarray:
     return out
 
 
-def _parseval_part(ev: FormEvaluator, cusp: int, Y: float) -> tuple[float, float]:
-    """(integral over the strip Im w >= Y of cusp ``cusp``, bound for unknown coefficients)."""
+def strip_mass(ev: FormEvaluator, cusp: int, Y: float) -> tuple[float, float]:
+    """(integral of F^2 over the strip Im w >= Y of a cusp, bound for unknown coefficients).
+
+    Parseval in x (int_0^1 cos^2 = int_0^1 sin^2 = 1/2, cross terms vanish) and
+    G(T) = int_T^inf Kt(t)^2 dt / t (:func:`kt2_tail`): sum_n |c_j(n)|^2 / 2 * G(2 pi n Y).
+    """
     nt = ev.terms_needed(Y, tol=1e-16)
     tab = ev.ensure_terms(nt)
     n = np.arange(1, nt + 1)
@@ -211,37 +225,6 @@ def _parseval_part(ev: FormEvaluator, cusp: int, Y: float) -> tuple[float, float
 
 # ------------------------------------------------------------------------------------------
 # bottoms of the coset translates
-
-
-def _interval_quadform(u: np.ndarray, v: np.ndarray, a: float, b: float) -> float:
-    """int_a^b (sum_n u_n cos(2 pi n X) + v_n sin(2 pi n X))^2 dX in closed form (n = 1..)."""
-    m = u.size
-    k = np.arange(0, 2 * m + 1, dtype=float)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        C = (np.sin(TWO_PI * k * b) - np.sin(TWO_PI * k * a)) / (TWO_PI * k)
-        S = (np.cos(TWO_PI * k * a) - np.cos(TWO_PI * k * b)) / (TWO_PI * k)
-    C[0] = b - a
-    S[0] = 0.0
-    # sum_{n,m} u_n u_m C(n - m): autocorrelation r(d), d = n - m in [-(m-1), m-1]
-    ruu = np.correlate(u, u, mode="full")  # index d + m - 1
-    rvv = np.correlate(v, v, mode="full")
-    d = np.abs(np.arange(-(m - 1), m))
-    Cd = C[d]
-    # sum_{n,m} u_n u_m C(n + m): convolution index s = n + m - 2 (n, m from 1)
-    cuu = np.convolve(u, u)
-    cvv = np.convolve(v, v)
-    cuv = np.convolve(u, v)
-    s_idx = np.arange(2, 2 * m + 1)
-    Cs = C[s_idx]
-    Ss = S[s_idx]
-    # sum_{n,m} u_n v_m S(n - m): np.correlate(u, v)[j] = sum_n u_{n+j-(m-1)} v_n, lag j-(m-1) = n - m
-    ruv = np.correlate(u, v, mode="full")
-    lag = np.arange(-(m - 1), m)
-    Sl = np.sign(lag) * S[np.abs(lag)]
-    cc = 0.5 * (np.dot(ruu, Cd) + np.dot(cuu, Cs))
-    ss = 0.5 * (np.dot(rvv, Cd) - np.dot(cvv, Cs))
-    cs = np.dot(cuv, Ss) - np.dot(ruv, Sl)
-    return float(cc + ss + cs)
 
 
 def _coset_maps(group) -> list[tuple]:
@@ -269,6 +252,51 @@ def _node_counts(R: float, factor: float) -> tuple[int, int]:
     return ns, nx
 
 
+def coset_charts(group) -> list[tuple[int, float, float]]:
+    """Per coset representative R_k: (cusp j, r, X_k) such that R_k F_1 is, in the coordinate
+    of cusp j, {|X - X_k| <= r/2, (X - X_k)^2 + Y^2 >= r^2} (r = a/d, X_k = b/d from
+    sigma_j^{-1} R_k z = (a z + b) / d; the translates of cusp j tile one period)."""
+    return [(j, a / d, b / d) for j, a, b, d, _ in _coset_maps(group)]
+
+
+def _bottom_own(ev: FormEvaluator, j: int, r: float, c0: float, width: int, y: np.ndarray, wy: np.ndarray,
+                s: np.ndarray, nt: int) -> float:
+    """sum over the translates of cusp j of int_{bottom} F^2 dmu, from F^2's Fourier coefficients.
+
+    On the horocycle Y = r y of cusp j, F^2 = sum_k g_k e(k X) (|k| <= 2 nt) is found exactly by
+    two FFTs of length L > 4 nt. The translates of cusp j have centres X_p = c0 + p r (p < width,
+    r width = 1) and contribute X in [X_p + r s, X_p + r/2] and [X_p - r/2, X_p - r s]; summed
+    over p only k = m width survive, sin(pi m) = 0, and
+
+        sum_p int e(k X) dX = (1 - 2 s) [k = 0],  - width e(m c0 width) sin(2 pi m s) / (pi m width),
+
+    so int = (1 - 2 s) g_0 - (2 / pi) sum_{m >= 1} Re(g_{m width} e(m width c0)) sin(2 pi m s) / m.
+    The measure is dX dY / Y^2 with dX = r dx: the y-weights ``wy`` (of dx dy / y^3 s, see
+    :func:`_bottom_integrals`) are divided by r.
+    """
+    tab = ev.ensure_terms(nt)
+    dn = tab.exp_coeffs(j, nt) * np.where(np.arange(1, nt + 1) % 2 == 1, -1.0, 1.0)
+    L = int(scipy.fft.next_fast_len(4 * nt + 2))
+    mmax = (2 * nt) // width
+    m = np.arange(1, mmax + 1)
+    phase = np.exp(2j * math.pi * m * width * c0) * np.where((m * width) % 2 == 1, -1.0, 1.0)
+    total = 0.0
+    chunk = max(1, (1 << 21) // L)
+    for a in range(0, y.size, chunk):
+        yy = y[a:a + chunk]
+        A = ev.amplitudes(r * yy, nt)
+        buf = np.zeros((yy.size, L), dtype=complex)
+        buf[:, 1:nt + 1] = A * dn[None, :]
+        F = scipy.fft.ifft(buf, axis=1, workers=1).real * L  # F at X_l = -1/2 + l / L
+        g = scipy.fft.fft(F * F, axis=1, workers=1) / L  # g_k e(-k/2) (the samples start at -1/2)
+        g0 = g[:, 0].real
+        gm = g[:, m * width] * phase[None, :]  # g_{m width} e(m width c0)
+        sin = np.sin(2.0 * math.pi * np.outer(s[a:a + chunk], m)) / m[None, :]
+        inner = (1.0 - 2.0 * s[a:a + chunk]) * g0 - (2.0 / math.pi) * np.sum(gm.real * sin, axis=1)
+        total += float(np.dot(wy[a:a + chunk], inner)) / r
+    return total
+
+
 def _bottom_integrals(ev: FormEvaluator, maps, factor: float) -> tuple[float, int]:
     ns, nx = _node_counts(ev.R, factor)
     s, ws = _gl_on(0.0, 0.5, ns)
@@ -276,57 +304,56 @@ def _bottom_integrals(ev: FormEvaluator, maps, factor: float) -> tuple[float, in
     wy = ws * s / y**3
     total = 0.0
     nodes = 0
-    for j, a, b, d, Rk in maps:
-        r = a / d  # height scale: Im(sigma_j^{-1} R_k z) = r y
+    G = ev.group
+    by_cusp: dict[int, list] = {}
+    for mp in maps:
+        by_cusp.setdefault(mp[0], []).append(mp)
+    for j, pieces in by_cusp.items():
+        r = pieces[0][1] / pieces[0][3]  # height scale: Im(sigma_j^{-1} R_k z) = r y
         Ymin = r * math.sqrt(3.0) / 2.0
         nt = ev.terms_needed(Ymin)
         tab = ev.ensure_terms(nt)
-        own = not tab.missing_mask(j, nt).any()
-        if own:
-            alpha, beta = tab.cos_sin(j, nt)
-            A = ev.amplitudes(r * y, nt)
-            part = 0.0
-            for i in range(ns):
-                u = A[i] * alpha
-                v = A[i] * beta
-                q = 0.0
-                for lo, hi in ((s[i], 0.5), (-0.5, -s[i])):
-                    q += _interval_quadform(u, v, (a * lo + b) / d, (a * hi + b) / d)
-                part += wy[i] * q / r  # dx = dX / r
-            total += part
+        if not tab.missing_mask(j, nt).any():
+            c0 = min((b / d) % 1.0 for _, a, b, d, _ in pieces)
+            total += _bottom_own(ev, j, r, c0, len(pieces), y, wy, s, nt)
             nodes += ns * nt
-        else:
-            xg, wg = _gl(nx)
-            # x on [s, 1/2] and [-1/2, -s] for every s node: (ns, nx) arrays
-            half = 0.5 * (0.5 - s)[:, None]
-            xr = s[:, None] + half * (xg[None, :] + 1.0)
-            wx = half * wg[None, :]
-            X = np.concatenate([xr, -xr], axis=1)
-            W = np.concatenate([wx, wx], axis=1)
-            Yg = np.broadcast_to(y[:, None], X.shape)
-            z = X + 1j * Yg
+            continue
+        xg, wg = _gl(nx)
+        # x on [s, 1/2] and [-1/2, -s] for every s node: (ns, nx) arrays
+        half = 0.5 * (0.5 - s)[:, None]
+        xr = s[:, None] + half * (xg[None, :] + 1.0)
+        wx = half * wg[None, :]
+        X = np.concatenate([xr, -xr], axis=1)
+        W = np.concatenate([wx, wx], axis=1)
+        Yg = np.broadcast_to(y[:, None], X.shape)
+        z = X + 1j * Yg
+        for _, a, b, d, Rk in pieces:
             zk = (Rk[0][0] * z + Rk[0][1]) / (Rk[1][0] * z + Rk[1][1])
-            vals = ev(zk.real, zk.imag).values
+            vals = ev(zk.real, zk.imag, conditioning=False).values
             total += float(np.sum(wy[:, None] * W * vals**2))
             nodes += X.size
+    del G
     return total, nodes
 
 
-def compact_quadrature(ev: FormEvaluator, Y_c: float = 1.0, factor: float = 1.0
+def compact_quadrature(ev: FormEvaluator, Y_omega: float = 2.0, factor: float = 1.0
                        ) -> tuple[np.ndarray, np.ndarray]:
-    """Values of F and weights of a quadrature rule for dmu on the compact part.
+    """Values of F and weights of a quadrature rule for dmu on the compact set Omega.
 
-    The compact part is the fundamental domain minus the cusp regions {Im sigma_j^{-1} z >= Y_c}:
-    the bottoms R_k B of the coset translates (nodes as in :func:`l2_norm`) and, for cusps of
-    width w_j with 1/w_j < Y_c, the strips 1/w_j <= Im w < Y_c (Gauss--Legendre in ln Im w,
+    Omega is the fundamental domain minus the cusp regions {Im sigma_j^{-1} z > Y_omega}
+    (Y_omega >= 1): the bottoms R_k B of the coset translates (nodes as in :func:`l2_norm`) and,
+    for every cusp of width w_j, the strip 1/w_j <= Im w < Y_omega (Gauss--Legendre in ln Im w,
     equally spaced points in Re w: the trapezoidal rule, exact for trigonometric polynomials of
-    degree below the number of points). sum(weights) is the area of the compact part,
-    pi mu / 3 - n_cusps / Y_c, up to the quadrature error.
+    degree below the number of points). sum(weights) is the area of Omega,
+    pi mu / 3 - n_cusps / Y_omega, up to the quadrature error. The scanner's Omega mass comes
+    from Parseval instead (``maasscomp.supnorm.scan.strip_mass``); this rule is an independent
+    check of it.
 
     Returns
     -------
     (values, weights) : ndarrays of equal length
     """
+    Y_c = float(Y_omega)
     G = ev.group
     maps = _coset_maps(G)
     ns, nx = _node_counts(ev.R, factor)
@@ -356,7 +383,7 @@ def compact_quadrature(ev: FormEvaluator, Y_c: float = 1.0, factor: float = 1.0
         else:
             z = X + 1j * y[:, None]
             zk = (Rk[0][0] * z + Rk[0][1]) / (Rk[1][0] * z + Rk[1][1])
-            V = ev(zk.real, zk.imag).values
+            V = ev(zk.real, zk.imag, conditioning=False).values
         vals.append(V.ravel())
         wts.append(W.ravel())
     heights: dict[int, float] = {}
@@ -415,7 +442,7 @@ def l2_norm(form, *, evaluator: FormEvaluator | None = None, rankin_selberg: boo
         hs = heights.get(j, [])
         if not hs or abs(sum(hs) - 1.0) > 1e-12 or max(hs) - min(hs) > 1e-15:
             raise AssertionError(f"coset translates of cusp {j} do not fill one period ({hs})")
-        val, bnd = _parseval_part(ev, j, hs[0])
+        val, bnd = strip_mass(ev, j, hs[0])
         cusp_parts.append(val)
         miss_bound += bnd
     I1, _ = _bottom_integrals(ev, maps, 1.0)

@@ -75,6 +75,9 @@ CONFIG_CASES = [
     ("bad backend", ('backend = "serial"', 'backend = "dask2"'), ["backend='dask2' is not allowed"]),
     ("address without dask", ('backend = "serial"', 'backend = "serial"\naddress = "tcp://127.0.0.1:1"'),
      ["address is only used with backend = 'dask'"]),
+    ("Omega below 1", ("[executor]", "[scan]\nenabled = true\nY_omega = 0.5\n[executor]"),
+     ["[scan] Y_omega=0.5 is not allowed", ">= 1"]),
+    ("old scan key", ("[executor]", "[scan]\nY_c = 1.0\n[executor]"), ["unknown key 'Y_c'"]),
     ("overlapping windows", ("R_min = 9.4\nR_max = 9.7", "windows = [[9.4, 9.7], [9.6, 10.0]]"), ["overlap"]),
     ("missing output", ('output = "out.h5"', ""), ["[job] output is required"]),
     ("output dir missing", ('output = "out.h5"', 'output = "nowhere/out.h5"'), ["does not exist"]),
@@ -238,7 +241,8 @@ def foreign_files(tmp_path):
 def test_files_that_are_not_ours(tmp_path, monkeypatch, capsys, foreign_files):
     monkeypatch.chdir(tmp_path)
     text, other = foreign_files
-    for cmd in (["list"], ["export", "--json", tmp_path / "x.json"], ["report", "--out", tmp_path / "rep"]):
+    for cmd in (["list"], ["export", "--json", tmp_path / "x.json"], ["report", "--out", tmp_path / "rep"],
+                ["figures", "--out", tmp_path / "figs"], ["scan"]):
         _expect_error(capsys, tmp_path, [cmd[0], tmp_path / "missing.h5", *cmd[1:]], "does not exist")
         _expect_error(capsys, tmp_path, [cmd[0], text, *cmd[1:]], "is not an HDF5 file")
         _expect_error(capsys, tmp_path, [cmd[0], other, *cmd[1:]], "not a maasscomp store")

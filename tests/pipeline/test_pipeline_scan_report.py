@@ -10,7 +10,7 @@ import pytest
 from maasscomp.config import load
 from maasscomp.errors import InputError, StoreError
 from maasscomp.pipeline.job import run_job
-from maasscomp.pipeline.report import make_report
+from maasscomp.report import make_report
 from maasscomp.pipeline.tasks import scanner
 from maasscomp.store import Store
 
@@ -48,7 +48,7 @@ def test_each_form_is_scanned_once_and_resume_skips_it(scanned):
     direct = scan_form(form, settings=ScanSettings(rtol=1e-3), form_key=key)
     assert stored["global_region"] == direct.global_region
     assert stored["global_value"] == pytest.approx(direct.global_value, rel=1e-12)
-    assert stored["compact_peak"]["value"] == pytest.approx(direct.compact_peak.value, rel=1e-12)
+    assert stored["regions"]["0"]["value"] == pytest.approx(direct.omega.value, rel=1e-12)
     assert "sup-norm scans: 1 run" in first.as_text()
 
 
@@ -73,7 +73,7 @@ def test_report_folder(scanned, tmp_path):
 
     cfg, _, _ = scanned
     rep = make_report(cfg.job.output, tmp_path / "rep")
-    for name in ("README.md", "summary.csv", "summary.md", "weyl.csv", "weyl_N1.png", "peaks.csv"):
+    for name in ("README.md", "summary.csv", "summary.md", "weyl.csv", "weyl_N1.png", "peaks.csv", "peaks.md"):
         assert (tmp_path / "rep" / name).is_file(), name
         assert name in rep.files
     figs = [f for f in rep.files if f.endswith(".png") and "peak" in f]

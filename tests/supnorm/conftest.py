@@ -10,6 +10,7 @@ DATA = Path(__file__).resolve().parent / "data"
 FORMS = DATA / "supnorm_forms.h5"
 FORMS_RS = DATA / "supnorm_forms_rs.h5"
 FORMS_GENERAL = DATA / "supnorm_forms_general.h5"
+FORMS_LARGE = DATA / "supnorm_forms_large.h5"
 
 
 def _load(path: Path) -> dict[str, object]:
@@ -57,3 +58,11 @@ def level1_form(forms_by_level):
         return min(forms_by_level[1], key=lambda f: abs(f.R - R))
 
     return get
+
+
+@pytest.fixture(scope="session")
+def large_forms() -> dict[float, object]:
+    """{100.0: the level-1 form nearest to R = 100 (1200 coefficients), 1000.0: the one nearest to
+    R = 1000} (tests/supnorm/data/supnorm_forms_large.h5)."""
+    forms = _load(FORMS_LARGE).values()
+    return {R0: min(forms, key=lambda f: abs(f.R - R0)) for R0 in (100.0, 1000.0)}

@@ -11,11 +11,16 @@ writes every confirmed form to ``tests/supnorm/data/supnorm_forms.h5``:
   L(1, sym^2 f) of conductor N^2), stored under basis_index 0 of a separate file
   ``supnorm_forms_rs.h5`` so that keys do not clash;
 * odd forms of the non-squarefree levels 4 (3 <= R <= 6.5, including a two-dimensional
-  oldform space) and 9 (2 <= R <= 4) from the multi-cusp search, in ``supnorm_forms_general.h5``.
+  oldform space) and 9 (2 <= R <= 4) from the multi-cusp search, in ``supnorm_forms_general.h5``;
+* the level-1 form nearest to R = 100 with 1200 coefficients (enough primes for L(1, sym^2 f)
+  by the approximate functional equation) and the one nearest to R = 1000 with the search's
+  own number of coefficients, in ``supnorm_forms_large.h5``
+  (``spectrum.nearest_forms``).
 
 Run from the repository root: ``python tests/supnorm/make_supnorm_forms.py`` (about 10
 minutes on 2 cores), ``python tests/supnorm/make_supnorm_forms.py rs`` and
-``python tests/supnorm/make_supnorm_forms.py general`` (under a minute each).
+``python tests/supnorm/make_supnorm_forms.py general`` (under a minute each),
+``python tests/supnorm/make_supnorm_forms.py large`` (about a minute).
 The tests skip with a message when a file is missing.
 """
 
@@ -34,6 +39,8 @@ from maasscomp.store import Store
 OUT = Path(__file__).resolve().parent / "data" / "supnorm_forms.h5"
 OUT_RS = Path(__file__).resolve().parent / "data" / "supnorm_forms_rs.h5"
 OUT_GENERAL = Path(__file__).resolve().parent / "data" / "supnorm_forms_general.h5"
+OUT_LARGE = Path(__file__).resolve().parent / "data" / "supnorm_forms_large.h5"
+PLAN_LARGE = [(100.0, 1200), (1000.0, 60)]
 PLAN_GENERAL = [(4, "odd", 3.0, 6.5), (9, "odd", 2.0, 4.0)]
 PLAN = [(1, 20.0, 400), (2, 10.0, 200), (5, 10.0, 200), (6, 10.0, 200), (11, 10.0, 200)]
 # (level, parity, Atkin-Lehner signs, R window): windows around the first newform of the class
@@ -58,7 +65,20 @@ def _task_general(N: int, parity: str, lo: float, hi: float):
     return list(search_forms(gamma0(N), lo, hi, (parity,)).forms)
 
 
+def _task_large(R0: float, n_coeffs: int):
+    from maasscomp.spectrum import nearest_forms
+
+    return list(nearest_forms(gamma0(1), R0, k=1, settings=SearchSettings(n_coeffs=n_coeffs)).forms)
+
+
 def main() -> int:
+    if sys.argv[1:] == ["large"]:
+        out = Parallel(n_jobs=2)(delayed(_task_large)(*t) for t in PLAN_LARGE)
+        forms = [f for fs in out for f in fs]
+        with Store.open(OUT_LARGE, "w") as st:
+            st.add_forms(forms, config_text="tests/supnorm/make_supnorm_forms.py large")
+        print(f"wrote {len(forms)} forms to {OUT_LARGE}")
+        return 0
     if sys.argv[1:] == ["general"]:
         out = Parallel(n_jobs=2)(delayed(_task_general)(*t) for t in PLAN_GENERAL)
         forms = [f for fs in out for f in fs]

@@ -17,7 +17,6 @@ from maasscomp.hejhal.types import SolverParams, SymmetryClass
 from maasscomp.spectrum.form import Form
 from maasscomp.supnorm import FormEvaluator
 from maasscomp.supnorm._coeffs import divisor_count, smallest_prime_factor
-from maasscomp.supnorm.norm import _gl_on, _interval_quadform
 
 
 def _random_form(parity: str, R: float = 11.0, M: int = 40, seed: int = 0) -> Form:
@@ -56,17 +55,6 @@ def test_derivatives_match_finite_differences(parity):
     assert abs(Fyy - (f(x0, y0 + h2) - 2 * F + f(x0, y0 - h2)) / h2**2) < 1e-5 * scale2
     fxy = (f(x0 + h2, y0 + h2) - f(x0 + h2, y0 - h2) - f(x0 - h2, y0 + h2) + f(x0 - h2, y0 - h2)) / (4 * h2**2)
     assert abs(Fxy - fxy) < 1e-5 * scale2
-
-
-def test_interval_quadform_against_quadrature():
-    rng = np.random.default_rng(3)
-    m = 9
-    u, v = rng.normal(size=m), rng.normal(size=m)
-    n = np.arange(1, m + 1)
-    for a, b in ((-0.5, 0.5), (0.1, 0.37), (-0.31, -0.02), (0.2, 1.4)):
-        x, w = _gl_on(a, b, 80)
-        g = np.cos(2 * np.pi * np.outer(x, n)) @ u + np.sin(2 * np.pi * np.outer(x, n)) @ v
-        assert abs(_interval_quadform(u, v, a, b) - np.dot(w, g * g)) < 1e-12 * np.dot(w, g * g)
 
 
 def test_arithmetic_tables():
