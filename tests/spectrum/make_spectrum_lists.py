@@ -91,15 +91,16 @@ def _form_row(f) -> dict:
 
 def run(args: argparse.Namespace) -> int:
     from maasscomp.groups import gamma0
-    from maasscomp.spectrum.search import SearchSettings, search_classes, symmetry_classes
+    from maasscomp.spectrum.search import SearchSettings, search_forms
 
     g = gamma0(args.level)
-    settings = SearchSettings(Y1_frac=args.y1, Y2_frac=args.y2, lfunction_check=False)
+    settings = SearchSettings(Y1_frac=args.y1, Y2_frac=args.y2, offset=args.offset,
+                              steps_per_spacing=args.steps_per_spacing, lfunction_check=False)
     wd = Path(args.workdir) / f"N{args.level}" / args.tag
     wd.mkdir(parents=True, exist_ok=True)
-    meta = {"level": args.level, "step": args.step, "y1": args.y1, "y2": args.y2,
-            "chunk": args.chunk, "commit": _commit(),
-            "method": "search_classes" if g.is_squarefree else "search_window_general"}
+    meta = {"level": args.level, "offset": args.offset, "steps_per_spacing": args.steps_per_spacing,
+            "y1": args.y1, "y2": args.y2, "chunk": args.chunk, "commit": _commit(),
+            "method": "search_forms"}
     meta["lo"], meta["hi"] = args.lo, args.hi
     # one settings file per run (range), so runs of one tag over different ranges coexist
     (wd / f"settings_{args.lo:.6f}_{args.hi:.6f}.json").write_text(json.dumps(meta))
@@ -110,18 +111,10 @@ def run(args: argparse.Namespace) -> int:
         if out.exists():
             continue
         t0, c0 = time.perf_counter(), time.process_time()
-        if g.is_squarefree:
-            res = search_classes(g, symmetry_classes(g), float(a), float(b), settings, step=args.step)
-            forms = [f for r in res.values() for f in r.forms]
-            rejected = sum(1 for r in res.values() for c in r.candidates if not c.accepted)
-        else:
-            from maasscomp.spectrum.general import search_window_general
-
-            forms, rejected = [], 0
-            for par in ("even", "odd"):
-                r = search_window_general(g, par, float(a), float(b), settings, step=args.step)
-                forms += list(r.forms)
-                rejected += sum(1 for c in r.candidates if not c.accepted)
+        res = search_forms(g, float(a), float(b), settings=settings)
+        # the window is closed at both ends: a form on a chunk edge belongs to the chunk above
+        forms = [f for f in res.forms if f.R > a or a == edges[0]]
+        rejected = len(res.rejected)
         rec = {"lo": float(a), "hi": float(b), "forms": [_form_row(f) for f in forms],
                "rejected": rejected, "wall": time.perf_counter() - t0,
                "cpu": time.process_time() - c0, "settings": meta}
@@ -161,7 +154,7 @@ def _load(wd: Path, lo: float, hi: float) -> tuple[list[dict], list[dict], float
         cpu += rec["cpu"]
         rows += [r for r in rec["forms"] if lo <= r["R"] <= hi]
         m = rec.get("settings") or _settings_for(wd, rec["lo"], rec["hi"])
-        key = {k: m[k] for k in ("step", "y1", "y2", "chunk", "commit", "method")}
+        key = {k: m.get(k) for k in ("step", "offset", "steps_per_spacing", "y1", "y2", "chunk", "commit", "method")}
         if key not in used:
             used.append(key)
     covered.sort()
@@ -230,7 +223,9 @@ def merge(args: argparse.Namespace) -> int:
         f"{len(tags)} independent runs:",
     ]
     for t, (metas, rows, wall, cpu) in runs.items():
-        desc = "; ".join(f"grid step {m['step']:g}, heights Y1 = {m['y1']} Y0 and Y2 = {m['y2']} Y0, "
+        desc = "; ".join((f"grid step {m['step']:g}, " if m.get("step") is not None else
+                          f"expansion points {m['steps_per_spacing']:g} per mean spacing, lattice offset {m['offset']:g}, ")
+                         + f"heights Y1 = {m['y1']} Y0 and Y2 = {m['y2']} Y0, "
                          f"chunks of {m['chunk']:g}, commit {m['commit']}" for m in metas)
         header.append(f"#   run {t}: {desc}; {len(per_run[t])} forms, {cpu / 3600:.2f} CPU h")
     header += [
@@ -269,7 +264,8 @@ def merge(args: argparse.Namespace) -> int:
 def meta_method(runs: dict) -> str:
     m = {meta["method"] for metas, _, _, _ in runs.values() for meta in metas}
     names = {"search_classes": "maasscomp.spectrum.search.search_classes",
-             "search_window_general": "maasscomp.spectrum.general.search_window_general"}
+             "search_window_general": "maasscomp.spectrum.general.search_window_general",
+             "search_forms": "maasscomp.spectrum.search.search_forms"}
     return ", ".join(names[x] for x in sorted(m))
 
 
@@ -280,7 +276,9 @@ def main(argv: list[str] | None = None) -> int:
     r.add_argument("--level", type=int, required=True)
     r.add_argument("--lo", type=float, required=True)
     r.add_argument("--hi", type=float, required=True)
-    r.add_argument("--step", type=float, required=True)
+    r.add_argument("--offset", type=float, default=0.0,
+                   help="shift of the lattice of expansion points, in point spacings (differs per run)")
+    r.add_argument("--steps-per-spacing", type=float, default=1.0)
     r.add_argument("--y1", type=float, default=0.92)
     r.add_argument("--y2", type=float, default=0.80)
     r.add_argument("--chunk", type=float, default=0.1)
