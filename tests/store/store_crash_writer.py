@@ -10,10 +10,12 @@ COMPACT_EVERY transactions, so kills also land inside compactions.
 
 from __future__ import annotations
 
+import os
 import sys
 
 
 def main() -> None:
+    parent = os.getppid()
     from maasscomp.store import Store
     from tests.store.store_form_factory import indexed_form
 
@@ -25,6 +27,9 @@ def main() -> None:
         print("ready", flush=True)
         i = start
         while i < start + count:
+            if os.getppid() != parent:
+                # the test that started us is gone (interrupted run): stop instead of writing forever
+                return
             chunk = [indexed_form(j) for j in range(i, i + batch)]
             with st.transaction():
                 keys = st.add_forms(chunk)
