@@ -560,7 +560,7 @@ class HighPrecisionForm:
         the storage convention (docs/theory.md, conventions); empty otherwise.
     al_eigenvalues : tuple of (Q, str, float)
         Multi-cusp system only: for every exact divisor Q > 1 of N, the eigenvalue eta_Q of
-        W_Q read off c'_infinity(1) of f|W_Q (docs/theory-additions/levels.md §L.1) as a
+        W_Q read off c'_infinity(1) of f|W_Q (docs/theory.md §9.1) as a
         decimal string, and max_n |c'_infinity(n) - eta_Q c_infinity(n)| over the first
         third of the coefficients (small for an Atkin-Lehner eigenform).
     """
