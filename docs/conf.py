@@ -234,8 +234,25 @@ def _process_docstring(app, what, name, obj, options, lines) -> None:
     lines[:] = plain_docstring_to_rst(lines)
 
 
+# Two modules define a class DirichletCharacter (maasscomp.groups.characters and
+# maasscomp.spectrum.scattering); an annotation that names it without its module outside those
+# two modules (maasscomp.store: the one of maasscomp.groups) would be an ambiguous reference.
+_UNQUALIFIED_CHAR = re.compile(r"(?<![\w.])DirichletCharacter\b")
+
+
+def _qualify_signature(app, what, name, obj, options, signature, return_annotation):
+    if name.startswith("maasscomp.store."):
+        full = "maasscomp.groups.characters.DirichletCharacter"
+        if signature:
+            signature = _UNQUALIFIED_CHAR.sub(full, signature)
+        if return_annotation:
+            return_annotation = _UNQUALIFIED_CHAR.sub(full, return_annotation)
+    return signature, return_annotation
+
+
 def setup(app):
     app.connect("builder-inited", _write_api_pages)
+    app.connect("autodoc-process-signature", _qualify_signature)
     # before numpydoc (priority 500), which then parses the sections
     app.connect("autodoc-process-docstring", _process_docstring, priority=400)
     return {"parallel_read_safe": True}

@@ -12,9 +12,8 @@ Contents (file names fixed, so scripts can rely on them):
     For every level whose searched R range covers all symmetry classes: forms found
     against Weyl's law (:func:`maasscomp.spectrum.weyl.completeness`) window by window,
     and a figure of N(T) and W(T) with the remainder N(T) - W(T).
-``peaks.csv``, ``regions.csv``, ``shares.csv``, ``fits.csv``, ``beats.csv``, ``peaks.md``,
-the figures of :data:`PEAK_FIGURES` and ``form_<key>.png`` maps
-    The peak study of the sup-norm scans (where the maximum lies, predictions, fits, the
+``peaks.csv``, ``regions.csv``, ``shares.csv``, ``fits.csv``, ``beats.csv``, ``peaks.md``, figures
+    The figures are those of :data:`PEAK_FIGURES` and the ``form_<key>.png`` maps. The peak study of the sup-norm scans (where the maximum lies, predictions, fits, the
     fraction of forms whose transition peak beats the bulk), when the store holds scans; the
     same files as ``maasscomp figures`` writes (:func:`write_peak_files`).
 """
@@ -286,7 +285,7 @@ def peak_summary(results, study: dict, map_names: Sequence[str], notes: Sequence
         f"{n} forms scanned (levels {', '.join(map(str, levels))}, R from {min(r.R for r in results):.4g} to "
         f"{max(r.R for r in results):.5g}). Values are max |f|/‖f‖ with ‖f‖² = ∫ |f|² dμ over Γ0(N)\\H.",
         "",
-        "Regions, for each cusp in its own period-1 coordinate (docs/theory-additions/peaks.md): the **fixed "
+        "Regions, for each cusp in its own period-1 coordinate (docs/theory.md §11.1): the **fixed "
         f"compact set Ω** = points whose highest representative has height ≤ Y_Ω = {', '.join(f'{y:g}' for y in Yo)}; "
         "the **transition zone** of cusp j = heights ≥ Y_T = (R − c_T R^(1/3)) / (2π n0), c_T = |a_1| 2^(−1/3) = "
         "1.8558 (a_1 the first zero of Ai, DLMF Table 9.9.1; n0 the first non-zero frequency), where the first "

@@ -1,7 +1,7 @@
 """Peak statistics across scanned forms: where the maximum of |f|/||f|| lies, and why.
 
 Input: :class:`maasscomp.supnorm.scan.ScanResult` objects (one per form). Regions, predictions
-and constants are those of the scanner (docs/theory-additions/peaks.md):
+and constants are those of the scanner (docs/theory.md §11):
 
 * per form and region: the peak, its location relative to the transition height Y_T, the grid
   guarantee, the region's area and L2 mass, the prediction (first term for transition zones,

@@ -198,7 +198,7 @@ def _kt(R: arb, x: arb, prec: int) -> arb:
     """K~_R(x) = e^{pi R/2} K_{iR}(x) to absolute accuracy about 2^-prec (arb, DLMF 10.25).
 
     Absolute, not relative, accuracy is asked for: every entry of Hejhal's system is
-    compared with O(1) entries (max |K~_R| ~ 0.85 R^{1/6}, docs/theory.md §3), and tiny
+    compared with O(1) entries (max_y sqrt(y)|K~_R(2 pi y)| ~ 0.85 R^{1/6}, docs/theory.md §3.3), and tiny
     values far beyond the turning point would otherwise need twice the precision.  The
     cancellation inside K_{iR}(x) for x < R costs about pi R/(2 ln 2) bits (docs/theory.md
     §4.3); the working precision is raised until the radius is small enough.
@@ -560,7 +560,7 @@ class HighPrecisionForm:
         the storage convention (docs/theory.md, conventions); empty otherwise.
     al_eigenvalues : tuple of (Q, str, float)
         Multi-cusp system only: for every exact divisor Q > 1 of N, the eigenvalue eta_Q of
-        W_Q read off c'_infinity(1) of f|W_Q (docs/theory-additions/levels.md §L.1) as a
+        W_Q read off c'_infinity(1) of f|W_Q (docs/theory.md §9.1) as a
         decimal string, and max_n |c'_infinity(n) - eta_Q c_infinity(n)| over the first
         third of the coefficients (small for an Atkin-Lehner eigenform).
     """

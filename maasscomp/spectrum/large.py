@@ -17,7 +17,7 @@ factorisations and Kt evaluations. This module spends them where they are needed
    its null vector, i.e. the coefficients. Consistency check: between consecutive centres
    the number of roots found and the sign change of det A (known from the LU
    factorisations) must agree in parity; where they do not, a centre is added in between.
-3. Verification (docs/theory.md §1.4, as in the window search): each root of the scan
+3. Verification (docs/theory.md §7.4 and §10.2, as in the window search): each root of the scan
    height Y1 is followed by Newton's method at a second height Y2 (an eigenvalue does not
    depend on Y, a spurious root of the truncated system does): the two roots must agree
    within ``R_tol`` (relative), the coefficients a(2..8) of the two solutions within

@@ -13,7 +13,7 @@ the form and the newforms already known at lower levels (as :class:`ParentForm`)
   (:func:`maasscomp.spectrum.twists.label_twist`) when it is a quadratic twist of a parent.
 
 The meaning of every key is documented in those modules and in
-docs/theory-additions/levels.md §L.2-§L.5.
+docs/theory.md §9.2-§9.5.
 """
 
 from __future__ import annotations

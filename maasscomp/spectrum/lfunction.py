@@ -43,11 +43,12 @@ Symmetric square (degree 3, conductor N^2 for squarefree N; root number +1):
 
 L(s, sym^2 f) = zeta^{(N)}(2s) sum_n a(n^2) n^{-s} (Gelbart-Jacquet 1978 for the
 analytic continuation; gamma factor and conductor as derived in docs/theory.md §5.3;
-level 1 checked numerically there, squarefree level derived, not verified).
+level 1 checked numerically there; squarefree levels 2, 3, 5, 11 checked by the functional
+equation with conductor N^2 in tests/spectrum/test_lfunction_checks.py, slow).
 
 Rankin-Selberg (docs/theory.md §5.1-5.2): ||f||^2 = N L(1, sym^2 f) / (8 cosh(pi R)) in
-the cos/sin normalisation (level 1 checked numerically against quadrature; level N
-derived, not verified).
+the cos/sin normalisation (checked against quadrature at level 1 and for newforms of
+levels 2, 5, 11 in tests/supnorm/test_supnorm_norms.py).
 """
 
 from __future__ import annotations
@@ -455,8 +456,9 @@ def rankin_selberg_norm2(
 
     ||f||^2 = N L(1, sym^2 f) / (8 cosh(pi R)) over Gamma0(N)\\H with dmu = dx dy/y^2,
     cos/sin normalisation a(1) = 1 (docs/theory.md §5.1, level 1 checked numerically
-    there; §5.2 for squarefree N, derived, not verified).  ||f||^2 itself underflows
-    for R above about 220, so the function returns
+    there; §5.2 for squarefree N, checked against quadrature for newforms of levels 2, 5,
+    11 in tests/supnorm/test_supnorm_norms.py::test_squarefree_level_formula).  ||f||^2
+    itself underflows for R above about 220, so the function returns
 
         e^{pi R} ||f||^2 = N L(1, sym^2 f) / (4 (1 + e^{-2 pi R})),
 

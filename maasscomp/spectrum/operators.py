@@ -4,7 +4,7 @@ Everything here works from the stored Fourier coefficients of a :class:`Form` at
 (docs/theory.md, conventions: c_j(n) in the coordinates of the group's scaling matrix
 sigma_j = M_j / sqrt(det M_j)), so no evaluation of the form is needed.
 
-Normaliser elements (docs/theory-additions/levels.md §L.1, derived here)
+Normaliser elements (docs/theory.md §9.1, derived here)
 -----------------------------------------------------------------------
 Let W be an integer matrix of determinant D > 0 that normalises Gamma0(N) (an Atkin--Lehner
 matrix W_Q, Q || N: Atkin & Lehner, Math. Ann. 185 (1970) 134-160). For a Maass form f on

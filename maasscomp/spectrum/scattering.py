@@ -8,7 +8,7 @@ Forms*, 2nd ed. 2002, Thm 3.4 and (3.21)):
 
 where c runs over the lower-left entries of sigma_a^{-1} Gamma0(N) sigma_b and S_ab(0, 0; c)
 counts the classes d mod c.  This module evaluates that Dirichlet series *exactly*
-(docs/theory-additions/weyl.md §W1, derived by the project):
+(docs/theory.md §8.1, derived by the project):
 
 * for the cusp a = A_a(infinity) of width w_a (A_a in SL2(Z)), the entries with lower-left
   entry c = gamma sqrt(w_a w_b) correspond one-to-one to the primitive vectors
@@ -29,7 +29,7 @@ counts the classes d mod c.  This module evaluates that Dirichlet series *exactl
 
 The description is per ordered pair of cusp classes; adding a nebentypus later means
 weighting the counted classes by the character and keeping only the cusps singular for
-it (docs/theory-additions/weyl.md §W1).
+it (docs/theory.md §8.1).
 
 For the determinant the characters decouple: in a basis of character sums over each cusp
 class the matrix is block diagonal with exactly one L-ratio per block, so
@@ -338,7 +338,7 @@ class ScatteringData:
 
         Beyond p^{v_p(N)} | g a further factor p multiplies the count by p and shifts the
         residue of the lower-left entry mod N/p^{v_p(N)} by p, so the character sum of the
-        tail is geometric with ratio p tau p^{-2s} (docs/theory-additions/weyl.md §W1).
+        tail is geometric with ratio p tau p^{-2s} (docs/theory.md §8.1).
         """
         p, e = self.primes[t], self.exps[t]
         q = p**e
@@ -687,7 +687,7 @@ class ScatteringDeterminant:
 
     chi* the primitive characters (conductor f_chi) behind the characters chi mod N with
     n_chi > 0, Rt_p = R_p times the Euler factors that turn L(s, chi mod N) into
-    L(s, chi*).  On the critical line (docs/theory-additions/weyl.md §W2)
+    L(s, chi*).  On the critical line (docs/theory.md §8.2)
 
         theta(t) - theta(0) = sum_chi n_chi [ -2 t log(f_chi/pi) - 2 arg Gamma(1/2 + it)
                                               - 2 (arg L(1 + 2it, chi*) - arg L(1, chi*)) ]

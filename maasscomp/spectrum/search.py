@@ -1,6 +1,6 @@
 """Every eigenvalue of the symmetry classes of any Gamma0(N) in an R window, with multiplicities.
 
-The one search of the project (docs/theory-additions/search.md; docs/theory.md §1.4). For
+The one search of the project (docs/theory.md §7). For
 each class the square Hejhal matrix A(R) (:mod:`maasscomp.hejhal.family` picks the
 Atkin--Lehner one-cusp system at squarefree levels and the multi-cusp system elsewhere) is
 singular exactly at the eigenvalues of the class and at spurious points of the truncated

@@ -1,6 +1,6 @@
 """Statistical completeness tests for lists of eigenvalues, and the old/new count identity.
 
-Two tests with power beyond a window count (docs/theory-additions/weyl.md §W4-W5):
+Two tests with power beyond a window count (docs/theory.md §8.4-§8.5):
 
 * **Turing-style integral test.**  With S(t) = N(t) - W(t) the Weyl remainder of the list,
   F(t) = int_{T_min}^t S(u) du stays within a narrow band for a complete list (the mean of S
@@ -137,7 +137,7 @@ def as_entries(found: Sequence[Any] | np.ndarray) -> Entries:
 # sigma_F(T): standard deviation of int_s^t S(u) du over intervals longer than the
 # correlation length of S, for complete lists computed by the project; fitted by
 # benchmarks/bench_completeness_power.py as sigma_F = a * (n_classes / 2)^(1/2) * T^b with
-# n_classes = 2 * 2^omega(N) symmetry classes (see docs/theory-additions/weyl.md §W4 for the
+# n_classes = 2 * 2^omega(N) symmetry classes (see docs/theory.md §8.4 and §8.6 for the
 # data and the fit).
 _SIGMA_F_A = 0.2
 _SIGMA_F_B = 0.0
@@ -181,7 +181,7 @@ def turing_bound(level: int, T: float | np.ndarray, z: float = 4.0) -> float | n
 
     A complete list exceeds it with the probability that a (roughly Gaussian) quantity
     exceeds z standard deviations somewhere in the range; the measured false-alarm rates
-    are stated in docs/theory-additions/weyl.md §W6.
+    are stated in docs/theory.md §8.6.
     """
     return z * turing_sigma(level, T)
 

@@ -6,7 +6,7 @@ The counting function is
                newforms and oldforms) with 0 < R_j <= T},
 
 and the smooth part of its trace-formula expansion, for every level N, is
-(docs/theory-additions/weyl.md §W2-W3, derived by the project)
+(docs/theory.md §8.2-§8.3, derived by the project)
 
     W_N(T) = (mu/12) T^2 - (2 h T / pi) log((T/e) sqrt(2/pi)) - (T/pi) log A_N + C_N
              + osc_N(T),
@@ -703,7 +703,7 @@ def completeness(
     """Test a list of eigenvalues for completeness against Weyl's law, window by window.
 
     Pure bookkeeping: no search is done.  Three tests (their power and false-alarm rates
-    are measured in docs/theory-additions/weyl.md §W6 by
+    are measured in docs/theory.md §8.6 by
     benchmarks/bench_completeness_power.py):
 
     1. **count** (change-point on the remainder): S(T) = N(T) - W(T) is mean-zero for a

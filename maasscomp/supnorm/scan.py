@@ -1,7 +1,7 @@
 """Sup-norm scanner: the maximum of |f| / ||f|| on the transition zones, a fixed compact set
 and the region between them, with predictions beside every measurement.
 
-Regions (docs/theory-additions/peaks.md §1). Every point z of Gamma0(N)\\H has a highest
+Regions (docs/theory.md §11.1). Every point z of Gamma0(N)\\H has a highest
 representative: the cusp j and the point w = sigma_j^{-1} gamma z of largest height y* in
 any cusp's period-1 coordinate (``Gamma0.pullback``). With n0_j the first frequency whose
 coefficient c_j(n) is non-zero and
@@ -1325,7 +1325,7 @@ def scan_form(form, *, settings: ScanSettings | None = None, norm: NormResult | 
 
 def _sym2_from_norm(form, ev: FormEvaluator, norm: NormResult) -> float:
     """L(1, sym^2 f) = 4 (1 + e^{-2 pi R}) ||F||^2 / (N |c(1)|^2) for newforms of squarefree level
-    (Rankin--Selberg, docs/theory.md §5.1-5.2 and docs/theory-additions/peaks.md §3); NaN for
+    (Rankin--Selberg, docs/theory.md §5.1-5.2 and §11.3); NaN for
     other forms."""
     G = ev.group
     if not (form.level == 1 or (G.is_squarefree and form.is_new)):

@@ -9,7 +9,7 @@ independent construction of oldforms at every cusp.
   their headers).
 * :func:`lift_at_cusps` builds g(d z) at every cusp of Gamma0(N) from the coefficients of a
   level-1 form g, by a derivation independent of maasscomp.spectrum.operators
-  (docs/theory-additions/levels.md §L.6): with U = diag(d, 1) M_j = gamma [[alpha, beta],
+  (docs/theory.md §9.6): with U = diag(d, 1) M_j = gamma [[alpha, beta],
   [0, delta]] (gamma in SL2(Z), Hermite form), g(d sigma_j z) = g((alpha z + beta)/delta),
   so with r = alpha/delta (an integer) c_j(m r) = sqrt(r) a(m) e(-+ m beta/delta).
 """

@@ -1,7 +1,7 @@
 """Power of the completeness tests on complete lists (lean version for the default run).
 
 The full measurement is benchmarks/bench_completeness_power.py; its rates are stated in
-docs/theory-additions/weyl.md §W6 and in maasscomp.spectrum.weyl.completeness.
+docs/theory.md §8.6 and in maasscomp.spectrum.weyl.completeness.
 
 Outside check: Weyl's law for PSL(2,Z) (R. Steil, DESY 94-028 (1994); H. Then, Math. Comp.
 74 (2005); from memory of these sources) and the trace formula behind it.  The lists are

@@ -110,9 +110,9 @@ def test_level1_form_is_old_sigma0_times_with_coordinates_slow(N):
 
 
 def test_w4_and_hecke_on_the_searched_oldspace_of_level_4():
-    """W_4 on (g(z), g(2z), g(4z)) is the permutation d -> 4/d (docs/theory-additions/levels.md
-    §L.2); U_2 is [[a(2), sqrt 2, 0], [-1/sqrt 2, 0, sqrt 2], [0, 0, 0]] and T_3 = a(3) I
-    (§L.3), all from the searched forms' own coefficients."""
+    """W_4 on (g(z), g(2z), g(4z)) is the permutation d -> 4/d (docs/theory.md §9.2);
+    U_2 is [[a(2), sqrt 2, 0], [-1/sqrt 2, 0, sqrt 2], [0, 0, 0]] and T_3 = a(3) I
+    (§9.3), all from the searched forms' own coefficients."""
     G, at, descs = _old_members(4)
     ds = [1, 2, 4]
     X = np.array([[d.components[0].coordinates[k] for k in ds] for d in descs]).T

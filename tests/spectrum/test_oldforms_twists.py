@@ -172,7 +172,7 @@ def test_label_form_writes_every_level_label():
     assert lab.old is not None and lab.twist is None
     assert abs(lab.old.components[0].coordinates[3] - 1.0) < 1e-12
     assert set(old.extra) >= {"atkin_lehner", "old_parents", "old_fit_residual", "old_fit_n"}
-    # g(3z) is fixed by W_9 (d = 3 -> 9 * 1 / 3 = 3, docs/theory-additions/levels.md §L.2)
+    # g(3z) is fixed by W_9 (d = 3 -> 9 * 1 / 3 = 3, docs/theory.md §9.2)
     assert old.extra["atkin_lehner"]["9"]["sign"] == 1
     tw = synthetic_form(9, "even", g.R, twist_coefficients(g.coeffs[:M], -3)[None, :])
     lab = label_form(G, tw, level1_parents())

@@ -8,14 +8,14 @@ Fast checks without a search. Outside facts and their sources:
 * For squarefree N the cusp W_Q(infinity) has scaling matrix W_Q/sqrt(Q) (docs/theory.md §1.1,
   derived there).
 * Oldforms g(dz) of a level-1 form at every cusp: tests/spectrum/levels_helpers.lift_at_cusps,
-  derived independently of the module under test (docs/theory-additions/levels.md §L.6).
+  derived independently of the module under test (docs/theory.md §9.6).
 * W_Q on the g(dz), g of level 1: g(d W_Q z) = g(d' z), d' = Q d2/d1 with d1 = gcd(d, Q),
-  d2 = d/d1 (derived in docs/theory-additions/levels.md §L.2); in particular W_4 acts on
+  d2 = d/d1 (derived in docs/theory.md §9.2); in particular W_4 acts on
   (g(z), g(2z), g(4z)) as the permutation matrix [[0,0,1],[0,1,0],[1,0,0]].
 * Hecke operators in the normalisation c(1) = 1: T_p c(n) = c(pn) + c(n/p) (p not dividing N),
   U_p c(n) = c(pn) (p | N), common practice (Iwaniec, Topics in Classical Automorphic Forms
   (1997) §6, holomorphic case); U_p on (g, g(pz)) is [[a(p), sqrt p], [-1/sqrt p, 0]]
-  (derived, docs/theory-additions/levels.md §L.3).
+  (derived, docs/theory.md §9.3).
 * a(n) of the first PSL(2,Z) form: data/reference/psl2z_coeffs_computed.csv (project
   computation; its outside checks are named in its header).
 """
@@ -116,7 +116,7 @@ def _lift_basis(N: int, M: int = 40):
 
 
 def _predicted_permutation(N: int, Q: int) -> np.ndarray:
-    """W_Q on (g(dz))_{d | N}: g(dz) -> g(d'z), d' = Q d2/d1 (docs/theory-additions/levels.md §L.2)."""
+    """W_Q on (g(dz))_{d | N}: g(dz) -> g(d'z), d' = Q d2/d1 (docs/theory.md §9.2)."""
     ds = divisors(N)
     P = np.zeros((len(ds), len(ds)))
     for i, d in enumerate(ds):

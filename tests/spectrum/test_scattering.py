@@ -198,7 +198,7 @@ def test_phase_decomposition_matches_the_determinant(N):
 def test_prime_power_closed_forms():
     """det Phi_{p^e}(s) = +-phi_1(s)^h p^{m(1-2s)} F_p(s)^{h-1}, F_p = (p^{2-2s}-1)/(p^{2s}-1),
     for the prime powers whose characters psi with psi^2 = 1 only (derived by the project,
-    docs/theory-additions/weyl.md §W2): m = 1, 4, 10 (N = 4, 8, 16), 1, 6 (N = 9, 27)."""
+    docs/theory.md §8.2): m = 1, 4, 10 (N = 4, 8, 16), 1, 6 (N = 9, 27)."""
     cases = {4: 1, 8: 4, 16: 10, 9: 1, 27: 6}
     with mpmath.workdps(30):
         s = mpmath.mpc(0.83, 2.1)

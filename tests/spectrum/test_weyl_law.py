@@ -152,7 +152,7 @@ def test_bad_T_raise(bad):
 def test_terms_of_non_squarefree_levels():
     """Index, cusps and elliptic points (Diamond & Shurman 2005, §3.8-3.9: N = 4: mu = 6,
     h = 3, nu2 = nu3 = 0; N = 9: mu = 12, h = 4; N = 25: mu = 30, h = 6, nu2 = 2) and the
-    scattering data derived by the project (docs/theory-additions/weyl.md §W3)."""
+    scattering data derived by the project (docs/theory.md §8.3)."""
     t4, t9, t25 = weyl_terms(4), weyl_terms(9), weyl_terms(25)
     assert (t4.mu, t4.n_cusps, t4.nu2, t4.nu3) == (6, 3, 0, 0)
     assert (t9.mu, t9.n_cusps) == (12, 4) and (t25.mu, t25.n_cusps, t25.nu2) == (30, 6, 2)

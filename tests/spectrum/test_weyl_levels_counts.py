@@ -3,7 +3,7 @@
 The outside check is the trace formula itself (Selberg's trace formula for Gamma0(N):
 H. Iwaniec, *Spectral Methods of Automorphic Forms*, 2nd ed. 2002, Thm 10.2; D. A. Hejhal,
 Springer LNM 1001, 1983), from which the project derived W_N
-(docs/theory-additions/weyl.md §W3).  The lists of eigenvalues are our own:
+(docs/theory.md §8.3).  The lists of eigenvalues are our own:
 data/reference/weyl_level{4,8,9}_R12.csv, computed here with maasscomp
 (a fine-grid search of the project, two independent fine-grid runs; see the
 file headers and tests/spectrum/make_spectrum_lists.py).  A list is compared with the law,
