@@ -707,7 +707,7 @@ def keys_markdown() -> str:
         f"{MAX_GRID_POINTS:,} in the job.",
         "",
         "`[job] size_limits = false` (or `--no-size-limits`) lifts them. Never lifted: R must",
-        "stay inside the range of the K-Bessel function (`maasscomp.special.R_MAX`, 10^4",
+        "stay inside the range of the K-Bessel function (`maasscomp.special.R_MAX`, 10^5",
         "today) less the 0.001 that every chunk is searched beyond its ends; a grid step",
         "must be at least 1e-10 * max(1, R_max) (finer steps cannot move R in double",
         "precision); one task must fit in `memory_limit_gb`.",
