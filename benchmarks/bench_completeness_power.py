@@ -197,7 +197,10 @@ def main() -> None:
         if hi - lo >= 8 * B:
             msg = []
             for d in (0.25 * B, 0.5 * B, B, 1.5 * B, 2 * B):
-                xs = rng.choice(R[(R > lo + 4 * B) & (R < hi - d)], size=min(30, len(R)), replace=False)
+                cand = R[(R > lo + 4 * B) & (R < hi - d)]
+                if cand.size == 0:
+                    continue
+                xs = rng.choice(cand, size=min(30, cand.size), replace=False)
                 hits = 0
                 for x in xs:
                     k = int(np.searchsorted(R, x))
