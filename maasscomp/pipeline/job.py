@@ -499,7 +499,31 @@ def _weyl_summary(st, cfg: Config, plan: Plan, summary: JobSummary) -> list[str]
             f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in rep.flagged))
         lines.append(f"level {N}, R in [{a:g}, {b:g}]: {rep.total_found} forms, "
                      f"{rep.total_expected:.2f} expected by Weyl's law; {state}")
+        lines += _window_test_lines(rep)
     return lines
+
+
+#: The run summary lists every window's tests up to this many windows per range (beyond it only
+#: the flagged ones; the report lists all of them).
+_SUMMARY_WINDOWS = 12
+
+
+def _window_test_lines(rep) -> list[str]:
+    """One line per window: Turing-style integral against its bound, the bounds on missing forms
+    it gives, and the small-gap count against Poisson (docs/theory.md §8.4-8.5)."""
+    ws = rep.windows if len(rep.windows) <= _SUMMARY_WINDOWS else rep.flagged
+    out = []
+    for w in ws:
+        most = "" if w.missing_max is None else f", at most {w.missing_max}"
+        out.append(f"  ({w.T_lo:.4f}, {w.T_hi:.4f}]: Turing integral {w.turing_integral:+.3f} "
+                   f"(bound {w.turing_bound:.3f}): at least {w.missing_min} missing{most}; "
+                   f"same-class gaps < {rep.gap_fraction:g} x mean spacing: {w.small_gaps} "
+                   f"(Poisson {w.small_gaps_expected:.2f}, p = {w.spacing_p:.2g})"
+                   + (f"; flagged: {', '.join(w.reasons)}" if w.flagged else ""))
+    if len(rep.windows) > _SUMMARY_WINDOWS:
+        out.append(f"  ({len(rep.windows)} windows; only flagged ones listed here, every one in "
+                   "'maasscomp report')")
+    return out
 
 
 def _plan_keys(st, cfg: Config, plan: Plan) -> list[str]:

@@ -23,6 +23,7 @@ from __future__ import annotations
 from collections import defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any, Sequence
 
 import numpy as np
@@ -35,7 +36,11 @@ SUMMARY_COLUMNS = (Column("level"), Column("class"), Column("forms"), Column("ne
                    Column("unclassified"), Column("R_min", digits=12), Column("R_max", digits=12),
                    Column("max_R_error", digits=2), Column("max_hecke_residual", digits=2))
 WEYL_COLUMNS = (Column("level"), Column("T_lo"), Column("T_hi"), Column("found"), Column("expected", fixed=2),
-                Column("deficit", fixed=2), Column("remainder_end", fixed=3), Column("flagged"))
+                Column("deficit", fixed=2), Column("remainder_end", fixed=3), Column("drop_score", fixed=3),
+                Column("turing_integral", fixed=4), Column("turing_bound", fixed=4), Column("missing_min"),
+                Column("missing_max"), Column("n_gaps"), Column("small_gaps"),
+                Column("small_gaps_expected", fixed=3), Column("spacing_p"), Column("flagged"),
+                Column("reasons"), Column("research"))
 
 
 @dataclass
@@ -130,18 +135,31 @@ def _weyl_figure(level: int, R: np.ndarray, T_lo: float, T_hi: float, path: Path
     fig.savefig(path, dpi=110)
 
 
+def _entries(rows: list[dict]) -> list[SimpleNamespace]:
+    """Form-like records (R, class, new/old, multiplicity) for the completeness tests."""
+    out = []
+    for r in rows:
+        lab = str(r["symmetry"])
+        sym = SimpleNamespace(label=lab, parity=lab.split(",")[0].split()[0])
+        out.append(SimpleNamespace(R=float(r["R"]), symmetry=sym, is_new=r.get("is_new"),
+                                   multiplicity=int(r.get("multiplicity") or 1)))
+    return out
+
+
 def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[str]]:
-    from maasscomp.config import is_squarefree
-    from maasscomp.spectrum.weyl import completeness
+    """Completeness of every level whose searched range covers all its symmetry classes.
+
+    Per window: the count against Weyl's law, the Turing-style integral with its bound and the
+    bounds on missing forms it gives, and the small-gap test against the Poisson expectation
+    (:func:`maasscomp.spectrum.weyl.completeness`; docs/theory.md §8.4-8.6).
+    """
+    from maasscomp.spectrum.weyl import LIMITATIONS, completeness
 
     rows: list[dict] = []
     text: list[str] = []
+    table: list[str] = []
     levels = sorted(set(cov) | {r["level"] for r in st.summary_rows(n_coeffs=0)})
     for N in levels:
-        if not is_squarefree(N):
-            text.append(f"- level {N}: skipped; Weyl's law with lower-order terms is available for "
-                        "squarefree levels only.")
-            continue
         labels = all_class_labels(N)
         per_class = cov.get(N, {})
         missing = [lab for lab in labels if lab not in per_class]
@@ -155,24 +173,40 @@ def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[
         if not full:
             text.append(f"- level {N}: skipped; no R range was searched in every symmetry class.")
             continue
-        R_all = np.array(sorted(r["R"] for r in st.summary_rows(n_coeffs=0) if r["level"] == N))
+        forms_N = [r for r in st.summary_rows(n_coeffs=0)
+                   if r["level"] == N and str(r.get("character") or "X1") in ("X1", "1", "trivial")]
+        R_all = np.array(sorted(r["R"] for r in forms_N))
         for T_lo, T_hi in full:
+            sel = [r for r in forms_N if T_lo <= r["R"] <= T_hi]
             R = R_all[(R_all >= T_lo) & (R_all <= T_hi)]
             # no cusp form of these levels has R below 1 (as in the run summary)
-            c = completeness(N, R, T_lo, T_hi, count_below=0 if T_lo <= 1.0 else None)
+            c = completeness(N, _entries(sel), T_lo, T_hi, count_below=0 if T_lo <= 1.0 else None)
             for w in c.windows:
-                rows.append({"level": N, "T_lo": w.T_lo, "T_hi": w.T_hi, "found": w.found,
-                             "expected": w.expected, "deficit": w.deficit,
-                             "remainder_end": w.remainder_end, "flagged": w.flagged})
+                rows.append({"level": N, **w.as_row()})
+                mm = "" if w.missing_max is None else f"{w.missing_max}"
+                table.append(f"| {N} | {w.T_lo:.4f} | {w.T_hi:.4f} | {w.found} | {w.expected:.2f} | "
+                             f"{w.turing_integral:+.3f} | {w.turing_bound:.3f} | {w.missing_min} | {mm or '–'} | "
+                             f"{w.small_gaps} | {w.small_gaps_expected:.2f} | {w.spacing_p:.3g} | "
+                             f"{'yes: ' + ', '.join(w.reasons) if w.flagged else 'no'} |")
             name = f"weyl_N{N}.png" if len(full) == 1 else f"weyl_N{N}_{T_lo:g}-{T_hi:g}.png"
             _weyl_figure(N, R, T_lo, T_hi, folder / name)
             rep.files.append(name)
             flag = ("windows flagged as probably incomplete: "
                     + ", ".join(f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in c.flagged)
+                    + "; search again: " + ", ".join(f"[{a:.4f}, {b:.4f}]" for a, b in c.research_intervals())
                     if c.flagged else "no window flagged")
             text.append(f"- level {N}, R in [{T_lo:g}, {T_hi:g}]: {c.total_found} forms found, "
                         f"{c.total_expected:.2f} expected; remainder mean {c.mean_remainder:+.3f}, "
                         f"rms {c.rms_remainder:.3f}; {flag}. Figure: [{name}]({name})")
+    if table:
+        text += ["", "Per window: the count against Weyl's law W; the Turing-style integral of N - W over "
+                 "the window against its bound B, with the bounds it gives on forms missing below the "
+                 "window's top (min) and, when the list is complete beyond it, at most (max); same-class "
+                 "gaps below 0.1 mean spacing against the Poisson expectation, with its p-value.", "",
+                 "| level | T_lo | T_hi | found | W | ∫(N − W) | B | missing ≥ | missing ≤ | small gaps | "
+                 "expected | p | flagged |",
+                 "|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|", *table, "",
+                 "```text", LIMITATIONS.rstrip(), "```"]
     return rows, text
 
 

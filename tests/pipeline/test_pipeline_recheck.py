@@ -41,6 +41,9 @@ def test_flagged_window_is_searched_again(tmp_path):
     s_off = run_job(off, quiet=True)
     assert s_off.tasks_run == 0 and s_off.rechecks_run == 0
     assert "still flagged" in s_off.weyl[0]
+    # the summary names the tests of every window; the flagged one says which test flagged it
+    per_window = [ln for ln in s_off.weyl[1:] if "Turing integral" in ln]
+    assert per_window and any("flagged:" in ln for ln in per_window)
 
     again = run_job(cfg, quiet=True)
     assert again.ok and again.tasks_run == 0

@@ -89,13 +89,19 @@ def test_report_folder(scanned, tmp_path):
     ref = completeness(1, [R], 9.4, 9.7)
     assert len(wrows) == len(ref.windows)
     for w, r in zip(ref.windows, wrows):
-        assert int(r["found"]) == w.found and float(r["expected"]) == w.expected
+        assert int(r["found"]) == w.found and float(r["expected"]) == pytest.approx(w.expected, abs=1e-6)
+        # every completeness test is in the table, per window
+        assert float(r["turing_bound"]) == pytest.approx(w.turing_bound, abs=1e-6)
+        assert float(r["turing_integral"]) == pytest.approx(w.turing_integral, abs=1e-6)
+        assert int(r["missing_min"]) == w.missing_min and int(r["small_gaps"]) == w.small_gaps
+        assert r["flagged"] in ("true", "false")
     with open(tmp_path / "rep" / "peaks.csv", newline="") as fh:
         (prow,) = list(csv.DictReader(fh))
     assert prow["key"] == key and float(prow["R"]) == R
     readme = (tmp_path / "rep" / "README.md").read_text()
     assert "1 forms scanned" in readme and "fingerprint" in readme and "[scan]" in readme
     assert "level 1, R in [9.4, 9.7]: 1 forms found" in readme
+    assert "Turing-style integral" in readme and "What the tests can and cannot show" in readme
 
 
 def test_report_of_a_store_without_runs_or_scans(tmp_path):
