@@ -29,6 +29,7 @@ from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
 
+from maasscomp.arith import is_prime, is_squarefree
 from maasscomp.errors import InputError
 
 PARITIES = ("even", "odd")
@@ -284,29 +285,6 @@ def _is_real(v: Any) -> bool:
 
 def _is_int(v: Any) -> bool:
     return isinstance(v, int) and not isinstance(v, bool)
-
-
-def is_squarefree(n: int) -> bool:
-    """True if no square of a prime divides n (1 is squarefree)."""
-    d = 2
-    while d * d <= n:
-        if n % (d * d) == 0:
-            return False
-        if n % d == 0:
-            n //= d
-        d += 1
-    return True
-
-
-def is_prime(n: int) -> bool:
-    if n < 2:
-        return False
-    d = 2
-    while d * d <= n:
-        if n % d == 0:
-            return False
-        d += 1
-    return True
 
 
 _RULE = re.compile(

@@ -32,6 +32,7 @@ import traceback
 from dataclasses import dataclass, field
 from typing import Any
 
+from maasscomp.arith import prime_factors
 from maasscomp.config import Config, is_squarefree
 from maasscomp.errors import InputError
 
@@ -410,23 +411,10 @@ def supported_R_max() -> float:
     return float(getattr(special, "R_MAX", 1e4))
 
 
-def _prime_factors(n: int) -> list[int]:
-    out, d = [], 2
-    while d * d <= n:
-        if n % d == 0:
-            out.append(d)
-            while n % d == 0:
-                n //= d
-        d += 1
-    if n > 1:
-        out.append(n)
-    return out
-
-
 def _index(N: int) -> int:
     """[SL2(Z) : Gamma0(N)] = N prod_{p | N} (1 + 1/p) (Diamond & Shurman 2005, §1.2)."""
     out = N
-    for p in _prime_factors(N):
+    for p in prime_factors(N):
         out = out // p * (p + 1)
     return out
 
@@ -436,7 +424,7 @@ def _classes_searched(N: int, parities: tuple[str, ...], atkin_lehner: str) -> t
     :func:`class_labels` and :func:`maasscomp.spectrum.search.symmetry_classes`)."""
     if not is_squarefree(N):
         return len(parities), 2
-    k = len(_prime_factors(N))
+    k = len(prime_factors(N))
     per_parity = 2 ** k if (atkin_lehner == "all" or N == 1) else 1
     return len(parities) * per_parity, 2 * 2 ** k
 

@@ -43,7 +43,7 @@ COEFF_COLUMNS = ("key", "cusp", "n", "c", "error", "cusp_name")
 
 def _keys(st: Store, keys: Iterable[str] | None) -> list[str]:
     if keys is None:
-        return st.keys()
+        return st.keys(order="written")
     keys = list(keys)
     for k in keys:
         if k not in st:
@@ -195,7 +195,7 @@ def export_csv(store_path: str | os.PathLike, out_path: str | os.PathLike,
     ----------
     store_path, out_path : path-like
     keys : iterable of str, optional
-        Forms to export (default all, in write order).
+        Forms to export (default all, sorted by (level, R)).
     n_coeffs : int
         Number K of coefficients at infinity in columns ``c1`` .. ``cK`` of the summary
         (cells are empty for forms with fewer than K coefficients).

@@ -144,7 +144,7 @@ def test_find_twist_ignores_untwisted_forms_and_wrong_levels():
 def test_labels_survive_the_store_encoding():
     """The entries written into Form.extra are plain JSON (str keys) that the store keeps."""
     from maasscomp.spectrum.operators import label_atkin_lehner
-    from maasscomp.store._codec import decode_extra, encode_extra
+    from maasscomp.store._codec import decode_tree, encode_extra
 
     from .levels_helpers import lift_at_cusps
 
@@ -155,9 +155,9 @@ def test_labels_survive_the_store_encoding():
     t = synthetic_form(9, "even", g.R, twist_coefficients(g.coeffs[:M], -3)[None, :])
     assert label_twist(gamma0(9), t, level1_parents()) is not None
     for form in (f, t):
-        text, arrays = encode_extra(form.extra)
+        doc, arrays = encode_extra(form.extra)
         assert not arrays
-        assert decode_extra(text, None) == form.extra
+        assert decode_tree(doc, arrays) == form.extra
 
 
 def test_label_form_writes_every_level_label():

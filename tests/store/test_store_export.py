@@ -153,5 +153,5 @@ def test_fast_records_equal_the_records_of_whole_forms(store):
     p, keys, _ = store
     with Store.open(p) as st:
         fast = [record_of(r) for r in st.iter_records()]
-        full = [record_of(FormRecord.from_stored(st.read(k))) for k in keys]
+        full = [record_of(FormRecord.from_stored(st.read(k))) for k in st.keys()]
     assert json.dumps(fast, sort_keys=True) == json.dumps(full, sort_keys=True)
