@@ -11,10 +11,13 @@ Wright, *An Introduction to the Theory of Numbers*, ch. XVI).
 from __future__ import annotations
 
 import math
-
-import numpy as np
+import numbers
+from typing import TYPE_CHECKING
 
 from maasscomp.errors import InputError
+
+if TYPE_CHECKING:  # numpy is imported by the sieves only, so the CLI starts without it
+    import numpy as np
 
 __all__ = ["check_level", "factorint", "prime_factors", "divisors", "is_prime", "is_squarefree", "primes_up_to",
            "smallest_prime_factor", "factor_with", "divisor_count", "egcd", "euler_phi", "mobius",
@@ -24,7 +27,7 @@ __all__ = ["check_level", "factorint", "prime_factors", "divisors", "is_prime", 
 def check_level(level: object) -> int:
     """``level`` as a Python int after checking that it is a positive integer (InputError
     naming the value otherwise; bools are refused)."""
-    if isinstance(level, bool) or not isinstance(level, (int, np.integer)) or int(level) < 1:
+    if isinstance(level, bool) or not isinstance(level, numbers.Integral) or int(level) < 1:
         raise InputError(f"level {level!r} is not allowed; use a positive integer")
     return int(level)
 
@@ -73,12 +76,16 @@ def primes_up_to(n: int) -> list[int]:
     """The primes p <= n, ascending."""
     if n < 2:
         return []
+    import numpy as np
+
     spf = smallest_prime_factor(int(n))
     return [int(p) for p in np.flatnonzero(spf == np.arange(n + 1)) if p >= 2]
 
 
 def smallest_prime_factor(n_max: int) -> np.ndarray:
     """spf[n] for 0 <= n <= n_max (spf[0] = spf[1] = 0), by a sieve."""
+    import numpy as np
+
     spf = np.zeros(n_max + 1, dtype=np.int64)
     for p in range(2, math.isqrt(n_max) + 1):
         if spf[p] == 0:
@@ -106,6 +113,8 @@ def factor_with(n: int, spf: np.ndarray) -> list[tuple[int, int]]:
 
 def divisor_count(n_max: int) -> np.ndarray:
     """d(n) for 0 <= n <= n_max (d(0) = 0)."""
+    import numpy as np
+
     d = np.zeros(n_max + 1, dtype=np.int64)
     for k in range(1, n_max + 1):
         d[k::k] += 1

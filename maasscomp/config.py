@@ -715,35 +715,3 @@ def keys_markdown() -> str:
         "",
     ]
     return "\n".join(lines)
-
-
-# ------------------------------------------------------------------ command-line value types
-
-
-def arg_int(minimum: int):
-    """An argparse ``type`` accepting integers >= ``minimum`` with a clear message."""
-    import argparse
-
-    def parse_int(text: str) -> int:
-        try:
-            v = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not an integer") from None
-        if v < minimum:
-            raise argparse.ArgumentTypeError(f"{v} is not allowed; use an integer >= {minimum}")
-        return v
-
-    return parse_int
-
-
-def arg_positive_float(text: str) -> float:
-    """An argparse ``type`` accepting finite numbers > 0 with a clear message."""
-    import argparse
-
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not (0 < v < math.inf):
-        raise argparse.ArgumentTypeError(f"{v} is not allowed; use a positive number")
-    return v

@@ -18,7 +18,8 @@ import pytest
 
 from maasscomp.cli import main
 from maasscomp.errors import DamagedFormError, StoreError
-from maasscomp.store import Store, export_csv, export_json, salvage
+from maasscomp.report.export import export_csv
+from maasscomp.store import Store, export_json, salvage
 from tests.store.store_form_factory import assert_forms_equal, indexed_form
 
 V1 = Path(__file__).resolve().parent / "data" / "v1-small.h5"
