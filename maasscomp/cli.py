@@ -190,13 +190,10 @@ def _cmd_list(args: argparse.Namespace) -> int:
             if args.symmetry is not None:
                 keys = _symmetry_keys(st, keys, args.symmetry)
         cols = st.listing(n_coeffs=args.coeffs, keys=keys)
-        parents = {}
-        for j, isn in enumerate(cols["is_new"]):
-            if isn is False:
-                try:
-                    parents[j] = _parent_text(st.get(cols["key"][j]).extra)
-                except StoreError:
-                    pass
+        # oldforms name their parent (read as plain records: no Form, no numerical stage)
+        old = [cols["key"][j] for j, isn in enumerate(cols["is_new"]) if isn is False]
+        texts = {fr.key: _parent_text(fr.extra) for fr in st.iter_records(old)}
+        parents = {j: texts.get(k, "") for j, k in enumerate(cols["key"]) if k in texts}
         empty = _no_match(args.store, st, args) if not cols["key"] else ""
         damaged = st.damaged()
         unfinished = st.info()["unfinished_bytes"]

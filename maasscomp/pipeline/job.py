@@ -564,9 +564,10 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
     """Scan every form of the plan that has no scan yet; commit each scan with its mark."""
     from tqdm import tqdm
 
-    from maasscomp.pipeline.tasks import ScanTask, execute, scanner
+    from maasscomp.pipeline.tasks import ScanTask, execute
+    from maasscomp.supnorm.scan import NORM_ATTACHMENT as norm_attachment
+    from maasscomp.supnorm.scan import SCAN_ATTACHMENT as attachment
 
-    attachment, norm_attachment = scanner()
     keys = _plan_keys(st, cfg, plan)
     sc = cfg.scan
 

@@ -32,8 +32,8 @@ import traceback
 from dataclasses import dataclass, field
 from typing import Any
 
-from maasscomp.arith import prime_factors
-from maasscomp.config import Config, is_squarefree
+from maasscomp.arith import is_squarefree, prime_factors
+from maasscomp.config import Config
 from maasscomp.errors import InputError
 
 #: Extra R searched on each side of a chunk.
@@ -234,17 +234,6 @@ class ScanOutput:
     region: str
     value: float
     ratio: float
-
-
-def scanner():
-    """(scan attachment name, norm attachment name) of the sup-norm scanner, or None if
-    this version lacks it."""
-    try:
-        from maasscomp.supnorm.norm import l2_norm  # noqa: F401
-        from maasscomp.supnorm.scan import NORM_ATTACHMENT, SCAN_ATTACHMENT, scan_form  # noqa: F401
-    except ImportError:
-        return None
-    return SCAN_ATTACHMENT, NORM_ATTACHMENT
 
 
 @dataclass(frozen=True)
@@ -613,9 +602,6 @@ def build_plan(cfg: Config) -> Plan:
 
             M = info["n_cusps"] * truncation_M0(s.R_max + 1.0, info["Y"], s.eps)
             hours += _level_points(cfg, N) * 2 * (2 / 3 * M**3 + 10 * M * M) / _FLOPS / 3600
-    if cfg.scan.enabled and scanner() is None:
-        problems.append("[scan] enabled = true, but this version has no sup-norm scanner; "
-                        "set enabled = false")
     if problems:
         if len(problems) == 1:
             raise InputError(where + problems[0])

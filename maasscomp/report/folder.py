@@ -132,7 +132,7 @@ def _weyl_figure(level: int, R: np.ndarray, T_lo: float, T_hi: float, path: Path
 
 
 def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[str]]:
-    from maasscomp.config import is_squarefree
+    from maasscomp.arith import is_squarefree
     from maasscomp.spectrum.weyl import completeness
 
     rows: list[dict] = []

@@ -22,6 +22,8 @@ R_max = 9.7
 parities = ["odd"]
 step = 0.05
 n_coeffs = 20
+[scan]
+enabled = false
 [executor]
 backend = "serial"
 """
@@ -75,9 +77,9 @@ CONFIG_CASES = [
     ("bad backend", ('backend = "serial"', 'backend = "dask2"'), ["backend='dask2' is not allowed"]),
     ("address without dask", ('backend = "serial"', 'backend = "serial"\naddress = "tcp://127.0.0.1:1"'),
      ["address is only used with backend = 'dask'"]),
-    ("Omega below 1", ("[executor]", "[scan]\nenabled = true\nY_omega = 0.5\n[executor]"),
+    ("Omega below 1", ("[scan]\nenabled = false", "[scan]\nenabled = true\nY_omega = 0.5"),
      ["[scan] Y_omega=0.5 is not allowed", ">= 1"]),
-    ("old scan key", ("[executor]", "[scan]\nY_c = 1.0\n[executor]"), ["unknown key 'Y_c'"]),
+    ("old scan key", ("[scan]\nenabled = false", "[scan]\nenabled = false\nY_c = 1.0"), ["unknown key 'Y_c'"]),
     ("overlapping windows", ("R_min = 9.4\nR_max = 9.7", "windows = [[9.4, 9.7], [9.6, 10.0]]"), ["overlap"]),
     ("missing output", ('output = "out.h5"', ""), ["[job] output is required"]),
     ("output dir missing", ('output = "out.h5"', 'output = "nowhere/out.h5"'), ["does not exist"]),
