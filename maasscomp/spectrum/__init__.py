@@ -13,8 +13,7 @@ locate_large, forms_in_window_large, LargeSettings, LargeSearchResult
     The same at large R (to 1e5): node-interpolated matrices, linearised roots, bounded memory.
 complete_search, CompleteSearch
     Window search with Weyl's-law completeness check and automatic re-search.
-weyl_count, weyl_density, expected_in_window, weyl_constant, weyl_terms, completeness,
-count_identity
+weyl_count, weyl_density, expected_in_window, weyl_constant, weyl_terms, completeness, count_identity
     Weyl's law with lower-order terms for every level (scattering data in
     ``spectrum.scattering``), the completeness report (window counts, Turing-style integral
     test, small-gap test; ``spectrum.spectral_checks``) and the old/new count identity.

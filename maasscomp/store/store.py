@@ -57,6 +57,7 @@ from maasscomp.store import _layout as L
 from maasscomp.store import schema as S
 
 if TYPE_CHECKING:  # the form classes are imported where forms are built: listing needs none
+    import maasscomp.groups.characters
     from maasscomp.spectrum.form import Form
 
 #: Default absolute tolerance on R for duplicate detection.  Distinct eigenvalues of one
@@ -126,7 +127,7 @@ class StoredForm:
 
     key: str
     form: Form
-    character: DirichletCharacter
+    character: maasscomp.groups.characters.DirichletCharacter  # full name: two classes share the short one
     cusps: tuple[CuspInfo, ...]
     provenance: dict[str, Any]
     #: Form fields stored by a newer version that this version's Form lacks.

@@ -9,8 +9,7 @@ evaluate, FormEvaluator, Evaluation
     F(z) anywhere in the upper half plane, via pullback to the fastest-converging cusp.
 l2_norm, NormResult, compact_quadrature, kt2_tail, strip_mass, rankin_selberg_norm2
     ||F||^2 by quadrature over a fundamental domain, with the Rankin--Selberg cross-check.
-scan_form, ScanSettings, ScanResult, RegionPeak, leading_profile_peak, random_wave_max,
-transition_height, first_nonzero
+scan_form, ScanSettings, ScanResult, RegionPeak, leading_profile_peak, random_wave_max, transition_height, first_nonzero
     Peaks of |f|/||f|| on the fixed compact set Omega, each cusp's transition zone and the
     region between them, with a grid bound and the predictions.
 scan_store, load_scans, load_norm
