@@ -159,3 +159,15 @@ def test_plot_draws_the_fundamental_domain_without_a_scan(store, tmp_path):
     assert 0 < float(V.max()) < 10 and edges[0] < 1.0
     two = store["N5_odd_5m_R3.0283762931"].plot(rows=12, cols=16)
     assert len([a for a in two.axes if a.get_label() != "<colorbar>"]) == 2
+
+
+def test_error_messages_write_numbers_plainly():
+    """numpy 2 writes np.float64(1.5) for repr(); no error of the package shows that."""
+    from maasscomp.errors import DamagedFormError, StoreError
+
+    R = np.float64(9.5)
+    for exc in (InputError(f"R={R!r} is not allowed; got {np.int64(3)!r} and {[np.float32(2.5)]!r}"),
+                StoreError(f"store at {R!r}"), DamagedFormError(f"damaged {np.complex128(1 - 2j)!r}", "k")):
+        text = str(exc)
+        assert "np." not in text and "float64" not in text, text
+    assert str(InputError(f"R={R!r}")) == "R=9.5"
