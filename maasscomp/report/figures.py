@@ -88,8 +88,7 @@ def form_map_figure(form, result: ScanResult | None, *, evaluator=None, normaliz
                     rows: int = 300, cols: int = 420, per_row: int = 6):
     """The map of :func:`plot_form_map` (``result`` given) or :func:`plot_form` (``result``
     None) as a ``Figure``."""
-    from maasscomp.supnorm.evaluate import FormEvaluator, _memo
-    from maasscomp.supnorm.norm import l2_norm
+    from maasscomp.supnorm.evaluate import FormEvaluator, normalising_scale
 
     ev = evaluator if evaluator is not None else FormEvaluator(form)
     G = ev.group
@@ -102,13 +101,7 @@ def form_map_figure(form, result: ScanResult | None, *, evaluator=None, normaliz
         Yo = None
         Y_T = [transition_height(ev.R, first_nonzero(np.asarray(form.coeffs)[j])) for j in range(h)]
         y_top = [max(1.3 * t, 2.0) for t in Y_T]
-        if normalized:
-            memo = _memo(form)
-            if "scale" not in memo:
-                memo["scale"] = float(l2_norm(form, evaluator=ev, rankin_selberg=False).scale)
-            scale = memo["scale"]
-        else:
-            scale = math.exp(-math.pi * ev.R / 2.0)
+        scale = normalising_scale(form, ev) if normalized else math.exp(-math.pi * ev.R / 2.0)
         vmax = None
     fig = _figure(4.6 * h + 1.4, 6.0 if result is not None else 4.8)
     axes = fig.subplots(1, h, squeeze=False)[0]

@@ -398,6 +398,17 @@ def _memo(form) -> dict:
     return m if isinstance(m, dict) else {}
 
 
+def normalising_scale(form, evaluator: FormEvaluator | None = None) -> float:
+    """1/||F|| for F = e^{pi R/2} f, so that F/||F|| = f/||f|| (the L2 norm over Gamma0(N)\\H
+    by :func:`maasscomp.supnorm.norm.l2_norm`, computed once per form and kept in its memo)."""
+    memo = _memo(form)
+    if "scale" not in memo:
+        from maasscomp.supnorm.norm import l2_norm
+
+        memo["scale"] = float(l2_norm(form, evaluator=evaluator, rankin_selberg=False).scale)
+    return memo["scale"]
+
+
 def form_values(form, z: ArrayLike, y: ArrayLike | None = None, *, normalized: bool = False,
                 tol: float = DEFAULT_TOL) -> np.floating | np.ndarray:
     """The physical form f(z) (or f/||f|| with ``normalized``) at points of H.
@@ -431,14 +442,6 @@ def form_values(form, z: ArrayLike, y: ArrayLike | None = None, *, normalized: b
         ev = FormEvaluator(form, tol=tol)
         memo[key] = ev
     F = ev(x, yy).values
-    if normalized:
-        scale = memo.get("scale")
-        if scale is None:
-            from maasscomp.supnorm.norm import l2_norm
-
-            scale = float(l2_norm(form, evaluator=ev, rankin_selberg=False).scale)
-            memo["scale"] = scale
-    else:
-        scale = math.exp(-math.pi * float(form.R) / 2.0)
+    scale = normalising_scale(form, ev) if normalized else math.exp(-math.pi * float(form.R) / 2.0)
     out = np.asarray(F, dtype=float) * scale
     return out[()] if out.ndim == 0 else out

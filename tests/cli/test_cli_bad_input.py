@@ -83,7 +83,7 @@ CONFIG_CASES = [
     ("overlapping windows", ("R_min = 9.4\nR_max = 9.7", "windows = [[9.4, 9.7], [9.6, 10.0]]"), ["overlap"]),
     ("missing output", ('output = "out.h5"', ""), ["[job] output is required"]),
     ("output dir missing", ('output = "out.h5"', 'output = "nowhere/out.h5"'), ["does not exist"]),
-    ("window needs too much memory", ("n_coeffs = 20", "n_coeffs = 20000\n[executor]\nmemory_limit_gb = 0.5"),
+    ("window needs too much memory", ("n_coeffs = 20", "n_coeffs = 20000"),
      ["one task needs about", "memory_limit_gb"]),
     ("bool as a number", ("R_min = 9.4", "R_min = true"), ["R_min=True is not allowed"]),
     ("bool as workers", ('backend = "serial"', 'backend = "serial"\nworkers = true'),
@@ -189,8 +189,8 @@ def test_scan_of_a_mistyped_store_creates_nothing(tmp_path, monkeypatch, capsys)
 def test_bad_config(tmp_path, monkeypatch, capsys, command, what, edit, fragments):
     monkeypatch.chdir(tmp_path)
     text = GOOD.replace(*edit)
-    if what == "window needs too much memory":  # the [executor] table may appear only once
-        text = text.replace('[executor]\nbackend = "serial"', 'backend = "serial"')
+    if what == "window needs too much memory":  # and a small memory limit in [executor]
+        text = text.replace('backend = "serial"', 'backend = "serial"\nmemory_limit_gb = 0.5')
     assert text != GOOD
     cfg = tmp_path / "job.toml"
     cfg.write_text(text)
@@ -263,7 +263,7 @@ BAD_ARGS = [
     (["run", "job.toml", "--backend", "mpi"], "invalid choice: 'mpi'"),
     (["run", "job.toml", "-q", "-v"], "not allowed with argument"),
     (["run"], "the following arguments are required: config"),
-    (["export", "x.h5"], "export needs at least one of --json PATH or --csv PATH"),
+    (["export", "x.h5"], "export needs --out DIR (everything) or at least one of --json"),
     (["frobnicate"], "invalid choice: 'frobnicate'"),
     (["list", "x.h5", "--nonsense"], "unrecognized arguments: --nonsense"),
 ]
