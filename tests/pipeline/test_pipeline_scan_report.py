@@ -61,7 +61,7 @@ def test_scan_settings_change_is_refused_only_between_scanning_runs(scanned, tmp
     plain = tmp_path / "plain.toml"
     write_config(plain, output=str(tmp_path / "p.h5"), R=(9.4, 9.7), name="p")
     assert run_job(load(plain), quiet=True).ok
-    plain.write_text(plain.read_text().replace("n_coeffs = 20", "n_coeffs = 20\n[scan]\nenabled = true\nrtol = 1e-2"))
+    plain.write_text(plain.read_text().replace("[scan]\nenabled = false", "[scan]\nenabled = true\nrtol = 1e-2"))
     s = run_job(load(plain), quiet=True)
     assert s.ok and s.scans_run == 1 and s.tasks_run == 0
 
