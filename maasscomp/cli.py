@@ -151,7 +151,7 @@ def _no_match(store: str, st, args) -> str:
         return f"no forms at level {args.level}; {store} has level{'s' if len(levels) > 1 else ''} {have}"
     keys = st.select(level=args.level)
     if args.symmetry is not None:
-        syms = sorted({st._idx.syms[st._position(k)] for k in keys})
+        syms = sorted(set(st.listing(0, keys)["symmetry"]))
         if not _symmetry_keys(st, keys, args.symmetry):
             where = f" at level {args.level}" if args.level is not None else ""
             return (f"no forms of class {args.symmetry!r}{where}; {store} has class"
@@ -169,10 +169,10 @@ def _no_match(store: str, st, args) -> str:
 
 def _symmetry_keys(st, keys: list[str], symmetry: str) -> list[str]:
     """Keys of class ``symmetry``: an exact class label, or a parity ("even", "odd")."""
-    idx = st._idx
+    cols = st.listing(0, keys)
     if symmetry in ("even", "odd"):
-        return [k for k in keys if idx.syms[st._position(k)].split("_")[0] == symmetry]
-    return [k for k in keys if idx.syms[st._position(k)] == symmetry]
+        return [k for k, lab in zip(cols["key"], cols["symmetry"]) if lab.split("_")[0].split(",")[0] == symmetry]
+    return [k for k, lab in zip(cols["key"], cols["symmetry"]) if lab == symmetry]
 
 
 def _cmd_list(args: argparse.Namespace) -> int:
