@@ -114,10 +114,10 @@ CONFIG_CASES = [
 HANG_SECONDS = 60
 HANG_CASES = [
     ("R_max 1e9", ("R_max = 9.7", "R_max = 1e9"), ["R_max=1e+09 is beyond the supported range",
-                                                    "R <= 10000"]),
+                                                    "R <= 100000;"]),
     ("R_max 1e300", ("R_max = 9.7", "R_max = 1e300"), ["beyond the supported range"]),
-    ("R_max at the limit", ("R_min = 9.4\nR_max = 9.7", "R_min = 9999.0\nR_max = 10000.0"),
-     ["use R_max <= 9999.999"]),
+    ("R_max at the limit", ("R_min = 9.4\nR_max = 9.7", "R_min = 99999.0\nR_max = 100000.0"),
+     ["use R_max <= 99999.999"]),
     ("all levels up to 100000", ("levels = [1]", 'levels = "all up to 100000"'),
      ["100000 levels, more than the 100 of one job", "size_limits = false"]),
     ("a level beyond planning", ("levels = [1]", "levels = [1009]"), ["level 1009 is above 1000"]),
