@@ -34,7 +34,8 @@ import numpy as np
 
 from maasscomp.hejhal.types import SolverParams, SymmetryClass
 from maasscomp.spectrum.form import Form
-from maasscomp.store import Store, export_csv, export_json
+from maasscomp.report.export import export_csv
+from maasscomp.store import Store, export_json
 
 M = 200
 BATCH = 100

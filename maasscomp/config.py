@@ -29,6 +29,7 @@ from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
 
+from maasscomp.arith import is_prime, is_squarefree
 from maasscomp.errors import InputError
 
 PARITIES = ("even", "odd")
@@ -103,10 +104,10 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
      "Weyl's law where the project has it (squarefree levels), window by window, and search "
      "each window flagged as incomplete once more with a shifted lattice of expansion "
      "points, twice as many of them, and lower sample heights."),
-    ("scan", "enabled", "bool", False,
-     "After the search, scan every form of the config for the maximum of |f|/||f|| on the "
-     "fixed compact set, in each cusp's transition zone and in between (one task per form; "
-     "results stored beside the form)."),
+    ("scan", "enabled", "bool", True,
+     "After the search, L2-normalise every form of the config and scan it for the maximum of "
+     "|f|/||f|| on the fixed compact set, in each cusp's transition zone and in between (one "
+     "task per form; results stored beside the form). Set to false for a search alone."),
     ("scan", "Y_omega", "float", 2.0,
      "Height (in each cusp's coordinate) below which a point belongs to the fixed compact "
      "set Omega; >= 1. The default gives Omega 52% of the area of PSL(2,Z)\\H."),
@@ -129,6 +130,18 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
      "any work starts (and a local Dask cluster gets this limit per worker)."),
 ]
 
+#: The default of every key whose default is a value (the others are computed: the log path,
+#: the worker count, the memory limit); written once, in :data:`KEYS`.
+DEFAULTS: dict[tuple[str, str], Any] = {(s, k): d for s, k, t, d, _ in KEYS
+                                        if not (isinstance(d, str) and t != "string")}
+
+
+def default(section: str, key: str) -> Any:
+    """The default of ``[section] key`` from :data:`KEYS` (a fresh copy of lists)."""
+    d = DEFAULTS[(section, key)]
+    return list(d) if isinstance(d, list) else d
+
+
 # keys of the executor section and job paths do not change results (see module docstring)
 _RESULT_KEYS = {("search", "eps"), ("search", "n_coeffs"), ("search", "step")}
 # compared only when both runs scanned (enabling scans later adds results, changes none)
@@ -140,25 +153,28 @@ _SECTIONS = list(dict.fromkeys(s for s, *_ in KEYS))
 # ---------------------------------------------------------------- dataclasses
 
 
+# The sections as validated by :func:`parse`, which fills every field (defaults: KEYS only).
+
+
 @dataclass(frozen=True)
 class JobConfig:
     name: str
     output: Path
     log: Path
-    size_limits: bool = True
+    size_limits: bool
 
 
 @dataclass(frozen=True)
 class SearchConfig:
     levels: tuple[int, ...]
     windows: tuple[tuple[float, float], ...]
-    parities: tuple[str, ...] = PARITIES
-    atkin_lehner: str = "all"
-    eps: float = 1e-14
-    n_coeffs: int = 60
-    step: float | None = None
-    chunk_width: float = 1.0
-    recheck: bool = True
+    parities: tuple[str, ...]
+    atkin_lehner: str
+    eps: float
+    n_coeffs: int
+    step: float | None
+    chunk_width: float
+    recheck: bool
 
     @property
     def R_min(self) -> float:
@@ -171,18 +187,18 @@ class SearchConfig:
 
 @dataclass(frozen=True)
 class ScanConfig:
-    enabled: bool = False
-    Y_omega: float = 2.0
-    rtol: float = 1e-3
-    samples_per_wavelength: float = 9.0
+    enabled: bool
+    Y_omega: float
+    rtol: float
+    samples_per_wavelength: float
 
 
 @dataclass(frozen=True)
 class ExecutorConfig:
-    backend: str = "joblib"
-    workers: int = 1
-    address: str | None = None
-    memory_limit_gb: float = 1.0
+    backend: str
+    workers: int
+    address: str | None
+    memory_limit_gb: float
     memory_explicit: bool = False
 
 
@@ -284,29 +300,6 @@ def _is_real(v: Any) -> bool:
 
 def _is_int(v: Any) -> bool:
     return isinstance(v, int) and not isinstance(v, bool)
-
-
-def is_squarefree(n: int) -> bool:
-    """True if no square of a prime divides n (1 is squarefree)."""
-    d = 2
-    while d * d <= n:
-        if n % (d * d) == 0:
-            return False
-        if n % d == 0:
-            n //= d
-        d += 1
-    return True
-
-
-def is_prime(n: int) -> bool:
-    if n < 2:
-        return False
-    d = 2
-    while d * d <= n:
-        if n % d == 0:
-            return False
-        d += 1
-    return True
 
 
 _RULE = re.compile(
@@ -457,7 +450,7 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     job, srch, exe = body["job"], body["search"], body["executor"]
 
     # [job]
-    name = job.get("name", "job")
+    name = job.get("name", default("job", "name"))
     if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.+-]+", name) or name in (".", ".."):
         problems.append(f"[job] name={name!r} is not allowed; use a non-empty name of letters, "
                         "digits and _ . + -")
@@ -472,14 +465,14 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     for nm, v in (("output", output), ("log", log)):
         if isinstance(v, str) and "\0" in v:
             problems.append(f"[job] {nm}={v!r} contains a NUL character; give a plain path")
-    size_limits = job.get("size_limits", True)
+    size_limits = job.get("size_limits", default("job", "size_limits"))
     if not isinstance(size_limits, bool):
         problems.append(f"[job] size_limits={size_limits!r} must be true or false")
 
     # [search]
     levels: tuple[int, ...] = ()
     try:
-        levels = parse_levels(srch.get("levels", [1]))
+        levels = parse_levels(srch.get("levels", default("search", "levels")))
     except InputError as exc:
         problems.append(str(exc))
 
@@ -527,7 +520,7 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
         elif ok:
             windows = [(float(R_min), float(R_max))]
 
-    parities = srch.get("parities", list(PARITIES))
+    parities = srch.get("parities", default("search", "parities"))
     if not isinstance(parities, list) or not parities:
         problems.append(f"[search] parities={parities!r} must be a non-empty list drawn from "
                         f"{list(PARITIES)}")
@@ -535,46 +528,46 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     for p in parities:
         if p not in PARITIES:
             problems.append(f"[search] parity {p!r} is not allowed; use 'even' and/or 'odd'")
-    al = srch.get("atkin_lehner", "all")
+    al = srch.get("atkin_lehner", default("search", "atkin_lehner"))
     if al not in ATKIN_LEHNER:
         problems.append(f"[search] atkin_lehner={al!r} is not allowed; use one of "
                         f"{', '.join(repr(a) for a in ATKIN_LEHNER)}")
-    eps = srch.get("eps", 1e-14)
+    eps = srch.get("eps", default("search", "eps"))
     if not _is_real(eps) or not (1e-16 <= eps <= 1e-4):
         problems.append(f"[search] eps={eps!r} is not allowed; it must be a number in [1e-16, 1e-4]")
-    n_coeffs = srch.get("n_coeffs", 60)
+    n_coeffs = srch.get("n_coeffs", default("search", "n_coeffs"))
     if not _is_int(n_coeffs) or not (10 <= n_coeffs <= 20000):
         problems.append(f"[search] n_coeffs={n_coeffs!r} is not allowed; it must be an integer in "
                         "[10, 20000]")
     step = srch.get("step")
     if step is not None and (not _is_real(step) or not math.isfinite(step) or step <= 0):
         problems.append(f"[search] step={step!r} is not allowed; it must be a positive finite number")
-    chunk = srch.get("chunk_width", 1.0)
+    chunk = srch.get("chunk_width", default("search", "chunk_width"))
     if not _is_real(chunk) or not math.isfinite(chunk) or chunk < 0.01:
         problems.append(f"[search] chunk_width={chunk!r} is not allowed; it must be a number >= 0.01")
 
-    recheck = srch.get("recheck", True)
+    recheck = srch.get("recheck", default("search", "recheck"))
     if not isinstance(recheck, bool):
         problems.append(f"[search] recheck={recheck!r} must be true or false")
 
     # [scan]
     scn = body["scan"]
-    enabled = scn.get("enabled", False)
+    enabled = scn.get("enabled", default("scan", "enabled"))
     if not isinstance(enabled, bool):
         problems.append(f"[scan] enabled={enabled!r} must be true or false")
-    Y_omega = scn.get("Y_omega", 2.0)
+    Y_omega = scn.get("Y_omega", default("scan", "Y_omega"))
     if not _is_real(Y_omega) or not math.isfinite(Y_omega) or Y_omega < 1.0:
         problems.append(f"[scan] Y_omega={Y_omega!r} is not allowed; it must be a finite number >= 1")
-    rtol = scn.get("rtol", 1e-3)
+    rtol = scn.get("rtol", default("scan", "rtol"))
     if not _is_real(rtol) or not (1e-9 <= rtol <= 0.5):
         problems.append(f"[scan] rtol={rtol!r} is not allowed; it must be a number in [1e-9, 0.5]")
-    spw = scn.get("samples_per_wavelength", 9.0)
+    spw = scn.get("samples_per_wavelength", default("scan", "samples_per_wavelength"))
     if not _is_real(spw) or not (2.0 <= spw <= 100.0):
         problems.append(f"[scan] samples_per_wavelength={spw!r} is not allowed; it must be a "
                         "number in [2, 100]")
 
     # [executor]
-    backend = exe.get("backend", "joblib")
+    backend = exe.get("backend", default("executor", "backend"))
     if backend not in BACKENDS:
         problems.append(f"[executor] backend={backend!r} is not allowed{_suggest(str(backend), list(BACKENDS))}; "
                         f"use one of {', '.join(repr(b) for b in BACKENDS)}")
@@ -737,35 +730,3 @@ def keys_markdown() -> str:
         "",
     ]
     return "\n".join(lines)
-
-
-# ------------------------------------------------------------------ command-line value types
-
-
-def arg_int(minimum: int):
-    """An argparse ``type`` accepting integers >= ``minimum`` with a clear message."""
-    import argparse
-
-    def parse_int(text: str) -> int:
-        try:
-            v = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not an integer") from None
-        if v < minimum:
-            raise argparse.ArgumentTypeError(f"{v} is not allowed; use an integer >= {minimum}")
-        return v
-
-    return parse_int
-
-
-def arg_positive_float(text: str) -> float:
-    """An argparse ``type`` accepting finite numbers > 0 with a clear message."""
-    import argparse
-
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not (0 < v < math.inf):
-        raise argparse.ArgumentTypeError(f"{v} is not allowed; use a positive number")
-    return v

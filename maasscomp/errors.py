@@ -6,11 +6,24 @@ Every error that a user can cause names the bad value and what is allowed; the C
 
 from __future__ import annotations
 
+import re
 from typing import Any
+
+# numpy 2 writes scalars as np.float64(1.5) in repr(); messages show the plain number
+_NUMPY_SCALAR = re.compile(r"\bnp\.(?:float|int|uint|complex|bool|str|bytes)_?\d*\((.*?)\)")
+
+
+def plain_numbers(text: str) -> str:
+    """``text`` with every ``np.float64(1.5)``-style numpy scalar repr written as its value."""
+    return _NUMPY_SCALAR.sub(r"\1", text)
 
 
 class MaasscompError(Exception):
-    """Base class of all errors raised by maasscomp."""
+    """Base class of all errors raised by maasscomp. Its message never shows a numpy scalar
+    repr such as ``np.float64(1.5)``: numbers read as plain numbers."""
+
+    def __str__(self) -> str:
+        return plain_numbers(super().__str__())
 
 
 class InputError(MaasscompError, ValueError):

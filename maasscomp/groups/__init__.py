@@ -15,7 +15,8 @@ DirichletCharacter, unit_generators
     Dirichlet characters mod N by their exponents on fixed generators of (Z/NZ)^x.
 """
 
-from ._arith import divisors, factorint
+from maasscomp.arith import divisors, factorint
+
 from .characters import DirichletCharacter, unit_generators
 from .gamma0 import Cusp, Gamma0, Pullback, gamma0
 

@@ -1,48 +1,18 @@
-"""Exact integer helpers for Gamma0(N): factorisation, Bezout, and an O(1) index of P^1(Z/NZ).
+"""Exact integer helpers for Gamma0(N): SL2(Z) matrices and an O(1) index of P^1(Z/NZ).
+
+Factorisation, divisors and Bezout come from :mod:`maasscomp.arith`.
 
 Everything here works on Python ints or int64 arrays; nothing uses floating point.
 """
 
 from __future__ import annotations
 
-import math
 
 import numpy as np
 
+from maasscomp.arith import egcd, factorint
+
 Mat = tuple[tuple[int, int], tuple[int, int]]
-
-
-def factorint(n: int) -> dict[int, int]:
-    """Prime factorisation of ``n >= 1`` by trial division (levels are small)."""
-    out: dict[int, int] = {}
-    m = n
-    p = 2
-    while p * p <= m:
-        while m % p == 0:
-            out[p] = out.get(p, 0) + 1
-            m //= p
-        p += 1 if p == 2 else 2
-    if m > 1:
-        out[m] = out.get(m, 0) + 1
-    return out
-
-
-def divisors(n: int) -> list[int]:
-    """Sorted positive divisors of ``n``."""
-    small = [d for d in range(1, math.isqrt(n) + 1) if n % d == 0]
-    return sorted(set(small + [n // d for d in small]))
-
-
-def egcd(a: int, b: int) -> tuple[int, int, int]:
-    """Return ``(g, x, y)`` with ``a x + b y = g = gcd(a, b) >= 0``."""
-    x0, y0, x1, y1 = 1, 0, 0, 1
-    while b:
-        q, a, b = a // b, b, a - (a // b) * b
-        x0, x1 = x1, x0 - q * x1
-        y0, y1 = y1, y0 - q * y1
-    if a < 0:
-        a, x0, y0 = -a, -x0, -y0
-    return a, x0, y0
 
 
 def sl2_first_column(a: int, c: int) -> Mat:

@@ -24,6 +24,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike
 
+from maasscomp.arith import divisors, egcd, euler_phi, factorint, kronecker
 from maasscomp.errors import ConvergenceError, InputError
 
 from . import _arith
@@ -40,20 +41,6 @@ _TOO_LOW = (
     "matrices leave the int64 range (a double-precision point is only determined to "
     "relative ~1e-16/Im z there); supported: Im z >= 1e-12"
 )
-
-
-def _kronecker_minus4(p: int) -> int:
-    if p == 2:
-        return 0
-    return 1 if p % 4 == 1 else -1
-
-
-def _kronecker_minus3(p: int) -> int:
-    if p == 3:
-        return 0
-    if p == 2:
-        return -1  # (-3/2) = -1: -3 = 5 mod 8
-    return 1 if p % 3 == 1 else -1
 
 
 # ----------------------------------------------------------------------------------------
@@ -228,7 +215,7 @@ class Gamma0:
 
     def __post_init__(self) -> None:
         N = _check_level(self.level)
-        fac = _arith.factorint(N)
+        fac = factorint(N)
         primes = tuple(sorted(fac))
         mu = N
         for p in primes:
@@ -236,12 +223,12 @@ class Gamma0:
         if N % 4 == 0:
             nu2 = 0
         else:
-            nu2 = math.prod(1 + _kronecker_minus4(p) for p in primes)
+            nu2 = math.prod(1 + kronecker(-4, p) for p in primes)
         if N % 9 == 0:
             nu3 = 0
         else:
-            nu3 = math.prod(1 + _kronecker_minus3(p) for p in primes)
-        n_cusps = sum(_euler_phi(math.gcd(c, N // c)) for c in _arith.divisors(N))
+            nu3 = math.prod(1 + kronecker(-3, p) for p in primes)
+        n_cusps = sum(euler_phi(math.gcd(c, N // c)) for c in divisors(N))
         twelve_g = 12 + mu - 3 * nu2 - 4 * nu3 - 6 * n_cusps
         if twelve_g % 12:
             raise AssertionError(f"genus formula not integral for N={N}")
@@ -345,7 +332,7 @@ class Gamma0:
     def exact_divisors(self) -> tuple[int, ...]:
         """The Q || N (Q | N and gcd(Q, N/Q) = 1), sorted."""
         N = self.level
-        return tuple(Q for Q in _arith.divisors(N) if math.gcd(Q, N // Q) == 1)
+        return tuple(Q for Q in divisors(N) if math.gcd(Q, N // Q) == 1)
 
     def atkin_lehner(self, Q: int) -> np.ndarray:
         """An Atkin--Lehner matrix W_Q = [[Q x, y], [N z, Q w]] with det W_Q = Q.
@@ -463,7 +450,7 @@ class _Tables:
     def _cusp_labels(N: int) -> list[tuple[int, int]]:
         """(a, c) with c | N, a mod gcd(c, N/c) a unit, lifted with gcd(a, c) = 1."""
         labels = []
-        for c in _arith.divisors(N):
+        for c in divisors(N):
             if c == N:
                 labels.append((1, N))
                 continue
@@ -792,17 +779,10 @@ def _atkin_lehner_matrix(N: int, Q: int) -> Mat:
         return ((0, -1), (N, 0))
     c = N // Q
     # [[Q, y], [N, Q w]], det = Q (Q w - c y) = Q
-    g, w, yy = _arith.egcd(Q, c)
+    g, w, yy = egcd(Q, c)
     if g != 1:
         raise AssertionError(f"Q={Q} not exact in N={N}")
     return ((Q, -yy), (N, Q * w))
-
-
-def _euler_phi(n: int) -> int:
-    out = n
-    for p in _arith.factorint(n):
-        out = out // p * (p - 1)
-    return out
 
 
 def _is_int(v: Any) -> bool:

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import json
 import logging
+import math
 import sys
 import time
 from collections import Counter
@@ -233,7 +234,8 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
     verbose : bool
         Also print every log line (task by task) on stderr.
     show_progress : bool, optional
-        Progress bar on stderr (default: not quiet).
+        Progress bars on stderr (default: when not quiet and stderr is a terminal, so that a
+        redirected log never receives the carriage returns of a bar).
     executor : optional
         An entered executor to use instead of the one named in the config (the caller
         starts and stops it, e.g. to share one cluster between jobs).
@@ -256,7 +258,9 @@ def run_job(cfg: Config, *, quiet: bool = False, verbose: bool = False,
     if echo is None:
         echo = (lambda _m: None) if quiet else print
     if show_progress is None:
-        show_progress = not quiet
+        show_progress = not quiet and sys.stderr.isatty()
+    elif quiet:
+        show_progress = False
     t0 = time.perf_counter()
     plan = preflight(cfg)
     run_id = cfg.job.name
@@ -500,6 +504,7 @@ def _weyl_summary(st, cfg: Config, plan: Plan, summary: JobSummary) -> list[str]
         lines.append(f"level {N}, R in [{a:g}, {b:g}]: {rep.total_found} forms, "
                      f"{rep.total_expected:.2f} expected by Weyl's law; {state}")
         lines += _window_test_lines(rep)
+        lines += ["  " + t for t in completeness_advice(N, a, b, rep.flagged, cfg.search.step)]
     return lines
 
 
@@ -526,6 +531,48 @@ def _window_test_lines(rep) -> list[str]:
     return out
 
 
+def _nice_up(x: float) -> float:
+    """x rounded up to 1, 2 or 5 times a power of ten."""
+    e = math.floor(math.log10(x))
+    for m in (1.0, 2.0, 5.0, 10.0):
+        if m * 10.0**e >= x * (1 - 1e-12):
+            return m * 10.0**e
+    return 10.0 ** (e + 1)
+
+
+def completeness_advice(level: int, R_min: float, R_max: float, flagged, step: float | None) -> list[str]:
+    """What to do about each window Weyl's law still flags after the recheck, one line each.
+
+    A window at an end of the searched range is flagged most often because the Turing-style
+    integral has no forms beyond the end to close its bound (docs/theory.md §8.4):
+    the remedy is a wider window, by ``margin`` = max(1, 10 mean spacings) rounded up (finished
+    tasks are kept, so the rerun costs only the new part). Inside the range a form is probably
+    missing: the remedy is a finer lattice of expansion points ([search] step, half the mean
+    spacing). ``flagged`` holds :class:`~maasscomp.spectrum.weyl.CompletenessWindow` objects.
+    """
+    out = []
+    for w in flagged:
+        width = max(w.T_hi - w.T_lo, 1e-9)
+        density = max(w.expected / width, 1e-9)  # forms per unit of R near the window
+        margin = _nice_up(max(1.0, 10.0 / density))
+        where = f"level {level}: window ({w.T_lo:.3f}, {w.T_hi:.3f}] (found {w.found}, expected {w.expected:.2f})"
+        if w.T_hi >= R_max - 1e-9 * max(1.0, R_max):
+            out.append(f"{where} is flagged at the upper edge of the searched range: extend the window to "
+                       f"R_max = {R_max + margin:g} (R_max + {margin:g}) and rerun the same config; "
+                       "finished tasks are kept")
+        elif w.T_lo <= R_min + 1e-9 * max(1.0, R_min) and R_min > margin:
+            out.append(f"{where} is flagged at the lower edge of the searched range: extend the window to "
+                       f"R_min = {R_min - margin:g} (R_min - {margin:g}) and rerun the same config; "
+                       "finished tasks are kept")
+        else:
+            finer = min(0.5 / density, (step if step else 0.1) / 2)
+            out.append(f"{where}: a form is probably missing there; search R in [{w.T_lo:g}, {w.T_hi:g}] "
+                       f"again with a finer lattice, [search] step = {float(f'{finer:.2g}'):g}, in a config "
+                       "with a new output store (a store keeps the step it was made with), or from Python "
+                       f"with maasscomp.spectrum.complete_search(gamma0({level}), {w.T_lo:g}, {w.T_hi:g})")
+    return out
+
+
 def _plan_keys(st, cfg: Config, plan: Plan) -> list[str]:
     """Keys of the stored forms inside the plan's levels, classes and windows."""
     keys = []
@@ -541,9 +588,10 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
     """Scan every form of the plan that has no scan yet; commit each scan with its mark."""
     from tqdm import tqdm
 
-    from maasscomp.pipeline.tasks import ScanTask, execute, scanner
+    from maasscomp.pipeline.tasks import ScanTask, execute
+    from maasscomp.supnorm.scan import NORM_ATTACHMENT as norm_attachment
+    from maasscomp.supnorm.scan import SCAN_ATTACHMENT as attachment
 
-    attachment, norm_attachment = scanner()
     keys = _plan_keys(st, cfg, plan)
     sc = cfg.scan
 

@@ -32,7 +32,8 @@ import traceback
 from dataclasses import dataclass, field
 from typing import Any
 
-from maasscomp.config import Config, is_squarefree
+from maasscomp.arith import is_squarefree, prime_factors
+from maasscomp.config import Config
 from maasscomp.errors import InputError
 
 #: Extra R searched on each side of a chunk.
@@ -235,17 +236,6 @@ class ScanOutput:
     ratio: float
 
 
-def scanner():
-    """(scan attachment name, norm attachment name) of the sup-norm scanner, or None if
-    this version lacks it."""
-    try:
-        from maasscomp.supnorm.norm import l2_norm  # noqa: F401
-        from maasscomp.supnorm.scan import NORM_ATTACHMENT, SCAN_ATTACHMENT, scan_form  # noqa: F401
-    except ImportError:
-        return None
-    return SCAN_ATTACHMENT, NORM_ATTACHMENT
-
-
 @dataclass(frozen=True)
 class SearchOutput:
     forms: tuple
@@ -410,23 +400,10 @@ def supported_R_max() -> float:
     return float(getattr(special, "R_MAX", 1e4))
 
 
-def _prime_factors(n: int) -> list[int]:
-    out, d = [], 2
-    while d * d <= n:
-        if n % d == 0:
-            out.append(d)
-            while n % d == 0:
-                n //= d
-        d += 1
-    if n > 1:
-        out.append(n)
-    return out
-
-
 def _index(N: int) -> int:
     """[SL2(Z) : Gamma0(N)] = N prod_{p | N} (1 + 1/p) (Diamond & Shurman 2005, §1.2)."""
     out = N
-    for p in _prime_factors(N):
+    for p in prime_factors(N):
         out = out // p * (p + 1)
     return out
 
@@ -436,7 +413,7 @@ def _classes_searched(N: int, parities: tuple[str, ...], atkin_lehner: str) -> t
     :func:`class_labels` and :func:`maasscomp.spectrum.search.symmetry_classes`)."""
     if not is_squarefree(N):
         return len(parities), 2
-    k = len(_prime_factors(N))
+    k = len(prime_factors(N))
     per_parity = 2 ** k if (atkin_lehner == "all" or N == 1) else 1
     return len(parities) * per_parity, 2 * 2 ** k
 
@@ -625,9 +602,6 @@ def build_plan(cfg: Config) -> Plan:
 
             M = info["n_cusps"] * truncation_M0(s.R_max + 1.0, info["Y"], s.eps)
             hours += _level_points(cfg, N) * 2 * (2 / 3 * M**3 + 10 * M * M) / _FLOPS / 3600
-    if cfg.scan.enabled and scanner() is None:
-        problems.append("[scan] enabled = true, but this version has no sup-norm scanner; "
-                        "set enabled = false")
     if problems:
         if len(problems) == 1:
             raise InputError(where + problems[0])

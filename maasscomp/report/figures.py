@@ -27,7 +27,7 @@ import scipy.fft
 
 from maasscomp.report.peaks import (BeatsExtrapolation, band_label, band_of, bands, kt_profile_max, region_share,
                                     transition_beats_bulk)
-from maasscomp.supnorm.scan import ScanResult, omega_charts, random_wave_max
+from maasscomp.supnorm.scan import ScanResult, first_nonzero, omega_charts, random_wave_max, transition_height
 
 KIND_COLOURS = {"transition": "#d95f02", "omega": "#1b9e77", "intermediate": "#7570b3"}
 KIND_NAMES = {"transition": "transition zone", "omega": "Ω (fixed compact set)", "intermediate": "intermediate"}
@@ -64,22 +64,54 @@ def plot_form_map(form, result: ScanResult, path: str | os.PathLike, *, evaluato
     each sampled at ``cols`` x 2 or more points by FFT (the form oscillates on the scale 2 pi y / R,
     far below a pixel at large R, so the map shows the local envelope of |f|).
     """
-    from maasscomp.supnorm.evaluate import FormEvaluator
+    fig = form_map_figure(form, result, evaluator=evaluator, rows=rows, cols=cols, per_row=per_row)
+    return _save(fig, path)
+
+
+def plot_form(form, *, normalized: bool = True, path: str | os.PathLike | None = None, rows: int = 120,
+              cols: int = 160, per_row: int = 4):
+    """|f| (or |f|/||f|| with ``normalized``) over the fundamental domain without a scan.
+
+    One panel per cusp in its own coordinate, the lower edge Y_T of each transition zone dashed
+    (docs/theory.md §11.1); no regions or peaks (those come from a scan, see
+    :func:`plot_form_map`). The L2 norm is computed once per form
+    (:func:`maasscomp.supnorm.norm.l2_norm`). Returns the matplotlib ``Figure``; with ``path``
+    it is also written there. This is what ``Form.plot()`` calls.
+    """
+    fig = form_map_figure(form, None, normalized=normalized, rows=rows, cols=cols, per_row=per_row)
+    if path is not None:
+        _save(fig, path)
+    return fig
+
+
+def form_map_figure(form, result: ScanResult | None, *, evaluator=None, normalized: bool = True,
+                    rows: int = 300, cols: int = 420, per_row: int = 6):
+    """The map of :func:`plot_form_map` (``result`` given) or :func:`plot_form` (``result``
+    None) as a ``Figure``."""
+    from maasscomp.supnorm.evaluate import FormEvaluator, normalising_scale
 
     ev = evaluator if evaluator is not None else FormEvaluator(form)
     G = ev.group
     h = G.n_cusps
     charts = omega_charts(G)
-    Yo = result.Y_omega
-    fig = _figure(4.6 * h + 1.4, 6.0)
+    if result is not None:
+        Yo, Y_T, y_top, scale = result.Y_omega, result.Y_T, result.y_top, result.scale
+        vmax = result.global_value
+    else:
+        Yo = None
+        Y_T = [transition_height(ev.R, first_nonzero(np.asarray(form.coeffs)[j])) for j in range(h)]
+        y_top = [max(1.3 * t, 2.0) for t in Y_T]
+        scale = normalising_scale(form, ev) if normalized else math.exp(-math.pi * ev.R / 2.0)
+        vmax = None
+    fig = _figure(4.6 * h + 1.4, 6.0 if result is not None else 4.8)
     axes = fig.subplots(1, h, squeeze=False)[0]
-    vmax = result.global_value
-    im = None
+    panels = []
     for j, ax in enumerate(axes):
-        Yt = result.Y_T[j]
+        Yt = Y_T[j]
         # the highest representatives reach down to the group's fundamental-domain height
         y_lo = min(G.fundamental_domain_height, charts[j].r * math.sqrt(3.0) / 2.0) * 0.98
-        y_hi = max(1.6 * max(Yt, Yo), 1.3 * result.y_top[j] ** 0.5 * max(Yt, Yo) ** 0.5, 2.5 * Yo)
+        top = max(Yt, Yo) if Yo is not None else max(Yt, 1.0)
+        y_hi = max(1.6 * top, 1.3 * y_top[j] ** 0.5 * top ** 0.5, 2.5 * (Yo if Yo is not None else 1.0))
         edges = np.geomspace(y_lo, y_hi, rows + 1)
         V = np.full((rows, cols), np.nan)
         for i in range(rows):
@@ -91,20 +123,33 @@ def plot_form_map(form, result: ScanResult, path: str | os.PathLike, *, evaluato
                 x, v = ev.horocycle(j, float(y), L, nt)
                 col = np.minimum(((x + 0.5) * cols).astype(int), cols - 1)
                 np.maximum.at(best, col, np.abs(v))
-            V[i] = best * result.scale
+            V[i] = best * scale
         # keep the pixels whose centre is the highest representative of its orbit in this chart
         xc = -0.5 + (np.arange(cols) + 0.5) / cols
         yc = np.sqrt(edges[:-1] * edges[1:])
         X, Y = np.meshgrid(xc, yc)
         zx, zy = G.cusps[j].apply_scaling(X.ravel(), Y.ravel())
         pb = G.pullback(zx, zy)
-        own = (np.asarray(pb.cusp) == j) & (np.asarray(pb.y) >= Y.ravel() * (1 - 1e-9))
+        # (the pullback never lowers a point: a pixel is the highest when the pullback keeps its height)
+        own = (np.asarray(pb.cusp) == j) & (np.asarray(pb.y) <= Y.ravel() * (1 + 1e-9))
         V[~own.reshape(V.shape)] = np.nan
+        panels.append((ax, edges, V, y_lo, y_hi, Yt))
+    if vmax is None:
+        vmax = max(float(np.nanmax(V)) if np.isfinite(V).any() else 0.0 for _, _, V, *_ in panels) or 1.0
+    im = None
+    for j, (ax, edges, V, y_lo, y_hi, Yt) in enumerate(panels):
         im = ax.pcolormesh(np.linspace(-0.5, 0.5, cols + 1), edges, V, shading="flat", cmap="magma",
                            vmin=0.0, vmax=vmax, rasterized=True)
         ax.set_yscale("log")
         ax.set_xlim(-0.5, 0.5)
         ax.set_ylim(y_lo, y_hi)
+        ax.set_xlabel(f"x (coordinate of cusp {j}, width {G.cusps[j].width})")
+        ax.set_ylabel("y (log scale)")
+        if result is None:
+            if y_lo < Yt < y_hi:
+                ax.axhline(Yt, color=KIND_COLOURS["transition"], lw=1.0, ls="--")
+                ax.text(0.49, Yt, f"Y_T = {Yt:.4g}", color="w", fontsize=7, ha="right", va="bottom")
+            continue
         # regions: a colour strip at the left edge (Omega below Y_omega, intermediate up to Y_T,
         # transition zone above) and dashed lines across the map
         Tz = max(Yt, Yo)
@@ -133,13 +178,17 @@ def plot_form_map(form, result: ScanResult, path: str | os.PathLike, *, evaluato
         if om.cusp == j:
             ax.plot([om.x], [om.y], marker="o", ms=9, mfc="none", mec=KIND_COLOURS["omega"], mew=2.0, ls="none",
                     label=f"Ω peak {om.value:.4g}")
-        ax.set_xlabel(f"x (coordinate of cusp {j}, width {G.cusps[j].width})")
-        ax.set_ylabel("y (log scale)")
         ax.legend(fontsize=7, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, frameon=False)
-    fig.colorbar(im, ax=list(axes), label="|f| / ‖f‖ (largest sampled value per pixel)", shrink=0.9)
-    fig.suptitle(f"Level {form.level}, {form.symmetry.label}, R = {form.R:.10g}: global maximum "
-                 f"{result.global_value:.4g} in {result.global_region}", fontsize=11)
-    return _save(fig, path)
+    if result is not None:
+        fig.colorbar(im, ax=list(axes), label="|f| / ‖f‖ (largest sampled value per pixel)", shrink=0.9)
+        fig.suptitle(f"Level {form.level}, {form.symmetry.label}, R = {form.R:.10g}: global maximum "
+                     f"{result.global_value:.4g} in {result.global_region}", fontsize=11)
+    else:
+        what = "|f| / ‖f‖" if normalized else "|f| (c(1) = 1)"
+        fig.colorbar(im, ax=list(axes), label=f"{what} (largest sampled value per pixel)", shrink=0.9)
+        key = f" ({form.key})" if getattr(form, "key", None) else ""
+        fig.suptitle(f"Level {form.level}, {form.symmetry.label}, R = {form.R:.10g}{key}", fontsize=11)
+    return fig
 
 
 # ------------------------------------------------------------------------------------------

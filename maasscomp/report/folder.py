@@ -12,8 +12,8 @@ Contents (file names fixed, so scripts can rely on them):
     For every level whose searched R range covers all symmetry classes: forms found
     against Weyl's law (:func:`maasscomp.spectrum.weyl.completeness`) window by window,
     and a figure of N(T) and W(T) with the remainder N(T) - W(T).
-``peaks.csv``, ``regions.csv``, ``shares.csv``, ``fits.csv``, ``beats.csv``, ``peaks.md``, figures
-    The figures are those of :data:`PEAK_FIGURES` and the ``form_<key>.png`` maps. The peak study of the sup-norm scans (where the maximum lies, predictions, fits, the
+``peaks.csv``, ``regions.csv``, ``shares.csv``, ``fits.csv``, ``beats.csv``, ``peaks.md``, the figures of :data:`PEAK_FIGURES` and ``form_<key>.png`` maps
+    The peak study of the sup-norm scans (where the maximum lies, predictions, fits, the
     fraction of forms whose transition peak beats the bulk), when the store holds scans; the
     same files as ``maasscomp figures`` writes (:func:`write_peak_files`).
 """

@@ -1,5 +1,8 @@
 """The one CSV writer and the one Markdown table writer of the package.
 
+(:func:`write_csv` for tables held in memory, :func:`write_csv_rows` for tables streamed
+row by row, such as every coefficient of a store.)
+
 Every table of the report stage is a list of columns (:class:`Column`: name, meaning, display
 format) and a list of rows (dicts keyed by column name). Values may be Python or numpy
 scalars; both writers turn numpy scalars into plain Python numbers first, so a CSV cell
@@ -121,6 +124,33 @@ def csv_text(columns: Iterable[Column | str], rows: Sequence[dict[str, Any]]) ->
 def write_csv(path: str | os.PathLike, columns: Iterable[Column | str], rows: Sequence[dict[str, Any]]) -> Path:
     """Write a table as CSV (full precision; atomic replace). Returns the path."""
     return _atomic_write(Path(path), csv_text(columns, rows))
+
+
+def write_csv_rows(path: str | os.PathLike, columns: Iterable[Column | str],
+                   rows: Iterable[dict[str, Any] | Sequence[Any]]) -> tuple[Path, int]:
+    """Write a table as CSV row by row (for tables too large to hold as text; atomic replace).
+
+    ``rows`` yields dicts keyed by column name or sequences in column order. Returns the path
+    and the number of rows written.
+    """
+    cols = as_columns(columns)
+    names = [c.name for c in cols]
+    path = Path(path)
+    tmp = path.with_name(path.name + ".tmp")
+    n = 0
+    try:
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
+            w = csv.writer(fh, lineterminator="\n")
+            w.writerow(names)
+            for r in rows:
+                vals = [r.get(k) for k in names] if isinstance(r, dict) else r
+                w.writerow([csv_cell(v) for v in vals])
+                n += 1
+        os.replace(tmp, path)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+    return path, n
 
 
 def markdown_table(columns: Iterable[Column | str], rows: Sequence[dict[str, Any]], *,

@@ -20,11 +20,8 @@ import math
 
 import numpy as np
 
+from maasscomp.arith import primes_up_to
 from maasscomp.groups import factorint
-
-
-def _primes_upto(n: int) -> list[int]:
-    return [p for p in range(2, n + 1) if all(p % q for q in range(2, int(math.isqrt(p)) + 1))]
 
 
 def hecke_residual(a: np.ndarray, level: int = 1, nmax: int = 30) -> float:
@@ -55,7 +52,7 @@ def hecke_residual(a: np.ndarray, level: int = 1, nmax: int = 30) -> float:
         for n in range(m + 1, nmax // m + 1):
             if math.gcd(m, n) == 1:
                 worst = max(worst, abs(A(m * n) - A(m) * A(n)))
-    for p in _primes_upto(nmax):
+    for p in primes_up_to(nmax):
         if level % p == 0:
             continue
         prev, cur, pk = 1.0, A(p), p

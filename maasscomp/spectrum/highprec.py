@@ -44,6 +44,7 @@ from typing import Callable
 import numpy as np
 from flint import acb, arb, arb_mat, ctx
 
+from maasscomp.arith import factorint
 from maasscomp.errors import ConvergenceError, InputError
 
 __all__ = ["HighPrecisionForm", "refine_high_precision", "extend_coefficients"]
@@ -154,22 +155,9 @@ def _level_data(level: int, al_signs: tuple[tuple[int, int], ...]) -> _Level:
     return _Level(G.fundamental_domain_height, None, fracs, _coprime_indices(level), G)
 
 
-def _factor(n: int) -> dict[int, int]:
-    out: dict[int, int] = {}
-    d = 2
-    while d * d <= n:
-        while n % d == 0:
-            out[d] = out.get(d, 0) + 1
-            n //= d
-        d += 1
-    if n > 1:
-        out[n] = out.get(n, 0) + 1
-    return out
-
-
 def _check_level_signs(level: int, al_signs) -> tuple[tuple[int, int], ...]:
     """Validate the level and the Atkin-Lehner class; return the signs as sorted pairs."""
-    fac = _factor(int(level))
+    fac = factorint(int(level))
     if any(e > 1 for e in fac.values()):
         if al_signs is not None:
             raise InputError(

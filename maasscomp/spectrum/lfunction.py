@@ -60,6 +60,7 @@ from typing import Callable, Mapping, Sequence
 import numpy as np
 from scipy.special import loggamma
 
+from maasscomp.arith import check_level, factorint, smallest_prime_factor
 from maasscomp.errors import InputError
 
 __all__ = [
@@ -104,40 +105,15 @@ _LOGPI = math.log(math.pi)
 
 
 def _squarefree_primes(level: object) -> tuple[int, ...]:
-    if isinstance(level, bool) or not isinstance(level, (int, np.integer)) or level < 1:
-        raise InputError(f"level {level!r} is not allowed; use a positive squarefree integer")
-    n = int(level)
-    ps = []
-    d = 2
-    while d * d <= n:
-        if n % d == 0:
-            n //= d
-            if n % d == 0:
-                raise InputError(
-                    f"level {level} is not squarefree; only squarefree levels are supported"
-                )
-            ps.append(d)
-        d += 1
-    if n > 1:
-        ps.append(n)
-    return tuple(ps)
+    fac = _level_primes(level)
+    if any(e > 1 for e in fac.values()):
+        raise InputError(f"level {level} is not squarefree; only squarefree levels are supported")
+    return tuple(sorted(fac))
 
 
 def _level_primes(level: object) -> dict[int, int]:
-    """Factorisation {p: e} of a positive integer level (any N)."""
-    if isinstance(level, bool) or not isinstance(level, (int, np.integer)) or level < 1:
-        raise InputError(f"level {level!r} is not allowed; use a positive integer")
-    n = int(level)
-    out: dict[int, int] = {}
-    d = 2
-    while d * d <= n:
-        while n % d == 0:
-            out[d] = out.get(d, 0) + 1
-            n //= d
-        d += 1
-    if n > 1:
-        out[n] = out.get(n, 0) + 1
-    return out
+    """Factorisation {p: e} of a positive integer level (any N), with a clear error."""
+    return factorint(check_level(level))
 
 
 def _check_R(R: object) -> float:
@@ -236,14 +212,6 @@ def _tail_cutoff(kern: _Kernel, tol: float, growth: float, n_hi: float = 1e6) ->
 # --------------------------------------------------------------------------- sym^2
 
 
-def _prime_sieve(n: int) -> np.ndarray:
-    spf = np.zeros(n + 1, dtype=np.int64)
-    for p in range(2, n + 1):
-        if spf[p] == 0:
-            spf[p::p][spf[p::p] == 0] = p
-    return spf
-
-
 def sym2_coefficients(
     hecke: Callable[[int], float] | Sequence[float] | np.ndarray, X: int, level: int = 1
 ) -> np.ndarray:
@@ -276,7 +244,7 @@ def sym2_coefficients(
         if arr.size < X:
             raise InputError(f"need a(p) for p <= {X}, but only a(1..{arr.size}) were given")
         ap = lambda p: float(arr[p - 1])  # noqa: E731
-    spf = _prime_sieve(X)
+    spf = smallest_prime_factor(X)
     b = np.zeros(X + 1)
     b[1] = 1.0
     # prime powers

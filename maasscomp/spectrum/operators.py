@@ -51,6 +51,7 @@ from typing import Sequence
 
 import numpy as np
 
+from maasscomp.arith import is_prime
 from maasscomp.errors import InputError
 from maasscomp.spectrum.form import Form
 
@@ -469,10 +470,6 @@ def label_atkin_lehner(group, form: Form, *, err_tol: float = DEFAULT_ERR_TOL) -
 # ----------------------------------------------------------------------------------------
 
 
-def _is_prime(p: int) -> bool:
-    return p >= 2 and all(p % q for q in range(2, math.isqrt(p) + 1))
-
-
 def hecke_image(coeffs: np.ndarray, p: int, level: int) -> np.ndarray:
     """Coefficients at infinity of T_p f (p not dividing N) or U_p f (p | N).
 
@@ -491,7 +488,7 @@ def hecke_image(coeffs: np.ndarray, p: int, level: int) -> np.ndarray:
     ndarray, shape (M // p,)
         c(pn) + c(n/p) (T_p) or c(pn) (U_p) for n = 1..M//p (module docstring).
     """
-    if not (isinstance(p, (int, np.integer)) and _is_prime(int(p))):
+    if not (isinstance(p, (int, np.integer)) and is_prime(int(p))):
         raise InputError(f"p={p!r} is not allowed; it must be a prime")
     p = int(p)
     c = np.real(np.asarray(coeffs)).astype(float).ravel()

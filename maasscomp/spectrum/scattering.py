@@ -56,7 +56,7 @@ from dataclasses import dataclass, field
 import mpmath
 import numpy as np
 
-from maasscomp.errors import InputError
+from maasscomp.arith import check_level, prime_factors
 
 __all__ = [
     "DirichletCharacter",
@@ -138,15 +138,9 @@ def _unit_group(q: int, p: int, e: int) -> list[tuple[int, int]]:
     for g in range(2, q):
         if g % p == 0:
             continue
-        if all(pow(g, order // r, q) != 1 for r in _prime_factors(order)):
+        if all(pow(g, order // r, q) != 1 for r in prime_factors(order)):
             return [(g, order)]
     raise AssertionError(f"no generator mod {q}")  # pragma: no cover
-
-
-def _prime_factors(n: int) -> list[int]:
-    from maasscomp.groups import factorint
-
-    return sorted(factorint(n))
 
 
 @functools.lru_cache(maxsize=64)
@@ -393,15 +387,6 @@ class ScatteringData:
         return out
 
 
-def _check_level(level: object) -> int:
-    if isinstance(level, bool) or not isinstance(level, (int, np.integer)):
-        raise InputError(f"level {level!r} is not allowed; use a positive integer")
-    N = int(level)
-    if N < 1:
-        raise InputError(f"level {N} is not allowed; use a positive integer")
-    return N
-
-
 @functools.lru_cache(maxsize=32)
 def scattering_data(level: int) -> ScatteringData:
     """Exact count data of the scattering matrix of Gamma0(level) (module docstring).
@@ -411,7 +396,7 @@ def scattering_data(level: int) -> ScatteringData:
     """
     from maasscomp.groups import factorint, gamma0
 
-    N = _check_level(level)
+    N = check_level(level)
     G = gamma0(N)
     fac = factorint(N)
     primes = tuple(sorted(fac))

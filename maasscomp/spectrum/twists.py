@@ -38,7 +38,7 @@ from typing import Sequence
 import numpy as np
 
 from maasscomp.errors import InputError
-from maasscomp.groups import divisors, factorint
+from maasscomp.arith import divisors, is_squarefree, kronecker
 from maasscomp.spectrum.form import Form
 from maasscomp.spectrum.oldforms import DEFAULT_ERR_TOL, DEFAULT_FIT_TOL, ParentForm
 
@@ -53,56 +53,17 @@ __all__ = [
 ]
 
 
-def _jacobi(a: int, n: int) -> int:
-    """Jacobi symbol (a/n) for odd n > 0 (quadratic reciprocity; common practice)."""
-    a %= n
-    result = 1
-    while a:
-        while a % 2 == 0:
-            a //= 2
-            if n % 8 in (3, 5):
-                result = -result
-        a, n = n, a
-        if a % 4 == 3 and n % 4 == 3:
-            result = -result
-        a %= n
-    return result if n == 1 else 0
-
-
-def kronecker(D: int, n: int) -> int:
-    """The Kronecker symbol (D/n) for integers D and n >= 1.
-
-    (D/2) = 0 for even D, +1 for D = +-1 mod 8, -1 for D = +-3 mod 8; (D/p) the Legendre
-    symbol for odd primes p; completely multiplicative in n (common practice; e.g. H. Cohen,
-    *A Course in Computational Algebraic Number Theory* (1993) §1.4.2).
-    """
-    D, n = int(D), int(n)
-    if n < 1:
-        raise InputError(f"n={n!r} is not allowed; the Kronecker symbol here needs n >= 1")
-    result = 1
-    while n % 2 == 0:
-        n //= 2
-        if D % 2 == 0:
-            return 0
-        if D % 8 in (3, 5):
-            result = -result
-    return result * _jacobi(D, n) if n > 1 else result
-
-
 def is_fundamental_discriminant(D: int) -> bool:
     """D = 1 mod 4 squarefree, or D = 4m with m = 2, 3 mod 4 squarefree (D != 1)."""
     D = int(D)
     if D in (0, 1):
         return False
 
-    def squarefree(m: int) -> bool:
-        return all(e == 1 for e in factorint(abs(m)).values()) if abs(m) > 1 else True
-
     if D % 4 == 1:
-        return squarefree(D)
+        return is_squarefree(D)
     if D % 4 == 0:
         m = D // 4
-        return m % 4 in (2, 3) and squarefree(m)
+        return m % 4 in (2, 3) and is_squarefree(m)
     return False
 
 

@@ -70,6 +70,7 @@ from typing import Any, Sequence
 import mpmath
 import numpy as np
 
+from maasscomp.arith import check_level
 from maasscomp.errors import InputError
 
 __all__ = [
@@ -146,15 +147,6 @@ class WeylTerms:
         ])
 
 
-def _check_level(level: object) -> int:
-    if isinstance(level, bool) or not isinstance(level, (int, np.integer)):
-        raise InputError(f"level {level!r} is not allowed; use a positive integer")
-    N = int(level)
-    if N < 1:
-        raise InputError(f"level {N} is not allowed; use a positive integer")
-    return N
-
-
 @functools.lru_cache(maxsize=64)
 def weyl_terms(level: int) -> WeylTerms:
     """Constants of Weyl's law for Gamma0(level), any level (module docstring).
@@ -167,7 +159,7 @@ def weyl_terms(level: int) -> WeylTerms:
     """
     from maasscomp.groups import gamma0
 
-    N = _check_level(level)
+    N = check_level(level)
     g = gamma0(N)
     h = g.n_cusps
     if g.is_squarefree:
@@ -785,7 +777,7 @@ def completeness(
         turing_test,
     )
 
-    N = _check_level(level)
+    N = check_level(level)
     d = weyl_terms(N)
     if not (math.isfinite(T_min) and math.isfinite(T_max)) or T_min < 0 or T_max <= T_min:
         raise InputError(f"need 0 <= T_min < T_max, got T_min={T_min!r}, T_max={T_max!r}")
@@ -1018,7 +1010,7 @@ def turing_bound(level: int, T: float | np.ndarray, z: float = 4.0):
     :func:`maasscomp.spectrum.spectral_checks.turing_bound`."""
     from maasscomp.spectrum.spectral_checks import turing_bound as _tb
 
-    return _tb(_check_level(level), T, z)
+    return _tb(check_level(level), T, z)
 
 
 def __getattr__(name: str):

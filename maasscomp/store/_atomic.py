@@ -248,41 +248,58 @@ class WriterLock:
 
     The lock file sits beside the store's real path (symlinks resolved), so every name of
     one store takes the same lock.  ``flock`` locks vanish with the process, so a killed
-    writer never leaves the store locked.
+    writer never leaves the store locked.  The holder removes the file when it releases the
+    lock (no empty files are left beside a store); a waiter that then obtains the lock on
+    the removed file sees that the path no longer names the file it locked and tries again,
+    so two writers never both hold "the" lock.  A killed writer leaves its empty lock file,
+    which the next writer takes over and removes.
     """
 
     def __init__(self, target: Path, timeout: float) -> None:
         import fcntl
 
         self.path = target.with_name(target.name + S.LOCK_SUFFIX)
-        try:
-            self._fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
-        except OSError as exc:
-            try:
-                self._fd = os.open(self.path, os.O_RDONLY)
-            except OSError:
-                raise StoreError(f"cannot create lock file {self.path}: {cause(exc)}") from exc
         deadline = time.monotonic() + max(0.0, timeout)
         while True:
             try:
-                fcntl.flock(self._fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-                return
+                self._fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
             except OSError as exc:
+                try:
+                    self._fd = os.open(self.path, os.O_RDONLY)
+                except OSError:
+                    raise StoreError(f"cannot create lock file {self.path}: {cause(exc)}") from exc
+            try:
+                fcntl.flock(self._fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError as exc:
+                os.close(self._fd)
+                self._fd = -1
                 if exc.errno not in (errno.EAGAIN, errno.EACCES, errno.EWOULDBLOCK):
-                    os.close(self._fd)
                     raise StoreError(f"cannot lock {self.path}: {cause(exc)}") from exc
                 if time.monotonic() >= deadline:
-                    os.close(self._fd)
                     raise StoreError(
                         f"store {target} is open for writing by another process "
                         f"(lock file {self.path}); close it or open the store read-only"
                     ) from None
                 time.sleep(0.05)
+                continue
+            if self._names_locked_file():
+                return
+            os.close(self._fd)  # the holder removed it meanwhile: lock the current file
+            self._fd = -1
+
+    def _names_locked_file(self) -> bool:
+        try:
+            a, b = os.fstat(self._fd), os.stat(self.path)
+        except OSError:
+            return False
+        return (a.st_dev, a.st_ino) == (b.st_dev, b.st_ino)
 
     def release(self) -> None:
         import fcntl
 
         if self._fd >= 0:
+            with contextlib.suppress(OSError):  # removed while still held (see class notes)
+                os.unlink(self.path)
             with contextlib.suppress(OSError):
                 fcntl.flock(self._fd, fcntl.LOCK_UN)
             os.close(self._fd)

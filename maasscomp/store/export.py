@@ -1,4 +1,6 @@
-"""Export of a store to JSON and CSV (written atomically: temp file + rename).
+"""Export of a store to one JSON document holding every stored field (written atomically:
+temp file + rename). The document is described by ``docs/export-schema.json`` (JSON Schema,
+draft 2020-12); tables (CSV, plain text, LaTeX) are written by :mod:`maasscomp.report.export`.
 
 Floats are written with Python's ``repr``, the shortest decimal string that reads back
 to the same double, so exported numbers parse back bit-identical.  Strict JSON has no
@@ -14,34 +16,45 @@ without knowing this package's cusp order.  Damaged forms are left out and named
 
 from __future__ import annotations
 
-import csv
 import json
 import os
+import tomllib
 from pathlib import Path
 from typing import Any, Iterable
 
 import numpy as np
 
 from maasscomp import __version__
-from maasscomp.errors import InputError, StoreError
+from maasscomp.errors import StoreError
 from maasscomp.store import _atomic
 from maasscomp.store._codec import to_plain_json
-from maasscomp.store.store import FormRecord, Store, utc_now_iso, warn_damaged
+from maasscomp.store.store import FormRecord, Store, _text_id, utc_now_iso, warn_damaged
 
 #: ``format`` field of an exported JSON document.
 JSON_FORMAT = "maasscomp-export"
-JSON_FORMAT_VERSION = 1
-
-SUMMARY_COLUMNS = (
-    "key", "level", "symmetry", "parity", "al_signs", "R", "R_error", "hecke_residual",
-    "is_new", "multiplicity", "basis_index", "n_cusps", "M",
-    "solver_Y", "solver_M0", "solver_Q", "solver_eps", "run_id", "created_utc", "extra",
-    "character", "conductor", "cusps",
-)
-COEFF_COLUMNS = ("key", "cusp", "n", "c", "error", "cusp_name")
+#: Version 2: attachments (scans, norms) always, configs parsed into objects and referenced
+#: by id from each form's provenance.
+JSON_FORMAT_VERSION = 2
 
 
-def _keys(st: Store, keys: Iterable[str] | None) -> list[str]:
+def parse_config_text(text: str) -> dict[str, Any] | None:
+    """A stored config text as a JSON object: the job record a run stores is JSON, the config
+    a form was made with is TOML; None when the text is empty or neither."""
+    if not text:
+        return None
+    try:
+        v = json.loads(text)
+        if isinstance(v, dict):
+            return v
+    except ValueError:
+        pass
+    try:
+        return tomllib.loads(text)
+    except (tomllib.TOMLDecodeError, ValueError):
+        return None
+
+
+def keys_of(st: Store, keys: Iterable[str] | None) -> list[str]:
     if keys is None:
         return st.keys()
     keys = list(keys)
@@ -88,7 +101,8 @@ def record_of(rec: FormRecord) -> dict[str, Any]:
         "n_cusps": int(rec.coeffs.shape[0]),
         "M": int(rec.coeffs.shape[1]),
         "extra": rec.extra,
-        "provenance": rec.provenance,
+        "provenance": {**{k: v for k, v in rec.provenance.items() if k != "config"},
+                       "config_id": _text_id(rec.provenance["config"]) if rec.provenance["config"] else None},
     }
     if rec.fields:
         out["fields"] = rec.fields
@@ -108,16 +122,21 @@ def form_record(st: Store, key: str, attachments: bool = False) -> dict[str, Any
 
 
 def export_json(store_path: str | os.PathLike, out_path: str | os.PathLike,
-                keys: Iterable[str] | None = None, *, attachments: bool = False,
+                keys: Iterable[str] | None = None, *, attachments: bool = True,
                 indent: int | None = 1, damaged: list[tuple[str, str]] | None = None) -> int:
-    """Write one JSON document with the store's metadata and every field of its forms.
+    """Write one JSON document with everything the store holds.
 
-    The document is ``{"format": "maasscomp-export", "format_version": 1, "source": ...,
-    "store": {root attributes}, "runs": {...}, "exported_utc": ..., "package_version": ...,
-    "forms": [record, ...], "damaged": [{"key", "reason"}, ...]}`` with records as built
-    by :func:`form_record` (coefficient arrays as nested lists ``[cusp][n-1]``; complex
-    numbers as ``{"re", "im"}``).  The document is written record by record (one form per
-    line), so memory does not grow with the store.
+    The document (``docs/export-schema.json``) is ``{"format": "maasscomp-export",
+    "format_version": 2, "source", "store": {root attributes}, "runs": {id: {run_id,
+    created_utc, package_version, config (the run's job record as an object), config_text,
+    n_tasks_done, done_tasks}}, "configs": {id: {"text", "parsed"}}, "exported_utc",
+    "package_version", "forms": [record, ...], "damaged": [{"key", "reason"}, ...]}``. Each
+    record (:func:`record_of`) holds every field of a form, its character and cusp data, its
+    provenance (the config it was made with by ``config_id`` into ``configs``) and, with
+    ``attachments`` (the default), everything stored beside it (L2 norm, peak scan).
+    Coefficient arrays are nested lists ``[cusp][n-1]``; complex numbers ``{"re", "im"}``.
+    The document is written record by record (one form per line), so memory does not grow
+    with the store.
 
     Damaged forms (and damaged attachments of intact forms) are left out, listed in the
     document's ``damaged`` field, appended to ``damaged`` when a list is given, and
@@ -130,24 +149,33 @@ def export_json(store_path: str | os.PathLike, out_path: str | os.PathLike,
     """
     n = 0
     with Store.open(store_path, "r") as st:
-        ks = _keys(st, keys)
+        ks = keys_of(st, keys)
+        runs = {}
+        for r in st.runs():
+            info = st.run_info(r)
+            text = info.pop("config")
+            runs[r] = {**info, "config": parse_config_text(text), "config_text": text,
+                       "done_tasks": st.done_tasks(r)}
         head = {
             "format": JSON_FORMAT,
             "format_version": JSON_FORMAT_VERSION,
             "source": str(Path(store_path)),
             "store": to_plain_json(st.metadata),
-            "runs": to_plain_json({r: {**st.run_info(r), "done_tasks": st.done_tasks(r)}
-                                   for r in st.runs()}),
+            "runs": to_plain_json(runs),
             "exported_utc": utc_now_iso(),
             "package_version": __version__,
         }
         bad: dict[str, str] = {}
+        configs: dict[str, dict[str, Any]] = {}
         with _atomic.atomic_text_writer(out_path) as fh:
             text = json.dumps(head, indent=indent, allow_nan=False)
             fh.write(text[:-1].rstrip() + ',\n "forms": [')
             first = True
             for fr in st.iter_records(ks):
                 rec = record_of(fr)
+                cfg = fr.provenance["config"]
+                if cfg and rec["provenance"]["config_id"] not in configs:
+                    configs[rec["provenance"]["config_id"]] = {"text": cfg, "parsed": parse_config_text(cfg)}
                 if attachments:
                     atts = {}
                     for name in st.attachments(fr.key):
@@ -162,7 +190,9 @@ def export_json(store_path: str | os.PathLike, out_path: str | os.PathLike,
                 n += 1
             for k, why in st.damaged().items():
                 bad.setdefault(k, why)
-            fh.write("\n ],\n \"damaged\": ")
+            fh.write("\n ],\n \"configs\": ")
+            fh.write(json.dumps(to_plain_json(configs), allow_nan=False))
+            fh.write(",\n \"damaged\": ")
             fh.write(json.dumps([{"key": k, "reason": why} for k, why in bad.items()]))
             fh.write("\n}\n")
     _report(bad, damaged, store_path)
@@ -174,84 +204,3 @@ def _report(bad: dict[str, str], damaged: list | None, path: Any) -> None:
         damaged.extend(bad.items())
     else:
         warn_damaged(bad, path)
-
-
-def _num(x: Any) -> str:
-    """Full-precision text of a number for CSV (repr of float; complex as Python literal)."""
-    if isinstance(x, float):
-        return repr(x)
-    if isinstance(x, complex):
-        return repr(x)
-    return str(x)
-
-
-def export_csv(store_path: str | os.PathLike, out_path: str | os.PathLike,
-               keys: Iterable[str] | None = None, n_coeffs: int = 10, *,
-               coeffs_path: str | os.PathLike | None = None,
-               damaged: list[tuple[str, str]] | None = None) -> int:
-    """Write a CSV with one row per form, and optionally a long-format coefficient CSV.
-
-    Parameters
-    ----------
-    store_path, out_path : path-like
-    keys : iterable of str, optional
-        Forms to export (default all, in write order).
-    n_coeffs : int
-        Number K of coefficients at infinity in columns ``c1`` .. ``cK`` of the summary
-        (cells are empty for forms with fewer than K coefficients).
-    coeffs_path : path-like, optional
-        Also write every coefficient, one row each: ``key, cusp, n, c, error, cusp_name``.
-    damaged : list, optional
-        Damaged forms are left out and appended here as (key, reason); without a list
-        they are reported by one DamagedDataWarning.
-
-    Summary columns: :data:`SUMMARY_COLUMNS` then ``c1..cK``.  ``al_signs`` is written as
-    ``p:+1;q:-1``; ``is_new`` as ``true``/``false``/empty; ``extra`` as JSON text;
-    ``character`` as its label, ``cusps`` as the cusp names of the rows, ``;``-separated.
-
-    Returns
-    -------
-    int
-        Number of forms written.
-    """
-    if isinstance(n_coeffs, bool) or not isinstance(n_coeffs, int) or n_coeffs < 0:
-        raise InputError(f"n_coeffs {n_coeffs!r} is not allowed; use an integer >= 0")
-    n = 0
-    with Store.open(store_path, "r") as st:
-        ks = _keys(st, keys)
-        written = []
-        with _atomic.atomic_text_writer(out_path, newline="") as fh:
-            w = csv.writer(fh)
-            w.writerow(list(SUMMARY_COLUMNS) + [f"c{n}" for n in range(1, n_coeffs + 1)])
-            for fr in st.iter_records(ks):
-                prov = fr.provenance
-                row = [
-                    fr.key, fr.level, fr.symmetry, fr.parity,
-                    ";".join(f"{p}:{s:+d}" for p, s in fr.al_signs),
-                    _num(fr.R), _num(fr.R_error), _num(fr.hecke_residual),
-                    "" if fr.is_new is None else ("true" if fr.is_new else "false"),
-                    fr.multiplicity, fr.basis_index, fr.coeffs.shape[0], fr.coeffs.shape[1],
-                    _num(fr.solver["Y"]), fr.solver["M0"], fr.solver["Q"], _num(fr.solver["eps"]),
-                    prov["run_id"], prov["created_utc"],
-                    json.dumps(to_plain_json(fr.extra), allow_nan=False, sort_keys=True),
-                    fr.character["label"], fr.character["conductor"],
-                    ";".join(c.name for c in fr.cusps),
-                ]
-                c0 = fr.coeffs[0]
-                row += [_num(c0[n].item()) if n < c0.size else "" for n in range(n_coeffs)]
-                w.writerow(row)
-                written.append(fr.key)
-                n += 1
-        if coeffs_path is not None:
-            with _atomic.atomic_text_writer(coeffs_path, newline="") as fh:
-                w = csv.writer(fh)
-                w.writerow(COEFF_COLUMNS)
-                for fr in st.iter_records(written):
-                    for j in range(fr.coeffs.shape[0]):
-                        cj, ej = fr.coeffs[j].tolist(), fr.coeff_errors[j].tolist()
-                        name = fr.cusps[j].name
-                        w.writerows((fr.key, j, m + 1, _num(cj[m]), _num(ej[m]), name)
-                                    for m in range(len(cj)))
-        bad = st.damaged()
-    _report(bad, damaged, store_path)
-    return n

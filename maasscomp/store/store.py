@@ -57,6 +57,7 @@ from maasscomp.store import _layout as L
 from maasscomp.store import schema as S
 
 if TYPE_CHECKING:  # the form classes are imported where forms are built: listing needs none
+    import maasscomp.groups.characters
     from maasscomp.spectrum.form import Form
 
 #: Default absolute tolerance on R for duplicate detection.  Distinct eigenvalues of one
@@ -80,10 +81,11 @@ _COPY_BLOCK = 2048
 
 log = logging.getLogger("maasscomp.store")
 
-#: Form fields the store writes explicitly; any other dataclass field of Form is stored
-#: generically (encoded like ``extra``) and given back when Form still has it.
+#: Form fields the store writes explicitly (``key`` is not written: the store gives it to a
+#: form when it reads it); any other dataclass field of Form is stored generically (encoded
+#: like ``extra``) and given back when Form still has it.
 _KNOWN_FIELDS = {"level", "R", "symmetry", "coeffs", "coeff_errors", "R_error", "hecke_residual",
-                 "params", "is_new", "multiplicity", "basis_index", "extra", "character"}
+                 "params", "is_new", "multiplicity", "basis_index", "extra", "character", "key"}
 
 
 def utc_now_iso() -> str:
@@ -125,7 +127,7 @@ class StoredForm:
 
     key: str
     form: Form
-    character: DirichletCharacter
+    character: maasscomp.groups.characters.DirichletCharacter  # full name: two classes share the short one
     cusps: tuple[CuspInfo, ...]
     provenance: dict[str, Any]
     #: Form fields stored by a newer version that this version's Form lacks.
@@ -135,6 +137,12 @@ class StoredForm:
     def label(self) -> str:
         f = self.form
         return S.form_label(f.level, self.character.label, f.symmetry.label, f.R)
+
+    def __repr__(self) -> str:
+        f = self.form
+        return (f"<StoredForm {self.key!r}: level {f.level}, {f.symmetry.label}, character "
+                f"{self.character.label}, R = {float(f.R)!r}, {len(self.cusps)} cusp"
+                f"{'s' if len(self.cusps) != 1 else ''}, run {self.provenance.get('run_id') or '-'}>")
 
 
 @functools.lru_cache(maxsize=4096)
@@ -1278,7 +1286,7 @@ class Store:
                 R_error=float(a[S.A_R_ERROR]), hecke_residual=float(a[S.A_HECKE_RESIDUAL]),
                 params=params, is_new=S.IS_NEW_FROM_CODE[int(a[S.A_IS_NEW])],
                 multiplicity=int(a[S.A_MULTIPLICITY]), basis_index=int(a[S.A_BASIS_INDEX]),
-                extra=extra,
+                extra=extra, key=key,
             )
             prov = {"package_version": _attr_str(a[S.A_PACKAGE_VERSION]),
                     "created_utc": _attr_str(a[S.A_CREATED_UTC]),
@@ -1517,10 +1525,27 @@ class Store:
     def schema_version(self) -> int:
         return self._version
 
-    def keys(self) -> list[str]:
-        """Keys of every stored form (damaged ones too), in the order they were written."""
+    def _ordered(self, pos: np.ndarray) -> np.ndarray:
+        """Positions sorted by (level, R, basis index), ties in write order."""
+        pos = np.asarray(pos, dtype=np.int64)
+        if pos.size < 2:
+            return pos
+        rows = self._idx.rows[pos]
+        return pos[np.lexsort((pos, rows["basis_index"], rows["R"], rows["level"]))]
+
+    def keys(self, order: str = "level") -> list[str]:
+        """Keys of every stored form (damaged ones too).
+
+        ``order="level"`` (default): sorted by (level, R, basis index); ``order="written"``:
+        in the order the forms were written (the order of the commit records).
+        """
+        if order not in ("level", "written"):
+            raise InputError(f"order={order!r} is not allowed; use 'level' or 'written'")
         idx = self._idx
-        return [idx.keys[i] for i in idx.live_positions()]
+        pos = idx.live_positions()
+        if order == "level":
+            pos = self._ordered(pos)
+        return [idx.keys[i] for i in pos.tolist()]
 
     def __len__(self) -> int:
         return len(self._idx.pos)
@@ -1528,10 +1553,37 @@ class Store:
     def __contains__(self, key: object) -> bool:
         return key in self._idx.pos
 
-    def __iter__(self) -> Iterator[Form]:
-        """The intact forms in write order (damaged ones are skipped, see :meth:`damaged`)."""
+    def __iter__(self) -> Iterator[str]:
+        """The keys, sorted by (level, R) (as :meth:`keys`): the store reads like a mapping
+        ``key -> Form`` (``store[key]``, ``store.values()``, ``store.items()``)."""
+        return iter(self.keys())
+
+    def __getitem__(self, key: str) -> Form:
+        """The form stored under ``key`` (it knows its key: ``store[k].key == k``)."""
+        if not isinstance(key, str):
+            raise StoreError(f"store keys are strings such as {self._example_key()!r}; got "
+                             f"{type(key).__name__} {key!r}")
+        return self.get(key)
+
+    def _example_key(self) -> str:
+        ks = self._idx.keys
+        return next((ks[i] for i in self._idx.live_positions()[:1].tolist()), "N1_odd_R9.533695")
+
+    def values(self) -> Iterator[Form]:
+        """The intact forms, sorted by (level, R) (damaged ones are skipped, see
+        :meth:`damaged`)."""
         for sf in self.iter_forms():
             yield sf.form
+
+    def items(self) -> Iterator[tuple[str, Form]]:
+        """(key, form) of the intact forms, sorted by (level, R)."""
+        for sf in self.iter_forms():
+            yield sf.key, sf.form
+
+    def levels(self) -> list[int]:
+        """The levels of the intact forms, ascending."""
+        rows = self._idx.rows
+        return sorted(set(rows["level"][self._intact()].tolist()))
 
     def _position(self, key: str) -> int:
         if self._closed:
@@ -1589,7 +1641,7 @@ class Store:
         return self.damaged()
 
     def iter_forms(self, keys: Iterable[str] | None = None) -> Iterator[StoredForm]:
-        """The intact forms among ``keys`` (default: all, in write order).
+        """The intact forms among ``keys`` (default: all, sorted by (level, R)).
 
         A damaged form is skipped and recorded in :meth:`damaged`; the iteration goes on.
         This is the reader to use for listings, exports and reports.
@@ -1634,7 +1686,8 @@ class Store:
     def select(self, level: int | None = None, parity: str | None = None,
                R_min: float | None = None, R_max: float | None = None,
                symmetry: str | None = None, character: str | None = None) -> list[str]:
-        """Keys of the intact forms matching every given filter (R bounds inclusive)."""
+        """Keys of the intact forms matching every given filter (R bounds inclusive), sorted
+        by (level, R)."""
         if parity is not None and parity not in ("even", "odd"):
             raise InputError(f"parity {parity!r} is not allowed; use 'even' or 'odd'")
         idx = self._idx
@@ -1648,7 +1701,7 @@ class Store:
             m &= rows["R"] >= R_min
         if R_max is not None:
             m &= rows["R"] <= R_max
-        pos = np.flatnonzero(m)
+        pos = self._ordered(np.flatnonzero(m)).tolist()
         if symmetry is not None:
             pos = [i for i in pos if idx.syms[i] == symmetry]
         if character is not None:
@@ -1658,11 +1711,13 @@ class Store:
     def forms(self, level: int | None = None, parity: str | None = None,
               R_min: float | None = None, R_max: float | None = None,
               symmetry: str | None = None) -> list[Form]:
-        """Intact forms matching every given filter, in write order (see :meth:`select`)."""
+        """Intact forms matching every given filter, sorted by (level, R) (see :meth:`select`).
+
+        Each form knows its key (``form.key``)."""
         return [sf.form for sf in self.iter_forms(self.select(level, parity, R_min, R_max, symmetry))]
 
     def listing(self, n_coeffs: int = 3, keys: Iterable[str] | None = None) -> dict[str, list]:
-        """The columns of a listing of the intact forms (default all, in write order).
+        """The columns of a listing of the intact forms (default all, sorted by (level, R)).
 
         Keys: key, level, symmetry, character, R, R_error, hecke_residual, is_new,
         multiplicity, basis_index, n_cusps, M (one list each, one entry per form) and ``c``
@@ -1674,7 +1729,7 @@ class Store:
             raise InputError(f"n_coeffs {n_coeffs!r} is not allowed; use an integer >= 0")
         idx = self._idx
         if keys is None:
-            pos = np.flatnonzero(self._intact())
+            pos = self._ordered(np.flatnonzero(self._intact()))
         else:
             pos = np.array([p for p in (self._position(k) for k in keys) if p not in idx.damaged],
                            dtype=np.int64)
@@ -2140,6 +2195,8 @@ def _decode_form(key: str, row: np.ndarray, meta: bytes, cb: bytes, eb: bytes, t
         (kw if name in have else unknown)[name] = _codec.decode_tree(d, arrays)
     if "character" in have:
         kw["character"] = char
+    if "key" in have:
+        kw["key"] = key
     form = Form(
         level=int(row["level"]), R=float(row["R"]), symmetry=sym,
         coeffs=arr(cb, int(row["coeffs_kind"])), coeff_errors=arr(eb, int(row["errors_kind"])),

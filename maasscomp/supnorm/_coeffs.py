@@ -29,6 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from maasscomp.arith import divisor_count, factor_with, smallest_prime_factor
 from maasscomp.errors import InputError
 
 #: Largest Hecke residual of a form whose coefficients may be extended multiplicatively.
@@ -117,35 +118,6 @@ class CoefficientTable:
 # arithmetic helpers
 
 
-def smallest_prime_factor(n_max: int) -> np.ndarray:
-    """spf[n] for 0 <= n <= n_max (spf[0] = spf[1] = 0)."""
-    spf = np.zeros(n_max + 1, dtype=np.int64)
-    for p in range(2, n_max + 1):
-        if spf[p] == 0:
-            spf[p::p][spf[p::p] == 0] = p
-    return spf
-
-
-def divisor_count(n_max: int) -> np.ndarray:
-    """d(n) for 0 <= n <= n_max (d(0) = 0)."""
-    d = np.zeros(n_max + 1, dtype=np.int64)
-    for k in range(1, n_max + 1):
-        d[k::k] += 1
-    return d
-
-
-def _factor(n: int, spf: np.ndarray) -> list[tuple[int, int]]:
-    out = []
-    while n > 1:
-        p = int(spf[n])
-        k = 0
-        while n % p == 0:
-            n //= p
-            k += 1
-        out.append((p, k))
-    return out
-
-
 # ------------------------------------------------------------------------------------------
 
 
@@ -229,7 +201,7 @@ def _hecke_extend(a: np.ndarray, level: int, n_max: int, is_new: bool) -> tuple[
     for n in range(M + 1, n_max + 1):
         v = 1.0
         ok = True
-        for p, e in _factor(n, spf):
+        for p, e in factor_with(n, spf):
             pv = prime_power(p, e)
             if pv is None:
                 ok = False

@@ -389,3 +389,59 @@ def evaluate(form, x: ArrayLike, y: ArrayLike, *, tol: float = DEFAULT_TOL) -> E
         exceeds ``tol``.
     """
     return FormEvaluator(form, tol=tol)(x, y)
+
+
+def _memo(form) -> dict:
+    """The per-form memo of a :class:`~maasscomp.spectrum.form.Form` (a plain dict for other
+    form-like objects, which then get no caching)."""
+    m = getattr(form, "_memo", None)
+    return m if isinstance(m, dict) else {}
+
+
+def normalising_scale(form, evaluator: FormEvaluator | None = None) -> float:
+    """1/||F|| for F = e^{pi R/2} f, so that F/||F|| = f/||f|| (the L2 norm over Gamma0(N)\\H
+    by :func:`maasscomp.supnorm.norm.l2_norm`, computed once per form and kept in its memo)."""
+    memo = _memo(form)
+    if "scale" not in memo:
+        from maasscomp.supnorm.norm import l2_norm
+
+        memo["scale"] = float(l2_norm(form, evaluator=evaluator, rankin_selberg=False).scale)
+    return memo["scale"]
+
+
+def form_values(form, z: ArrayLike, y: ArrayLike | None = None, *, normalized: bool = False,
+                tol: float = DEFAULT_TOL) -> np.floating | np.ndarray:
+    """The physical form f(z) (or f/||f|| with ``normalized``) at points of H.
+
+    What ``Form.__call__`` returns: ``z`` complex (scalar or array), or ``z`` = x and ``y``
+    given. The scaled sum F = e^{pi R/2} f of :class:`FormEvaluator` is multiplied by
+    e^{-pi R/2} (``normalized=False``; underflows to 0 for R above about 470) or by 1/||F||
+    from :func:`maasscomp.supnorm.norm.l2_norm` (``normalized=True``; ||f|| = e^{-pi R/2}||F||,
+    so f/||f|| = F/||F||). The evaluator and the norm are computed once per form.
+
+    Returns a numpy scalar for scalar input, else an array of the broadcast shape.
+    """
+    if y is None:
+        zz = np.asarray(z)
+        if not np.iscomplexobj(zz):
+            raise InputError("a form is evaluated at complex z = x + iy (e.g. f(0.1 + 1.2j)) or at "
+                             "two real arrays x, y (f(x, y)); got one real argument")
+        x, yy = zz.real, zz.imag
+    else:
+        x, yy = np.asarray(z, dtype=float), np.asarray(y, dtype=float)
+        if np.iscomplexobj(np.asarray(z)):
+            raise InputError("with two arguments f(x, y) both must be real")
+    x, yy = np.broadcast_arrays(x, yy)
+    if yy.size and not np.all(yy > 0):
+        bad = float(yy.ravel()[np.argmin(yy.ravel())])
+        raise InputError(f"points must lie in the upper half plane; found Im z = {bad:g}")
+    memo = _memo(form)
+    key = ("evaluator", float(tol))
+    ev = memo.get(key)
+    if ev is None:
+        ev = FormEvaluator(form, tol=tol)
+        memo[key] = ev
+    F = ev(x, yy).values
+    scale = normalising_scale(form, ev) if normalized else math.exp(-math.pi * float(form.R) / 2.0)
+    out = np.asarray(F, dtype=float) * scale
+    return out[()] if out.ndim == 0 else out

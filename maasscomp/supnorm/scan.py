@@ -366,6 +366,19 @@ class ScanResult:
 
     # ------------------------------------------------------------------ access
 
+    def __repr__(self) -> str:
+        key = f"{self.form_key!r}: " if self.form_key else ""
+        return (f"<ScanResult {key}level {self.level}, {self.symmetry}, R = {float(self.R)!r}: global "
+                f"maximum {float(self.global_value):.6g} in {self.global_region} (y/Y_T = "
+                f"{float(self.global_y_rel):.3g}), bulk {float(self.bulk_value):.6g}, {len(self.regions)} regions>")
+
+    def to_dataframe(self):
+        """The regions as a pandas DataFrame, one row each (needs the extra ``pandas``;
+        :func:`maasscomp.report.frames.scan_frame`)."""
+        from maasscomp.report.frames import scan_frame  # tables are a later stage
+
+        return scan_frame(self)
+
     def region(self, name: str) -> RegionPeak:
         """The region called ``name`` ("omega", "transition 0", ...)."""
         for p in self.regions:

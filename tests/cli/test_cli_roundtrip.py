@@ -28,6 +28,8 @@ windows = [[9.4, 9.7], [12.0, 12.3]]
 parities = ["odd"]
 step = 0.05
 n_coeffs = 24
+[scan]
+enabled = false
 [executor]
 backend = "serial"
 """

@@ -27,7 +27,11 @@ def write_config(path: Path, *, output: str, levels="[1]", windows=None, R=(9.3,
                  parities='["odd"]', backend="serial", workers=1, chunk_width=0.25,
                  step=0.05, name="t", extra_search="", extra="") -> Path:
     """A small job config (step 0.05 is ample for level 1 and 2 near R = 10, where the
-    mean spacing per class is about 1; step=None leaves the search's default)."""
+    mean spacing per class is about 1; step=None leaves the search's default). Scans are off
+    unless ``extra_search`` or ``extra`` has a [scan] section (they are tested in
+    test_pipeline_scan_report.py)."""
+    if "[scan]" not in extra_search + extra:
+        extra_search += "\n[scan]\nenabled = false"
     win = (f"windows = {windows}" if windows is not None else f"R_min = {R[0]!r}\nR_max = {R[1]!r}")
     text = f"""[job]
 name = "{name}"

@@ -11,12 +11,10 @@ from maasscomp.config import load
 from maasscomp.errors import InputError, StoreError
 from maasscomp.pipeline.job import run_job
 from maasscomp.report import make_report
-from maasscomp.pipeline.tasks import scanner
+from maasscomp.supnorm.scan import NORM_ATTACHMENT, SCAN_ATTACHMENT
 from maasscomp.store import Store
 
 from tests.pipeline.pipeline_helpers import write_config
-
-pytestmark = pytest.mark.skipif(scanner() is None, reason="no sup-norm scanner in this version")
 
 
 @pytest.fixture(scope="module")
@@ -37,7 +35,7 @@ def test_each_form_is_scanned_once_and_resume_skips_it(scanned):
     cfg, first, again = scanned
     assert first.ok and first.scans_total == 1 and first.scans_run == 1
     assert again.ok and again.scans_run == 0 and again.scans_skipped == 1 and again.tasks_run == 0
-    attachment, norm_attachment = scanner()
+    attachment, norm_attachment = SCAN_ATTACHMENT, NORM_ATTACHMENT
     with Store.open(cfg.job.output, "r") as st:
         (key,) = st.keys()
         assert st.attachments(key) == sorted([attachment, norm_attachment])
@@ -63,7 +61,7 @@ def test_scan_settings_change_is_refused_only_between_scanning_runs(scanned, tmp
     plain = tmp_path / "plain.toml"
     write_config(plain, output=str(tmp_path / "p.h5"), R=(9.4, 9.7), name="p")
     assert run_job(load(plain), quiet=True).ok
-    plain.write_text(plain.read_text().replace("n_coeffs = 20", "n_coeffs = 20\n[scan]\nenabled = true\nrtol = 1e-2"))
+    plain.write_text(plain.read_text().replace("[scan]\nenabled = false", "[scan]\nenabled = true\nrtol = 1e-2"))
     s = run_job(load(plain), quiet=True)
     assert s.ok and s.scans_run == 1 and s.tasks_run == 0
 

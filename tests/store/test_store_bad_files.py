@@ -6,8 +6,9 @@ import h5py
 import numpy as np
 import pytest
 
-from maasscomp.errors import StoreError
-from maasscomp.store import SCHEMA_VERSION, Store, export_csv, export_json
+from maasscomp.errors import InputError, StoreError
+from maasscomp.report.export import export_csv
+from maasscomp.store import SCHEMA_VERSION, Store, export_json
 from tests.store.store_form_factory import indexed_form
 
 
@@ -100,5 +101,5 @@ def test_damaged_store_missing_group(tmp_path):
 def test_export_to_missing_directory(tmp_path):
     p = tmp_path / "s.h5"
     Store.open(p, "a", create=True).close()
-    with pytest.raises(StoreError, match="cannot write"):
+    with pytest.raises(InputError, match="cannot write .*nodir/o.csv: directory .*nodir does not exist"):
         export_csv(p, tmp_path / "nodir" / "o.csv")

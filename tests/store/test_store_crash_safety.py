@@ -34,7 +34,7 @@ def _start_writer(path: Path, start: int, batch: int, compact_every: int = 0) ->
 
 def _check_prefix(path: Path, batch: int, at_least: int) -> int:
     with Store.open(path, "r") as st:
-        keys = st.keys()
+        keys = st.keys(order="written")
         n = len(keys)
         assert n >= at_least, "committed forms were lost"
         assert n % batch == 0, f"a transaction of {batch} forms was torn: {n} forms stored"

@@ -18,7 +18,8 @@ import pytest
 
 from maasscomp.cli import main
 from maasscomp.errors import DamagedFormError, StoreError
-from maasscomp.store import Store, export_csv, export_json, salvage
+from maasscomp.report.export import export_csv
+from maasscomp.store import Store, export_json, salvage
 from tests.store.store_form_factory import assert_forms_equal, indexed_form
 
 V1 = Path(__file__).resolve().parent / "data" / "v1-small.h5"
@@ -112,7 +113,7 @@ def test_damaged_commit_record_loses_only_its_own_forms(tmp_path):
     with Store.open(p) as st:
         notes = [k for k in st.damaged() if k.startswith("(record")]
         assert len(notes) == 1
-        assert keys[2] not in st and st.keys() == [k for k in keys if k != keys[2]]
+        assert keys[2] not in st and st.keys(order="written") == [k for k in keys if k != keys[2]]
         for k, f in zip(keys, forms):
             if k != keys[2]:
                 assert_forms_equal(st.get(k), f)
@@ -149,7 +150,7 @@ def test_salvage_copies_exactly_the_intact_forms(tmp_path, capsys):
     assert "4 intact forms and 1 attachments copied" in out and keys[0] in out
     assert "task t1 of run r is no longer marked done" in out
     with Store.open(new) as st:
-        assert st.keys() == keys[1:] and st.verify() == {}
+        assert st.keys(order="written") == keys[1:] and st.verify() == {}
         for k, f in zip(keys[1:], forms[1:]):
             assert_forms_equal(st.get(k), f)
         assert st.get_attachment(keys[1], "scan")["sup"] == 2.0
@@ -165,7 +166,7 @@ def test_version1_store_with_damaged_forms(tmp_path, capsys):
     p = tmp_path / "old.h5"
     shutil.copyfile(V1, p)
     with Store.open(p) as st:
-        keys = st.keys()
+        keys = st.keys(order="written")
     with h5py.File(p, "a") as h:
         del h["forms"][keys[0]]["coeffs"]
         del h["forms"][keys[1]].attrs["R"]
@@ -188,4 +189,4 @@ def test_version1_store_with_damaged_forms(tmp_path, capsys):
     rep = salvage(p, new)
     assert rep.forms_copied == 3 and {k for k, _ in rep.damaged} == set(keys[:3])
     with Store.open(new) as st:
-        assert st.schema_version == 2 and st.keys() == keys[3:] and st.verify() == {}
+        assert st.schema_version == 2 and st.keys(order="written") == keys[3:] and st.verify() == {}

@@ -38,7 +38,7 @@ def test_random_forms_round_trip_bit_identical(path):
         keys = st.add_forms(forms, config_text=cfg, on_duplicate="error")
     assert len(set(keys)) == len(forms)
     with Store.open(path, "r") as st:
-        assert st.keys() == keys
+        assert st.keys(order="written") == keys
         assert len(st) == len(forms)
         for k, f in zip(keys, forms):
             assert_forms_equal(st.get(k), f)
@@ -46,7 +46,12 @@ def test_random_forms_round_trip_bit_identical(path):
             assert prov["config"] == cfg
             assert prov["package_version"] == __import__("maasscomp").__version__
             assert prov["created_utc"].endswith("Z") and "T" in prov["created_utc"]
-        for got, f in zip(st, forms):  # iteration yields forms in write order
+        by_key = dict(zip(keys, forms))
+        # the store reads like a mapping: keys sorted by (level, R), store[key] -> Form
+        assert list(st) == sorted(keys, key=lambda k: (by_key[k].level, by_key[k].R, by_key[k].basis_index))
+        for (k, got), k2 in zip(st.items(), st):
+            assert k == k2 and got.key == k and st[k].key == k
+            f = by_key[k]
             assert_forms_equal(got, f)
         meta = st.metadata
         assert meta["format"] == "maasscomp-store" and meta["schema_version"] == 2
@@ -97,13 +102,17 @@ def test_filters_and_summary_rows(path):
     with Store.open(path, "a", create=True) as st:
         keys = st.add_forms(forms)
         got = st.forms(level=6, parity="odd", R_min=5.0, R_max=30.0)
-        want = [f for f in forms if f.level == 6 and f.parity == "odd" and 5.0 <= f.R <= 30.0]
-        assert [g.R for g in got] == [f.R for f in want]
+        want = sorted((f for f in forms if f.level == 6 and f.parity == "odd" and 5.0 <= f.R <= 30.0),
+                      key=lambda f: f.R)
+        assert [g.R for g in got] == [f.R for f in want]  # queries are sorted by (level, R)
         assert len(st.forms()) == 30
-        assert st.select(symmetry=forms[0].symmetry.label)[0] == keys[0]
+        sel = st.select(symmetry=forms[0].symmetry.label)
+        assert keys[0] in sel and [st[k].R for k in sel] == sorted(st[k].R for k in sel)
         rows = st.summary_rows(n_coeffs=4)
-    assert [r["key"] for r in rows] == keys
-    for r, f in zip(rows, forms):
+        order = st.keys()  # summaries come sorted by (level, R), like every listing
+    by_key = dict(zip(keys, forms))
+    assert [r["key"] for r in rows] == order
+    for r, f in zip(rows, (by_key[k] for k in order)):
         assert r["level"] == f.level and r["R"] == f.R and r["symmetry"] == f.symmetry.label
         assert r["R_error"] == f.R_error and r["hecke_residual"] == f.hecke_residual
         assert r["is_new"] is f.is_new and r["multiplicity"] == f.multiplicity
@@ -145,7 +154,7 @@ def test_failed_batch_writes_nothing(path):
         with pytest.raises(RuntimeError):
             with st.transaction():
                 st.add_forms([indexed_form(5)])
-                st.mark_task_done("t5", st.keys()[-1:], run_id="r")
+                st.mark_task_done("t5", st.keys(order="written")[-1:], run_id="r")
                 raise RuntimeError("boom")
         assert len(st) == 1 and st.done_tasks("r") == {}
         # an error caught inside a transaction block still voids the block
@@ -289,7 +298,7 @@ def test_second_writer_is_locked_out_and_readers_see_snapshots(path):
         r = Store.open(path, "r")
         w.add_forms([indexed_form(1), indexed_form(2)])
         assert len(r) == 1  # the reader's snapshot is unchanged ...
-        assert_forms_equal(r.get(r.keys()[0]), indexed_form(0))
+        assert_forms_equal(r.get(r.keys(order="written")[0]), indexed_form(0))
         r.close()
         with Store.open(path, "r") as r2:  # ... a new reader sees the commit
             assert len(r2) == 3
