@@ -4,12 +4,12 @@ PROJECT COMPUTATION (not an outside source).  Every list is the union of two ind
 searches of the same window with different grids and different pairs of sample heights
 ("runs"), each with the present search code:
 
-* squarefree levels: :func:`maasscomp.spectrum.search.search_classes` (all symmetry
-  classes, det-sign scan at two heights plus interior minima of log|det|, every root
-  confirmed by the two-height secant polish, two-height coefficient agreement and the
-  Hecke relations);
-* other levels: :func:`maasscomp.spectrum.general.search_window_general` (parity classes,
-  multiplicities from the SVD).
+:func:`maasscomp.spectrum.search.search_forms` (every symmetry class: Atkin--Lehner
+classes at squarefree levels, parity classes of the multi-cusp system elsewhere; local
+linear pencils at a lattice of expansion points, Newton roots at two sample heights with
+equal null spaces, multiplicities, Hecke relations).  The runs of one list differ in the
+lattice offset and the sample heights; a run that covers only parts of the range can be
+compared with the list there (``merge --compare TAG``, a header line per run).
 
 A form found by only one run is reported on the terminal and marked in the file
 (``found_by``), so that a disagreement is visible rather than silently merged.  The
@@ -43,7 +43,7 @@ import numpy as np
 
 ROOT = Path(__file__).resolve().parents[2]
 SCRIPT = "tests/spectrum/make_spectrum_lists.py"
-SAME_R = 1e-7  # two finds of one eigenvalue by different runs agree to about R_error
+SAME_R = 1e-9  # two finds of one eigenvalue agree to about R_error (measured 3e-15 relative); close pairs at R ~ 1000 are 2e-5 apart
 
 
 def _commit() -> str:
@@ -58,8 +58,8 @@ def _commit() -> str:
 
 
 SEARCH_CODE = ("maasscomp/special", "maasscomp/groups", "maasscomp/hejhal", "maasscomp/spectrum/search.py",
-               "maasscomp/spectrum/general.py", "maasscomp/spectrum/hecke.py", "maasscomp/spectrum/classify.py",
-               "maasscomp/spectrum/form.py")
+               "maasscomp/spectrum/pencil.py", "maasscomp/spectrum/confirm.py", "maasscomp/spectrum/eigenspace.py",
+               "maasscomp/spectrum/hecke.py", "maasscomp/spectrum/classify.py", "maasscomp/spectrum/form.py")
 
 
 def _search_code_unchanged(commit: str) -> str:
@@ -182,6 +182,46 @@ def _dedup(rows: list[dict]) -> list[dict]:
     return out
 
 
+def _compare(wd: Path, lo: float, hi: float, merged: list[dict]) -> str:
+    """Header line: a run that covers parts of [lo, hi] against the merged list on those parts."""
+    parts, found, used = [], [], []
+    for p in sorted(wd.glob("*.json")):
+        if p.name.startswith("settings"):
+            continue
+        rec = json.loads(p.read_text())
+        a, b = max(rec["lo"], lo), min(rec["hi"], hi)
+        if b <= a + 1e-9:
+            continue
+        parts.append((a, b))
+        found += [r for r in rec["forms"] if a <= r["R"] <= b]
+        m = rec.get("settings") or _settings_for(wd, rec["lo"], rec["hi"])
+        desc = (f"lattice offset {m.get('offset')}, heights Y1 = {m['y1']} Y0 and Y2 = {m['y2']} Y0, "
+                f"commit {m['commit']}")
+        if desc not in used:
+            used.append(desc)
+    parts.sort()
+    iv: list[list[float]] = []
+    for a, b in parts:
+        if iv and a <= iv[-1][1] + 1e-9:
+            iv[-1][1] = max(iv[-1][1], b)
+        else:
+            iv.append([a, b])
+    found = _dedup(found)
+    ref = [r for r in merged if any(a <= r["R"] <= b for a, b in iv)]
+    unmatched, worst = 0, 0.0
+    for r in ref:
+        d = [abs(f["R"] - r["R"]) for f in found if f["label"] == r["label"] and f["basis_index"] == r["basis_index"]]
+        if d and min(d) <= SAME_R * max(1.0, r["R"]):
+            worst = max(worst, min(d))
+        else:
+            unmatched += 1
+    extra = len(found) - (len(ref) - unmatched)
+    where = " and ".join(f"[{a:g}, {b:g}]" for a, b in iv)
+    return (f"#   comparison run {wd.name} ({'; '.join(used)}) covers {where}: {len(found)} forms there, "
+            f"{len(ref)} in this list; unmatched in this list: {unmatched}, extra in the run: {extra}; "
+            f"largest |R difference| {worst:.1e}")
+
+
 def merge(args: argparse.Namespace) -> int:
     from maasscomp.spectrum.weyl import expected_in_window
 
@@ -228,14 +268,18 @@ def merge(args: argparse.Namespace) -> int:
                          + f"heights Y1 = {m['y1']} Y0 and Y2 = {m['y2']} Y0, "
                          f"chunks of {m['chunk']:g}, commit {m['commit']}" for m in metas)
         header.append(f"#   run {t}: {desc}; {len(per_run[t])} forms, {cpu / 3600:.2f} CPU h")
+    for t in (args.compare.split(",") if args.compare else []):
+        line = _compare(Path(args.workdir) / f"N{args.level}" / t, args.lo, args.hi, merged)
+        print(line[4:])
+        header.append(line)
     header += [
         "# '+modified' marks uncommitted changes in the worktree at run time; the search code ("
         + ", ".join(SEARCH_CODE) + ") of every run's commit equals that of "
         + _commit().split("+")[0] + ": "
         + ", ".join(f"run {t} " + "/".join(_search_code_unchanged(m["commit"]) for m in v[0])
                     for t, v in runs.items()) + ".",
-        "# Every form passed the search's confirmation: the two-height secant polish of the det root, "
-        "agreement of the",
+        "# Every form passed the search's confirmation: Newton roots of the Hejhal system at two heights "
+        "with equal null spaces, agreement of the",
         "# coefficients solved at two heights (coeff_diff: largest |c(2..8)| difference at the final "
         "heights) and the Hecke relations",
         "# (hecke_residual).  found_by: the runs that found the form (a form found by one run only is "
@@ -286,6 +330,8 @@ def main(argv: list[str] | None = None) -> int:
     r.add_argument("--workdir", required=True)
     m = sub.add_parser("merge")
     m.add_argument("--level", type=int, required=True)
+    m.add_argument("--compare", default="",
+                   help="runs (tags) that cover only parts of the range, compared with the list there")
     m.add_argument("--lo", type=float, required=True)
     m.add_argument("--hi", type=float, required=True)
     m.add_argument("--tags", required=True)

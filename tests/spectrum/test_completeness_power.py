@@ -6,8 +6,10 @@ docs/theory.md §8.6 and in maasscomp.spectrum.weyl.completeness.
 Outside check: Weyl's law for PSL(2,Z) (R. Steil, DESY 94-028 (1994); H. Then, Math. Comp.
 74 (2005); from memory of these sources) and the trace formula behind it.  The lists are
 project computations: data/reference/psl2z_R100_window.csv and psl2z_R1000_window.csv
-(every form with 95 <= R <= 105, resp. 998 <= R <= 1002, both parities, two independent
-fine-grid searches; see their headers).  What is tested here is that the tests have power
+(every form with 95 <= R <= 105, resp. 998 <= R <= 1002, both parities; the R = 1000 list
+is one run of the search over the whole range, and a second run with another lattice of
+expansion points and other sample heights reproduced all 277 forms of the parts it covered,
+[998, 998.75] and [999.5, 1000.5], to 1.2e-10 in R; see the headers).  What is tested here is that the tests have power
 on these lists: a complete list passes, a list with one form or one close pair removed is
 flagged, and the flagged search-again intervals contain what was removed.
 """
