@@ -4,12 +4,11 @@ PROJECT COMPUTATION (not an outside source).  Every list is the union of two ind
 searches of the same window with different grids and different pairs of sample heights
 ("runs"), each with the present search code:
 
-* squarefree levels: :func:`maasscomp.spectrum.search.search_classes` (all symmetry
-  classes, det-sign scan at two heights plus interior minima of log|det|, every root
-  confirmed by the two-height secant polish, two-height coefficient agreement and the
-  Hecke relations);
-* other levels: :func:`maasscomp.spectrum.general.search_window_general` (parity classes,
-  multiplicities from the SVD).
+:func:`maasscomp.spectrum.search.search_forms` (every symmetry class: Atkin--Lehner
+classes at squarefree levels, parity classes of the multi-cusp system elsewhere; local
+linear pencils at a lattice of expansion points, Newton roots at two sample heights with
+equal null spaces, multiplicities, Hecke relations).  The runs of one list differ in the
+lattice offset and the sample heights.
 
 A form found by only one run is reported on the terminal and marked in the file
 (``found_by``), so that a disagreement is visible rather than silently merged.  The
@@ -58,8 +57,8 @@ def _commit() -> str:
 
 
 SEARCH_CODE = ("maasscomp/special", "maasscomp/groups", "maasscomp/hejhal", "maasscomp/spectrum/search.py",
-               "maasscomp/spectrum/general.py", "maasscomp/spectrum/hecke.py", "maasscomp/spectrum/classify.py",
-               "maasscomp/spectrum/form.py")
+               "maasscomp/spectrum/pencil.py", "maasscomp/spectrum/confirm.py", "maasscomp/spectrum/eigenspace.py",
+               "maasscomp/spectrum/hecke.py", "maasscomp/spectrum/classify.py", "maasscomp/spectrum/form.py")
 
 
 def _search_code_unchanged(commit: str) -> str:
@@ -234,8 +233,8 @@ def merge(args: argparse.Namespace) -> int:
         + _commit().split("+")[0] + ": "
         + ", ".join(f"run {t} " + "/".join(_search_code_unchanged(m["commit"]) for m in v[0])
                     for t, v in runs.items()) + ".",
-        "# Every form passed the search's confirmation: the two-height secant polish of the det root, "
-        "agreement of the",
+        "# Every form passed the search's confirmation: Newton roots of the Hejhal system at two heights "
+        "with equal null spaces, agreement of the",
         "# coefficients solved at two heights (coeff_diff: largest |c(2..8)| difference at the final "
         "heights) and the Hecke relations",
         "# (hecke_residual).  found_by: the runs that found the form (a form found by one run only is "
