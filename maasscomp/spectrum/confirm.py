@@ -328,22 +328,27 @@ def _classify(group, symmetry, kind, R, c_inf, m, eig, lam, old_dim, extra) -> b
         return True
     if old_dim is None:
         return None
-    dim, lam_lower = old_dim
+    dim, lam_lower, origin = old_dim
     extra["old_dimension"] = int(dim)
     if dim == 0:
         return True
     if dim >= m:
+        if origin is not None:
+            extra["old_from_level"] = origin
         return False
     # mixed eigenspace: a member whose T_p eigenvalues match a lower-level form is old
     for ll in lam_lower:
         common = set(ll) & set(lam)
         if common and all(abs(ll[p] - lam[p]) < 1e-5 for p in common):
+            if origin is not None:
+                extra["old_from_level"] = origin
             return False
     return True if eig else None
 
 
 def _old_dimension(group, parity: str, R: float, settings):
-    """(oldform dimension at level N, T_p eigenvalue sets of lower levels) at R.
+    """(oldform dimension at level N, T_p eigenvalue sets of lower levels, smallest level with a
+    newform at R) at R.
 
     R is checked at every proper divisor level M (same parity; oldforms keep the parity of
     g). With m_M the multiplicity at level M, the numbers of newforms follow from
@@ -378,4 +383,6 @@ def _old_dimension(group, parity: str, R: float, settings):
     for M in divisors(N)[:-1]:
         new[M] = mult[M] - sum(new[Mp] * len(divisors(M // Mp)) for Mp in divisors(M)[:-1])
     old = sum(new[M] * len(divisors(N // M)) for M in new)
-    return old, lam_lower
+    # the smallest level at which R is an eigenvalue (as for the one-cusp classification)
+    origin = min((M for M in new if new[M] > 0), default=None)
+    return old, lam_lower, origin
