@@ -52,6 +52,12 @@ class Form:
         Index of this form inside a multiplicity > 1 eigenspace basis.
     extra : dict
         Further labels (Atkin-Lehner signs found, Hecke eigenvalues, origin of an oldform...).
+    character : DirichletCharacter or None
+        The form's character chi modulo the level, f(gamma z) = chi(d) f(z); None means the
+        trivial character. A form with a nontrivial character is complex-valued: ``coeffs``
+        then holds c_j(nu) for the positive frequencies nu of kappa_j + Z at each cusp and
+        ``extra["coeffs_negative"]`` those of the negative ones
+        (:mod:`maasscomp.spectrum.charforms`, docs/theory-additions/chars.md).
     """
 
     level: int
@@ -66,6 +72,7 @@ class Form:
     multiplicity: int = 1
     basis_index: int = 0
     extra: dict[str, Any] = field(default_factory=dict)
+    character: Any = None
 
     @property
     def parity(self) -> str:
