@@ -378,7 +378,9 @@ def _store_outputs(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str,
             for f, k in zip(forms, keys):
                 if k in fresh:
                     fresh.discard(k)
-                    new_counts[(f.level, f.symmetry.label)] += 1
+                    chi = getattr(f, "character", None)
+                    lab = f.symmetry.label if chi is None or chi.is_trivial else f"{f.symmetry.label} {chi.label}"
+                    new_counts[(f.level, lab)] += 1
             added[o.task_id] = len(stored)
     return added
 
@@ -428,8 +430,9 @@ def _weyl_windows(st, cfg: Config, plan: Plan, summary: JobSummary):
             continue
         if N in failed:
             continue
+        trivial = _trivial_label(N)
         for a, b in cfg.search.windows:
-            keys = st.select(level=N, R_min=a, R_max=b)
+            keys = st.select(level=N, R_min=a, R_max=b, character=trivial)
             forms = [FormSummary(r["R"], SymmetryClass.from_label(r["symmetry"]), r["is_new"],
                                  r["multiplicity"], r["basis_index"])
                      for r in st.summary_rows(n_coeffs=0, keys=keys)]
@@ -506,10 +509,20 @@ def _plan_keys(st, cfg: Config, plan: Plan) -> list[str]:
     """Keys of the stored forms inside the plan's levels, classes and windows."""
     keys = []
     for N, labels in plan.classes.items():
+        trivial = _trivial_label(N)
         for lab in labels:
             for a, b in cfg.search.windows:
-                keys += st.select(level=N, symmetry=lab, R_min=a, R_max=b)
+                keys += st.select(level=N, symmetry=lab, R_min=a, R_max=b, character=trivial)
     return keys
+
+
+def _trivial_label(N: int) -> str:
+    """Label of the trivial character mod N (the store's character filter; forms with a
+    nontrivial character are not compared with Weyl's law of the trivial character, nor
+    scanned: the scanner evaluates real cusp expansions only)."""
+    from maasscomp.groups import DirichletCharacter
+
+    return DirichletCharacter.trivial(N).label
 
 
 def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummary,
@@ -575,9 +588,16 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
 def _count_forms(st, cfg: Config, plan: Plan) -> dict[tuple[int, str], int]:
     counts = {}
     for N, labels in plan.classes.items():
+        trivial = _trivial_label(N)
         for lab in labels:
             n = 0
             for a, b in cfg.search.windows:
-                n += len(st.select(level=N, symmetry=lab, R_min=a, R_max=b))
+                n += len(st.select(level=N, symmetry=lab, R_min=a, R_max=b, character=trivial))
             counts[(N, lab)] = n
+    for (N, chi), labels in plan.char_classes.items():
+        for lab in labels:
+            n = 0
+            for a, b in cfg.search.windows:
+                n += len(st.select(level=N, symmetry=lab, R_min=a, R_max=b, character=chi))
+            counts[(N, f"{lab} {chi}")] = n
     return counts
