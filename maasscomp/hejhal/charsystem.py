@@ -4,7 +4,7 @@ Sources: D. A. Hejhal, "On eigenfunctions of the Laplacian for Hecke triangle gr
 IMA Vol. Math. Appl. 109 (1999) 291-315, and F. Strömberg, *Computational aspects of Maass
 waveforms*, thesis, Uppsala 2005, Ch. 1 (one expansion per cusp, sample points on
 horocycles, pullback, discrete inversion: docs/theory.md §1.2). The character's effect on
-each step is derived in docs/theory-additions/chars.md §2.
+each step is derived in docs/theory-additions/chars.md §X.2.
 
 Forms
 -----

@@ -708,7 +708,7 @@ def _characters_of(spec, N: int):
 def _character_pairs(chars):
     """(chi, conj) for every nontrivial character to search: conj is its complex conjugate
     when that is also wanted (and different), whose forms are then derived by conjugation
-    (docs/theory-additions/chars.md §3); each pair is searched once, at the character with
+    (docs/theory-additions/chars.md §X.3); each pair is searched once, at the character with
     the smaller exponent tuple."""
     from maasscomp.groups.characters import conjugate
 

@@ -365,7 +365,7 @@ def evaluate_at_infinity(form: Form, x, y) -> np.ndarray:
 
 def conjugate_form(group, form: Form) -> Form:
     """The form of the conjugate character derived from ``form``:
-    g(z) = conj(f(-conj z)) (docs/theory-additions/chars.md §3).
+    g(z) = conj(f(-conj z)) (docs/theory-additions/chars.md §X.3).
 
     At cusp j with J sigma_j J = gamma sigma_k T_t (J: z -> -conj z),
     G_j(z) = conj(chi(gamma)) sum_nu conj(c_k(nu)) e(-nu t) sqrt(y) K(2 pi |nu| y) e(nu x),

@@ -1,6 +1,6 @@
 """Dirichlet characters as the search uses them: values, conjugates, induction, enumeration,
 the specification of ``[search] characters`` and the character's behaviour at the cusps
-(docs/theory-additions/chars.md §1-2)."""
+(docs/theory-additions/chars.md §X.1-X.2)."""
 
 from __future__ import annotations
 
@@ -88,7 +88,7 @@ def test_kronecker_character(D, residues):
 @pytest.mark.parametrize("N", [5, 8, 9, 12, 16, 18, 20, 25])
 def test_cusp_shifts(N):
     """kappa_inf = 0; the trivial character gives 0 everywhere; J maps cusp j to k with
-    kappa_k = -kappa_j (J gamma_j J = gamma gamma_j^{-1} gamma^{-1}, chars.md §2), so a cusp
+    kappa_k = -kappa_j (J gamma_j J = gamma gamma_j^{-1} gamma^{-1}, chars.md §X.2), so a cusp
     fixed by J has kappa in {0, 1/2}; and chi(gamma_j) computed from the stabiliser generator
     acting on a point near the cusp agrees."""
     G = gamma0(N)

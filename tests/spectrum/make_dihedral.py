@@ -3,7 +3,7 @@
 Writes ``data/reference/dihedral_forms.csv``. Independent of the package: ideal arithmetic
 in the ring of integers of K = Q(sqrt D) with Python integers, values with mpmath.
 
-Mathematics (docs/theory-additions/chars.md §5; H. Maass, Math. Ann. 121 (1949) 141-183;
+Mathematics (docs/theory-additions/chars.md §X.5; H. Maass, Math. Ann. 121 (1949) 141-183;
 D. Bump, *Automorphic Forms and Representations* (1997), §1.9): for a real quadratic field
 of class number one with fundamental unit eps > 1, a Hecke character on ideals
 (alpha) is psi((alpha)) = sgn(N alpha)^delta |alpha/alpha'|^{i t}, well defined when it is
@@ -151,7 +151,7 @@ def main() -> None:
     lines = [
         "# Dihedral Maass newforms of level D with character chi_D = (D/.) (Kronecker symbol), R <= 10.",
         "# source: computed here with tests/spectrum/make_dihedral.py (mpmath %s, 40 digits) from the" % mp.__version__,
-        "#   formulas of docs/theory-additions/chars.md §5 (to be docs/theory.md §9): Hecke characters",
+        "#   formulas of docs/theory-additions/chars.md §X.5: Hecke characters",
         "#   psi((alpha)) = sgn(N alpha)^delta |alpha/alpha'|^{i R} of Q(sqrt D) (class number one),",
         "#   a(n) = sum over ideals of norm n of psi; H. Maass, Math. Ann. 121 (1949) 141-183;",
         "#   D. Bump, Automorphic Forms and Representations (1997), §1.9.",
