@@ -178,13 +178,15 @@ class SearchResult:
         reason; roots of one height only are counted in ``stats`` (``spurious``) and not
         proposed.
     system : str
-        ``"atkin-lehner"`` or ``"multi-cusp"``.
+        ``"atkin-lehner"``, ``"multi-cusp"`` or ``"character"``.
     grid_step : float
         Largest distance between expansion points used.
     stats : dict
         Counts: expansion points, pencil eigenvalues, Newton steps (factorisations),
         relinearisations, starts that led nowhere, roots found at one height by testing the
-        other height's root, spurious roots (roots of one height only).
+        other height's root, spurious roots (roots of one height only). With a nontrivial
+        character also ``character`` (its label), ``singular_cusps`` (names of the cusps
+        with kappa_j = 0) and ``cusp_shifts`` (kappa_j per cusp name).
     """
 
     level: int
@@ -692,6 +694,13 @@ def search_forms(
         "lost_starts": counts.lost, "recovered_at_other_height": counts.recovered,
         "spurious_roots": spurious,
     }
+    if kind == "character":
+        from maasscomp.groups.characters import cusp_shifts
+
+        kap = cusp_shifts(group, chi)
+        stats["character"] = chi.label
+        stats["singular_cusps"] = [c.name for c, k in zip(group.cusps, kap) if k == 0]
+        stats["cusp_shifts"] = {c.name: str(k) for c, k in zip(group.cusps, kap)}
     return SearchResult(level=group.level, classes=tuple(classes), R_min=float(R_min), R_max=float(R_max),
                         forms=tuple(forms), candidates=tuple(sorted(candidates, key=lambda c: c.R)),
                         system=kind, grid_step=float(grid_step), stats=stats)

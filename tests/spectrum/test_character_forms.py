@@ -98,6 +98,8 @@ def test_level9_forms_and_singular_cusps(level9):
     G, chi, res, _ = level9
     assert chi.order == 3 and chi.conductor == 9
     assert len(res.forms) >= 2
+    assert res.stats["singular_cusps"] == ["inf", "0"] and res.stats["character"] == "X9.2"
+    assert res.system == "character"
     for f in res.forms:
         # cusps 1/3 and 2/3 are not singular for chi (kappa = 2/3, 1/3)
         assert f.extra["singular_cusps"] == ["inf", "0"]
