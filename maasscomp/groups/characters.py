@@ -257,10 +257,13 @@ class DirichletCharacter:
         return t - math.floor(t)
 
     def as_dict(self) -> dict:
-        """modulus, conductor, label, generators, orders and exponents (JSON-ready)."""
+        """modulus, conductor, label, generators, orders, exponents and the values on the
+        generators as fractions of a turn, chi(g_i) = exp(2 pi i k_i/o_i) (JSON-ready)."""
         return {"label": self.label, "modulus": self.modulus, "conductor": self.conductor,
                 "generators": list(self.generators), "orders": list(self.orders),
-                "exponents": list(self.exponents)}
+                "exponents": list(self.exponents),
+                "values_on_generators": [str(Fraction(k, o)) for k, o in zip(self.exponents, self.orders)],
+                "even": self.is_even}
 
 
 # ----------------------------------------------------------------------------------------
