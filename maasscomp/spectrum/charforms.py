@@ -277,7 +277,7 @@ def _members(Ca, Cb, good, K, level, chi):
             Bc = B @ W
             Q, Rr, P = sla.qr(Bc.T, pivoting=True)
             piv = np.sort(P[:len(cl)])
-            T = np.linalg.solve(Bc[piv].T, np.eye(len(cl)))
+            T = np.linalg.solve(Bc[piv], np.eye(len(cl)))  # (B W T)[piv] = identity
             for i in range(len(cl)):
                 weights.append((W @ T[:, i], False))
     Xb = np.stack([c[good] for c in Cb], axis=1)

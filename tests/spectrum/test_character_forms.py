@@ -232,3 +232,22 @@ def test_twist_of_level_one_form(q, k):
     assert near and all(g.symmetry.parity == "even" for g in near)
     assert min(abs(g.R - f.R) for g in near) < 1e-10
     assert min(np.max(np.abs(g.coeffs[0, :30] - tw)) for g in near) < 1e-8
+
+
+def test_oldforms_of_an_imprimitive_character():
+    """At level 10 with chi_5 induced (conductor 5), the odd dihedral form of level 5
+    (R = 3.26425...) appears as the oldforms f(z), f(2z): multiplicity 2, T_p (p not
+    dividing 10) do not separate them, so the basis is the echelon one (pivots at c(1) and
+    c(2)); the first member has c(n) = a_f(n) for odd n (f(2z) has only even frequencies),
+    to 1e-8 against the exact table; the new/old label is left unset."""
+    chi = C.induce(C.kronecker_character(5), 10)
+    res = search_forms(gamma0(10), 3.2, 3.3, character=chi)
+    (parity, R, a), = _dihedral(5, 3.2, 3.3)
+    near = [f for f in res.forms if abs(f.R - R) < 1e-9]
+    assert len(near) == 2 and all(f.multiplicity == 2 and f.extra["basis"] == "echelon" for f in near)
+    first, second = near
+    assert abs(first.coeffs[0, 0] - 1) < 1e-12 and abs(first.coeffs[0, 1]) < 1e-12
+    assert abs(second.coeffs[0, 0]) < 1e-12 and abs(second.coeffs[0, 1] - 1) < 1e-12
+    odd = np.arange(1, 30, 2)
+    assert np.max(np.abs(first.coeffs[0, odd - 1] - a[odd - 1])) < 1e-8
+    assert all(f.is_new is None and f.hecke_residual < 1e-8 for f in near)
