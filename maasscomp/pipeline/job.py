@@ -502,7 +502,38 @@ def _weyl_summary(st, cfg: Config, plan: Plan, summary: JobSummary) -> list[str]
             f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in rep.flagged))
         lines.append(f"level {N}, R in [{a:g}, {b:g}]: {rep.total_found} forms, "
                      f"{rep.total_expected:.2f} expected by Weyl's law; {state}")
+    for N, chi, (a, b), rep in _character_weyl_windows(st, cfg, plan, summary):
+        state = ("no window flagged" if not rep.flagged else "flagged: " + ", ".join(
+            f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in rep.flagged) + " (not searched again)")
+        lines.append(f"level {N}, character {chi}, R in [{a:g}, {b:g}]: {rep.total_found} forms, "
+                     f"{rep.total_expected:.2f} expected by Weyl's law with the character; {state}")
     return lines
+
+
+def _character_weyl_windows(st, cfg: Config, plan: Plan, summary: JobSummary):
+    """(level, character label, window, report) for every character searched in both
+    parities without failed tasks where Weyl's law with a character is available (prime
+    level, primitive character: maasscomp.spectrum.weyl_character)."""
+    from maasscomp.groups import DirichletCharacter
+    from maasscomp.spectrum.weyl import completeness
+
+    failed = {tid for tid, _ in summary.failures if tid.startswith("search:")}
+    out = []
+    for (N, lab), labels in plan.char_classes.items():
+        if set(labels) != {"even", "odd"}:
+            continue
+        if any(f":chi={lab}:" in tid or f"N={N}:" in tid and ":chi=" in tid for tid in failed):
+            continue
+        chi = DirichletCharacter.from_label(lab)
+        for a, b in cfg.search.windows:
+            keys = st.select(level=N, R_min=a, R_max=b, character=lab)
+            R = [r["R"] for r in st.summary_rows(n_coeffs=0, keys=keys)]
+            try:
+                rep = completeness(N, R, a, b, count_below=0 if a <= 1.0 else None, character=chi)
+            except InputError:
+                break  # no Weyl's law with this character here
+            out.append((N, lab, (a, b), rep))
+    return out
 
 
 def _plan_keys(st, cfg: Config, plan: Plan) -> list[str]:
