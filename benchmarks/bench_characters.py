@@ -66,11 +66,19 @@ def main() -> None:
     print(f"characters: {len(jobs)} searches (levels {N_min}..{N_max}, R in [{R_MIN}, {R_max}]), 2 workers",
           flush=True)
     t0, c0 = time.perf_counter(), time.process_time()
-    out = Parallel(n_jobs=2, verbose=0)(delayed(task)(N, lab, R_max) for N, lab in jobs)
+    head = (f"{'N':>3} {'character':<12} {'cond':>4} {'forms':>5} {'+conj':>5} {'rej':>4} {'bad':>4} "
+            f"{'singular cusps':<24} {'wall s':>8} {'CPU s':>8} {'CPU/form':>9}")
+    print("as they finish:\n" + head, flush=True)
+    out = []
+    for r in Parallel(n_jobs=2, verbose=0, return_as="generator_unordered")(
+            delayed(task)(N, lab, R_max) for N, lab in jobs):
+        out.append(r)
+        N, lab, cond, nf, nd, rej, bad, sing, w, c = r
+        print(f"{N:>3} {lab:<12} {cond:>4} {nf:>5} {nd:>5} {rej:>4} {bad:>4} {sing:<24} {w:>8.1f} {c:>8.1f} "
+              f"{c / max(nf, 1):>9.2f}", flush=True)
     wall = time.perf_counter() - t0
     out.sort(key=lambda r: (r[0], r[1]))
-    print(f"{'N':>3} {'character':<12} {'cond':>4} {'forms':>5} {'+conj':>5} {'rej':>4} {'bad':>4} "
-          f"{'singular cusps':<24} {'wall s':>8} {'CPU s':>8} {'CPU/form':>9}")
+    print("\nsorted:\n" + head)
     triv = {}
     tot_forms = tot_cpu = 0
     for N, lab, cond, nf, nd, rej, bad, sing, w, c in out:
