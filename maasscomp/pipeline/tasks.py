@@ -368,12 +368,15 @@ def execute_group(group: TaskGroup) -> list[TaskOutcome]:
 
 
 def parse_task_id(task_id: str) -> dict[str, Any] | None:
-    """Level, class label and chunk [lo, hi] of a search task id (None for other ids)."""
+    """Level, class label and chunk [lo, hi] of a search task id, with "character" for a task
+    of a nontrivial character (None for other ids)."""
     m = _ID_RE.match(task_id)
     if not m:
         return None
-    return {"level": int(m["N"]), "label": m["label"], "lo": float(m["a"]), "hi": float(m["b"]),
-            "character": m["chi"]}
+    out = {"level": int(m["N"]), "label": m["label"], "lo": float(m["a"]), "hi": float(m["b"])}
+    if m["chi"]:
+        out["character"] = m["chi"]  # only for tasks of a nontrivial character
+    return out
 
 
 # ---------------------------------------------------------------- planning
