@@ -75,7 +75,7 @@ class CharacterSamples:
     Parameters
     ----------
     group : Gamma0
-    chi : DirichletCharacter
+    chi : maasscomp.groups.characters.DirichletCharacter
         Even, modulo the level.
     params : SolverParams
         Y below the group's Y0, M0, Q > M0.
@@ -161,7 +161,7 @@ class CharacterSystem:
     Parameters
     ----------
     group : Gamma0
-    chi : DirichletCharacter
+    chi : maasscomp.groups.characters.DirichletCharacter
     parity : {"even", "odd"}
     params : SolverParams
     samples : CharacterSamples, optional

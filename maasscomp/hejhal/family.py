@@ -95,7 +95,7 @@ def build_family(group, classes: Sequence[SymmetryClass], params: SolverParams, 
     params : SolverParams
     kind : str, optional
         Default :func:`default_kind`.
-    character : DirichletCharacter, optional
+    character : maasscomp.groups.characters.DirichletCharacter, optional
         Required by (and only used with) ``kind="character"``.
     """
     kind = kind or default_kind(group)

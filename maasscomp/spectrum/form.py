@@ -52,7 +52,7 @@ class Form:
         Index of this form inside a multiplicity > 1 eigenspace basis.
     extra : dict
         Further labels (Atkin-Lehner signs found, Hecke eigenvalues, origin of an oldform...).
-    character : DirichletCharacter or None
+    character : maasscomp.groups.characters.DirichletCharacter or None
         The form's character chi modulo the level, f(gamma z) = chi(d) f(z); None means the
         trivial character. A form with a nontrivial character is complex-valued: ``coeffs``
         then holds c_j(nu) for the positive frequencies nu of kappa_j + Z at each cusp and

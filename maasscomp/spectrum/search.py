@@ -552,7 +552,7 @@ def search_forms(
         with parity classes).
     progress : callable(done, total), optional
         Called after each expansion point (both heights count).
-    character : DirichletCharacter, optional
+    character : maasscomp.groups.characters.DirichletCharacter, optional
         Forms with f(gamma z) = chi(d) f(z) (even chi modulo the level). A nontrivial
         character selects the complex character system (``system="character"``, parity
         classes; docs/theory-additions/chars.md); the trivial one the usual systems.

@@ -757,7 +757,7 @@ def completeness(
         changes inside the range are visible).
     oscillatory : bool, optional
         Use the oscillating terms of Weyl's law (default True).
-    character : DirichletCharacter, optional
+    character : maasscomp.groups.characters.DirichletCharacter, optional
         Forms with this character: Weyl's law of
         :func:`maasscomp.spectrum.weyl_character.character_weyl_count` (prime level,
         primitive even character; InputError elsewhere). The count test is not applied

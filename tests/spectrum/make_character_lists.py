@@ -34,7 +34,7 @@ def main() -> None:
         "#   character chi: (5, X5.2 = chi_5, R <= 12) and (7, X7.2 of order 3, R <= 10).",
         f"# source: computed here with tests/spectrum/make_character_lists.py (maasscomp {__version__}):",
         "#   two independent runs of maasscomp.spectrum.search.search_forms per list (lattice offsets 0",
-        "#   and 0.5), identical to 1e-9 in R; no form below R = 1 (none expected: Selberg's bound).",
+        "#   and 0.5), identical to 1e-9 in R; the lists start at R = 1 (not searched below).",
         "# columns: level, character, parity, R, multiplicity (one row per basis form).",
         "level,character,parity,R,multiplicity",
     ]
