@@ -373,7 +373,6 @@ def conjugate_form(group, form: Form) -> Form:
     chi-bar. At infinity c(n; g) = conj(c(n; f)).
     """
     from maasscomp.groups.characters import complex_value, conjugate, cusp_shifts
-    from maasscomp.hejhal.multicusp import cusp_reflections
 
     chi = form.character
     chib = conjugate(chi)
@@ -429,8 +428,7 @@ def _reflection_gammas(group) -> tuple[tuple[int, int, float, int], ...]:
         if T[1][0] != 0 or T[0][0] != T[1][1] or T[0][0] == 0:
             raise AssertionError(f"J sigma_j J is not sigma_k times a translation at cusp {cusp.name}")
         t = T[0][1] / T[0][0]
-        # gamma maps J sigma_j J (iH) = sigma_j(-conj(iH))... we need J sigma_j J = gamma^{-1} sigma_k T_t:
-        # pullback gives gamma (J sigma_j J z) = sigma_k T_t z, i.e. J sigma_j J = gamma^{-1} sigma_k T_t
+        # the pullback gives gamma (J sigma_j J) = sigma_k T_t, i.e. J sigma_j J = gamma^{-1} sigma_k T_t
         dinv = gam[0][0]  # d of gamma^{-1} is a of gamma
         out.append((cusp.index, k, t, dinv % group.level))
     return tuple(out)
