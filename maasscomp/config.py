@@ -99,6 +99,16 @@ KEYS: list[tuple[str, str, str, Any, str]] = [
     ("search", "chunk_width", "float", 1.0,
      "Width in R of one search task. Chunk edges sit at multiples of this width, so "
      "changing a window keeps the finished chunks it shares with the old one."),
+    ("search", "characters", "string or list", "trivial",
+     "Dirichlet characters chi of the forms, f(gamma z) = chi(d) f(z): 'trivial'; 'all-even' "
+     "(every even character modulo each level); or a list whose entries are 'trivial', a "
+     "label \"X<M>.<k1>.<k2>...\" (exponents k_i on the fixed generators of (Z/MZ)^x, "
+     "see maasscomp.groups.characters; used at every level that M divides, induced), a table "
+     "{conductor = q, index = i} (the i-th primitive character of conductor q in the order "
+     "of maasscomp.groups.characters.primitive_characters, induced to every level q "
+     "divides) or {modulus = M, exponents = [k1, ...]}. At weight 0 an odd character "
+     "(chi(-1) = -1) is an error. Of a pair chi, conj(chi) one is searched and the other "
+     "derived by complex conjugation with the reflection z -> -conj(z)."),
     ("search", "recheck", "bool", True,
      "After the search, compare the forms of every level searched in all its classes with "
      "Weyl's law where the project has it (squarefree levels), window by window, and search "
@@ -175,6 +185,7 @@ class SearchConfig:
     step: float | None
     chunk_width: float
     recheck: bool
+    characters: Any
 
     @property
     def R_min(self) -> float:
@@ -225,6 +236,8 @@ class Config:
         d["search"]["levels"] = list(self.search.levels)
         d["search"]["windows"] = [list(w) for w in self.search.windows]
         d["search"]["parities"] = list(self.search.parities)
+        if isinstance(self.search.characters, tuple):
+            d["search"]["characters"] = list(self.search.characters)
         return d
 
     def without_size_limits(self) -> "Config":
@@ -307,6 +320,35 @@ _RULE = re.compile(
     r"(?:(?:up\s*to|<=)\s*(?P<upto>\d+)|(?P<lo>\d+)\s*(?:\.\.|to|-)\s*(?P<hi>\d+))\s*$",
     re.IGNORECASE,
 )
+
+
+_CHAR_LABEL_RE = re.compile(r"^X[1-9][0-9]*(\.[0-9]+)*$")
+
+
+def parse_characters(spec: Any) -> Any:
+    """Check the form of ``[search] characters`` (the values are checked per level when
+    the job is planned, :func:`maasscomp.pipeline.tasks.build_plan`); returns "trivial",
+    "all-even" or a tuple of entries (labels as str, tables as dicts)."""
+    allowed = ("use \"trivial\", \"all-even\" or a list of characters: \"trivial\", a label such as "
+               "\"X7.2\", {conductor = q, index = i} or {modulus = M, exponents = [k1, ...]}")
+    if spec in ("trivial", "all-even"):
+        return spec
+    if not isinstance(spec, list) or not spec:
+        raise InputError(f"[search] characters={spec!r} is not allowed; {allowed}")
+    out = []
+    for e in spec:
+        if e == "trivial" or (isinstance(e, str) and _CHAR_LABEL_RE.match(e)):
+            out.append(e)
+        elif isinstance(e, dict) and set(e) == {"conductor", "index"} and all(
+                _is_int(e[k]) and e[k] >= (1 if k == "conductor" else 0) for k in e):
+            out.append({"conductor": int(e["conductor"]), "index": int(e["index"])})
+        elif isinstance(e, dict) and set(e) == {"modulus", "exponents"} and _is_int(e["modulus"]) \
+                and e["modulus"] >= 1 and isinstance(e["exponents"], list) and all(_is_int(k) and k >= 0
+                                                                                 for k in e["exponents"]):
+            out.append({"modulus": int(e["modulus"]), "exponents": [int(k) for k in e["exponents"]]})
+        else:
+            raise InputError(f"[search] characters: entry {e!r} is not allowed; {allowed}")
+    return tuple(out)
 
 
 def parse_levels(spec: Any) -> tuple[int, ...]:
@@ -549,6 +591,12 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
     recheck = srch.get("recheck", default("search", "recheck"))
     if not isinstance(recheck, bool):
         problems.append(f"[search] recheck={recheck!r} must be true or false")
+    characters = srch.get("characters", "trivial")
+    try:
+        characters = parse_characters(characters)
+    except InputError as exc:
+        problems.append(str(exc))
+        characters = "trivial"
 
     # [scan]
     scn = body["scan"]
@@ -623,6 +671,7 @@ def parse(data: dict, *, source_text: str = "", source_path: Path | None = None,
             step=None if step is None else float(step),
             chunk_width=float(chunk),
             recheck=bool(recheck),
+            characters=characters,
         ),
         scan=ScanConfig(enabled=bool(enabled), Y_omega=float(Y_omega), rtol=float(rtol),
                         samples_per_wavelength=float(spw)),

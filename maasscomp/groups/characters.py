@@ -254,7 +254,208 @@ class DirichletCharacter:
         return t - math.floor(t)
 
     def as_dict(self) -> dict:
-        """modulus, conductor, label, generators, orders and exponents (JSON-ready)."""
+        """modulus, conductor, label, generators, orders, exponents and the values on the
+        generators as fractions of a turn, chi(g_i) = exp(2 pi i k_i/o_i) (JSON-ready)."""
         return {"label": self.label, "modulus": self.modulus, "conductor": self.conductor,
                 "generators": list(self.generators), "orders": list(self.orders),
-                "exponents": list(self.exponents)}
+                "exponents": list(self.exponents),
+                "values_on_generators": [str(Fraction(k, o)) for k, o in zip(self.exponents, self.orders)],
+                "even": self.is_even}
+
+
+# ----------------------------------------------------------------------------------------
+# values, conjugates, enumeration, parsing and the character's behaviour at the cusps
+# ----------------------------------------------------------------------------------------
+
+
+def complex_value(chi: DirichletCharacter, n: int) -> complex:
+    """chi(n) as a complex number (0 when gcd(n, N) > 1)."""
+    t = chi.value(int(n))
+    if t is None:
+        return 0j
+    # exact values at the quarter turns keep real characters exactly real
+    if t.denominator <= 2 or t.denominator == 4:
+        return complex([1, 1j, -1, -1j][int(t * 4)])
+    return complex(math.cos(2 * math.pi * t), math.sin(2 * math.pi * t))
+
+
+def conjugate(chi: DirichletCharacter) -> DirichletCharacter:
+    """The complex conjugate character chi-bar (exponents -k_i mod o_i)."""
+    return DirichletCharacter(chi.modulus, tuple((-k) % o for k, o in zip(chi.exponents, chi.orders)))
+
+
+def is_real(chi: DirichletCharacter) -> bool:
+    """chi = chi-bar (all values +-1 or 0)."""
+    return conjugate(chi) == chi
+
+
+def induce(chi: DirichletCharacter, N: int) -> DirichletCharacter:
+    """The character modulo N (a multiple of chi.modulus) with the same values on the
+    integers prime to N (the induced character)."""
+    M = chi.modulus
+    if isinstance(N, bool) or not isinstance(N, int) or N < 1 or N % M:
+        raise InputError(f"modulus {N!r} is not allowed for inducing {chi.label}; use a multiple of {M}")
+    ks = []
+    for g, o in unit_generators(N):
+        t = chi.value(g % M if M > 1 else 0) if M > 1 else Fraction(0)
+        k = t * o
+        if k.denominator != 1:  # pragma: no cover - g^o = 1 forces it
+            raise AssertionError("induced exponent is not an integer")
+        ks.append(int(k) % o)
+    return DirichletCharacter(N, tuple(ks))
+
+
+def all_characters(N: int) -> tuple[DirichletCharacter, ...]:
+    """Every character modulo N, exponents in lexicographic order (trivial first)."""
+    import itertools
+
+    orders = [o for _, o in unit_generators(N)]
+    return tuple(DirichletCharacter(N, ks) for ks in itertools.product(*[range(o) for o in orders]))
+
+
+def even_characters(N: int) -> tuple[DirichletCharacter, ...]:
+    """Every even character modulo N (chi(-1) = 1), in the order of :func:`all_characters`."""
+    return tuple(c for c in all_characters(N) if c.is_even)
+
+
+def primitive_characters(q: int) -> tuple[DirichletCharacter, ...]:
+    """The primitive characters of conductor q (modulo q), in the order of
+    :func:`all_characters`; the index of a character in this tuple is its documented
+    index for ``{conductor = q, index = i}``."""
+    return tuple(c for c in all_characters(q) if c.conductor == q)
+
+
+def from_conductor(q: int, index: int, N: int | None = None) -> DirichletCharacter:
+    """The primitive character number ``index`` of conductor q (see
+    :func:`primitive_characters`), induced to modulus N (default q)."""
+    if isinstance(q, bool) or not isinstance(q, int) or q < 1:
+        raise InputError(f"conductor {q!r} is not allowed; use an integer >= 1")
+    prim = primitive_characters(q)
+    if not prim:
+        raise InputError(f"conductor {q} has no primitive character (no q = 2 mod 4 except 1 does)")
+    if isinstance(index, bool) or not isinstance(index, int) or not 0 <= index < len(prim):
+        raise InputError(f"character index {index!r} is not allowed for conductor {q}; use 0..{len(prim) - 1} "
+                         f"({', '.join(c.label for c in prim)})")
+    return induce(prim[index], q if N is None else N)
+
+
+def kronecker_character(D: int, N: int | None = None) -> DirichletCharacter:
+    """The character n -> (D/n) (Kronecker symbol) of a fundamental discriminant D, as a
+    character modulo |D| (or N, a multiple of |D|)."""
+    q = abs(int(D))
+    for c in all_characters(q):
+        if c.order <= 2 and c.conductor == q and all(
+                complex_value(c, n) == _kronecker(D, n) for n in range(1, 4 * q) if math.gcd(n, q) == 1):
+            return induce(c, q if N is None else N)
+    raise InputError(f"D={D!r} is not a fundamental discriminant")
+
+
+def _kronecker(D: int, n: int) -> int:
+    """Kronecker symbol (D/n) for n >= 1 (Cohen, A Course in Computational Algebraic
+    Number Theory, Def. 1.4.8)."""
+    out = 1
+    for p, e in factorint(n).items():
+        if p == 2:
+            v = 0 if D % 2 == 0 else (1 if D % 8 in (1, 7) else -1)
+        else:
+            r = D % p
+            v = 0 if r == 0 else (1 if pow(r, (p - 1) // 2, p) == 1 else -1)
+        out *= v ** e
+    return out
+
+
+def parse_character_spec(spec, N: int) -> DirichletCharacter | None:
+    """One entry of ``[search] characters`` at level N: the character it gives modulo N,
+    or None when it does not apply to this level (its modulus or conductor does not
+    divide N).
+
+    Allowed entries: ``"trivial"``; a label ``"X<M>.<k1>.<k2>..."`` (exponents on the
+    fixed generators of (Z/MZ)^x, see the module docstring; induced to N when M | N); a
+    table ``{conductor = q, index = i}`` (the i-th primitive character of conductor q,
+    :func:`primitive_characters`); a table ``{modulus = M, values = [k1, ...]}`` (the same
+    as the label).
+    """
+    if spec == "trivial":
+        return DirichletCharacter.trivial(N)
+    if isinstance(spec, str):
+        chi = DirichletCharacter.from_label(spec)
+    elif isinstance(spec, dict):
+        keys = set(spec)
+        if keys == {"conductor", "index"}:
+            q = spec["conductor"]
+            if isinstance(q, bool) or not isinstance(q, int) or q < 1:
+                raise InputError(f"character {spec!r}: conductor={q!r} is not allowed; use an integer >= 1")
+            if N % q:
+                return None
+            return from_conductor(q, spec["index"], N)
+        if keys == {"modulus", "exponents"}:
+            M, ks = spec["modulus"], spec["exponents"]
+            if not isinstance(ks, list):
+                raise InputError(f"character {spec!r}: exponents must be a list of integers")
+            chi = DirichletCharacter(M, tuple(ks))
+        else:
+            raise InputError(f"character {spec!r} is not allowed; use \"trivial\", a label such as "
+                             "\"X7.2\", {conductor = q, index = i} or {modulus = M, exponents = [k1, ...]}")
+    else:
+        raise InputError(f"character {spec!r} is not allowed; use \"trivial\", a label such as \"X7.2\", "
+                         "{conductor = q, index = i} or {modulus = M, exponents = [k1, ...]}")
+    if N % chi.modulus:
+        return None
+    return induce(chi, N)
+
+
+def characters_for_level(spec, N: int, *, weight: int = 0) -> tuple[DirichletCharacter, ...]:
+    """The characters modulo N named by a ``[search] characters`` value.
+
+    ``spec`` is ``"trivial"``, ``"all-even"`` (every even character mod N) or a list of
+    entries (:func:`parse_character_spec`). At weight 0 an odd character (chi(-1) = -1)
+    admits no nonzero form (f(-I z) = f(z) = chi(-1) f(z)) and is an error naming it.
+    """
+    if spec == "trivial":
+        return (DirichletCharacter.trivial(N),)
+    if spec == "all-even":
+        return even_characters(N)
+    if not isinstance(spec, list) or not spec:
+        raise InputError(f"characters={spec!r} is not allowed; use \"trivial\", \"all-even\" or a non-empty "
+                         "list of characters")
+    out = []
+    for s in spec:
+        chi = parse_character_spec(s, N)
+        if chi is None:
+            continue
+        if weight == 0 and not chi.is_even:
+            raise InputError(f"character {chi.label} (from {s!r}) is odd (chi(-1) = -1); at weight 0 only even "
+                             "characters have Maass forms")
+        out.append(chi)
+    return tuple(dict.fromkeys(out))
+
+
+def cusp_shifts(group, chi: DirichletCharacter) -> tuple[Fraction, ...]:
+    """kappa_j in [0, 1) with chi(gamma_j) = exp(2 pi i kappa_j) for the generator
+    gamma_j = sigma_j T sigma_j^{-1} of the stabiliser of each cusp j (T = [[1, 1], [0, 1]],
+    sigma_j the group's scaling matrix; chi(gamma) means chi of its lower-right entry).
+
+    For an even chi, -gamma_j gives the same value. A cusp with kappa_j = 0 is *singular*
+    for chi (it carries Eisenstein series and a constant term), the others are not.
+    """
+    if chi.modulus != group.level:
+        raise InputError(f"character {chi.label} has modulus {chi.modulus}, not the level {group.level}")
+    out = []
+    for c in group.cusps:
+        (a, b), (cc, d) = c.scaling
+        det = a * d - b * cc
+        # M T adj(M) / det is integral for the group's scaling matrices (det = width); M T adj(M) with T = [[1,1],[0,1]]: [[a,b],[c,d]] [[1,1],[0,1]] = [[a, a+b],[c, c+d]];
+        # times adj = [[d, -b], [-c, a]]
+        g00 = a * d - (a + b) * cc
+        g01 = -a * b + (a + b) * a
+        g10 = cc * d - (cc + d) * cc
+        g11 = -cc * b + (cc + d) * a
+        if any(x % det for x in (g00, g01, g10, g11)):
+            raise AssertionError(f"stabiliser of cusp {c.name} is not integral")
+        gd = g11 // det
+        lower = g10 // det
+        if lower % group.level:
+            raise AssertionError(f"stabiliser of cusp {c.name} is not in Gamma0({group.level})")
+        t = chi.value(gd)
+        out.append(Fraction(0) if t is None else t)
+    return tuple(out)

@@ -6,7 +6,10 @@ This is where the search picks its linear system:
   one real expansion per class, :class:`maasscomp.hejhal.system.HejhalSystem`
   (docs/theory.md §1.5);
 * ``"multi-cusp"`` (any level, parity classes): one expansion per cusp,
-  :class:`maasscomp.hejhal.multicusp.MultiCuspSystem` (docs/theory.md §1.2).
+  :class:`maasscomp.hejhal.multicusp.MultiCuspSystem` (docs/theory.md §1.2);
+* ``"character"`` (any level, parity classes, forms with a Dirichlet character chi):
+  one complex expansion per cusp over the shifted frequencies kappa_j + Z,
+  :class:`maasscomp.hejhal.charsystem.CharacterSystem` (docs/theory.md §12).
 
 All classes of a family share the sample points, hence the values Kt(R, x) at
 :attr:`SystemFamily.k_points`; every system is linear in those values
@@ -30,7 +33,7 @@ from maasscomp.errors import InputError
 from maasscomp.hejhal.types import SolverParams, SymmetryClass
 
 #: Names of the two kinds of system.
-KINDS = ("atkin-lehner", "multi-cusp")
+KINDS = ("atkin-lehner", "multi-cusp", "character")
 
 
 def default_kind(group) -> str:
@@ -81,7 +84,8 @@ class SystemFamily:
         return next(iter(self.systems.values())).k_points
 
 
-def build_family(group, classes: Sequence[SymmetryClass], params: SolverParams, kind: str | None = None) -> SystemFamily:
+def build_family(group, classes: Sequence[SymmetryClass], params: SolverParams, kind: str | None = None,
+                 character=None) -> SystemFamily:
     """The systems of ``classes`` at one height, sharing sample points and pullbacks.
 
     Parameters
@@ -91,6 +95,8 @@ def build_family(group, classes: Sequence[SymmetryClass], params: SolverParams, 
     params : SolverParams
     kind : str, optional
         Default :func:`default_kind`.
+    character : maasscomp.groups.characters.DirichletCharacter, optional
+        Required by (and only used with) ``kind="character"``.
     """
     kind = kind or default_kind(group)
     classes = list(dict.fromkeys(classes))
@@ -100,6 +106,13 @@ def build_family(group, classes: Sequence[SymmetryClass], params: SolverParams, 
 
         samples = SampleSet(group, params)
         systems = {c: HejhalSystem(group, c, params, samples) for c in classes}
+    elif kind == "character":
+        from maasscomp.hejhal.charsystem import CharacterSamples, CharacterSystem
+
+        if character is None:
+            raise InputError("the character system needs a character")
+        samples = CharacterSamples(group, character, params)
+        systems = {c: CharacterSystem(group, character, c.parity, params, samples) for c in classes}
     else:
         from maasscomp.hejhal.multicusp import MultiCuspSamples, MultiCuspSystem
 

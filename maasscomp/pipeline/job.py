@@ -382,7 +382,9 @@ def _store_outputs(st, outcomes: list[TaskOutcome], cfg: Config, run_id: str,
             for f, k in zip(forms, keys):
                 if k in fresh:
                     fresh.discard(k)
-                    new_counts[(f.level, f.symmetry.label)] += 1
+                    chi = getattr(f, "character", None)
+                    lab = f.symmetry.label if chi is None or chi.is_trivial else f"{f.symmetry.label} {chi.label}"
+                    new_counts[(f.level, lab)] += 1
             added[o.task_id] = len(stored)
     return added
 
@@ -432,8 +434,9 @@ def _weyl_windows(st, cfg: Config, plan: Plan, summary: JobSummary):
             continue
         if N in failed:
             continue
+        trivial = _trivial_label(N)
         for a, b in cfg.search.windows:
-            keys = st.select(level=N, R_min=a, R_max=b)
+            keys = st.select(level=N, R_min=a, R_max=b, character=trivial)
             forms = [FormSummary(r["R"], SymmetryClass.from_label(r["symmetry"]), r["is_new"],
                                  r["multiplicity"], r["basis_index"])
                      for r in st.summary_rows(n_coeffs=0, keys=keys)]
@@ -505,6 +508,11 @@ def _weyl_summary(st, cfg: Config, plan: Plan, summary: JobSummary) -> list[str]
                      f"{rep.total_expected:.2f} expected by Weyl's law; {state}")
         lines += _window_test_lines(rep)
         lines += ["  " + t for t in completeness_advice(N, a, b, rep.flagged, cfg.search.step)]
+    for N, chi, (a, b), rep in _character_weyl_windows(st, cfg, plan, summary):
+        state = ("no window flagged" if not rep.flagged else "flagged: " + ", ".join(
+            f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in rep.flagged) + " (not searched again)")
+        lines.append(f"level {N}, character {chi}, R in [{a:g}, {b:g}]: {rep.total_found} forms, "
+                     f"{rep.total_expected:.2f} expected by Weyl's law with the character; {state}")
     return lines
 
 
@@ -570,6 +578,32 @@ def completeness_advice(level: int, R_min: float, R_max: float, flagged, step: f
                        f"again with a finer lattice, [search] step = {float(f'{finer:.2g}'):g}, in a config "
                        "with a new output store (a store keeps the step it was made with), or from Python "
                        f"with maasscomp.spectrum.complete_search(gamma0({level}), {w.T_lo:g}, {w.T_hi:g})")
+
+
+
+def _character_weyl_windows(st, cfg: Config, plan: Plan, summary: JobSummary):
+    """(level, character label, window, report) for every character searched in both
+    parities without failed tasks where Weyl's law with a character is available (prime
+    level, primitive character: maasscomp.spectrum.weyl_character)."""
+    from maasscomp.groups import DirichletCharacter
+    from maasscomp.spectrum.weyl import completeness
+
+    failed = {tid for tid, _ in summary.failures if tid.startswith("search:")}
+    out = []
+    for (N, lab), labels in plan.char_classes.items():
+        if set(labels) != {"even", "odd"}:
+            continue
+        if any(f":chi={lab}:" in tid or f"N={N}:" in tid and ":chi=" in tid for tid in failed):
+            continue
+        chi = DirichletCharacter.from_label(lab)
+        for a, b in cfg.search.windows:
+            keys = st.select(level=N, R_min=a, R_max=b, character=lab)
+            R = [r["R"] for r in st.summary_rows(n_coeffs=0, keys=keys)]
+            try:
+                rep = completeness(N, R, a, b, count_below=0 if a <= 1.0 else None, character=chi)
+            except InputError:
+                break  # no Weyl's law with this character here
+            out.append((N, lab, (a, b), rep))
     return out
 
 
@@ -577,10 +611,20 @@ def _plan_keys(st, cfg: Config, plan: Plan) -> list[str]:
     """Keys of the stored forms inside the plan's levels, classes and windows."""
     keys = []
     for N, labels in plan.classes.items():
+        trivial = _trivial_label(N)
         for lab in labels:
             for a, b in cfg.search.windows:
-                keys += st.select(level=N, symmetry=lab, R_min=a, R_max=b)
+                keys += st.select(level=N, symmetry=lab, R_min=a, R_max=b, character=trivial)
     return keys
+
+
+def _trivial_label(N: int) -> str:
+    """Label of the trivial character mod N (the store's character filter; forms with a
+    nontrivial character are not compared with Weyl's law of the trivial character, nor
+    scanned: the scanner evaluates real cusp expansions only)."""
+    from maasscomp.groups import DirichletCharacter
+
+    return DirichletCharacter.trivial(N).label
 
 
 def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummary,
@@ -647,9 +691,16 @@ def _scan_stage(st, ex, cfg: Config, plan: Plan, run_id: str, summary: JobSummar
 def _count_forms(st, cfg: Config, plan: Plan) -> dict[tuple[int, str], int]:
     counts = {}
     for N, labels in plan.classes.items():
+        trivial = _trivial_label(N)
         for lab in labels:
             n = 0
             for a, b in cfg.search.windows:
-                n += len(st.select(level=N, symmetry=lab, R_min=a, R_max=b))
+                n += len(st.select(level=N, symmetry=lab, R_min=a, R_max=b, character=trivial))
             counts[(N, lab)] = n
+    for (N, chi), labels in plan.char_classes.items():
+        for lab in labels:
+            n = 0
+            for a, b in cfg.search.windows:
+                n += len(st.select(level=N, symmetry=lab, R_min=a, R_max=b, character=chi))
+            counts[(N, f"{lab} {chi}")] = n
     return counts

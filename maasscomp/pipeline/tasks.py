@@ -41,7 +41,8 @@ OVERLAP = 1e-3
 #: Half-width of the band around an inner chunk edge in which both neighbours keep a form.
 ETA = 1e-7
 
-_ID_RE = re.compile(r"^search:N=(?P<N>\d+):(?P<label>[^:]+):\[(?P<a>[^,]+),(?P<b>[^\]]+)\]$")
+_ID_RE = re.compile(r"^search:N=(?P<N>\d+):(?P<label>[^:]+):(?:chi=(?P<chi>[^:]+):)?"
+                    r"\[(?P<a>[^,]+),(?P<b>[^\]]+)\]$")
 
 
 def _fmt(x: float) -> str:
@@ -119,12 +120,26 @@ class SearchTask:
     n_coeffs: int
     step: float | None
     general: bool = False  # non-squarefree level: the search picks the multi-cusp system
+    #: label of a nontrivial character (``X7.2``); "" for the trivial one
+    character: str = ""
+    #: also store the forms of the conjugate character, derived from this task's forms
+    derive_conjugate: bool = False
 
     stage = "search"
 
     @property
     def task_id(self) -> str:
-        return f"search:N={self.level}:{self.label}:[{_fmt(self.chunk.lo)},{_fmt(self.chunk.hi)}]"
+        chi = f"chi={self.character}:" if self.character else ""
+        return f"search:N={self.level}:{self.label}:{chi}[{_fmt(self.chunk.lo)},{_fmt(self.chunk.hi)}]"
+
+    @property
+    def chi(self):
+        """The task's DirichletCharacter (None for the trivial one)."""
+        if not self.character:
+            return None
+        from maasscomp.groups import DirichletCharacter
+
+        return DirichletCharacter.from_label(self.character)
 
     def run(self) -> "SearchOutput":
         from maasscomp.groups import gamma0
@@ -134,17 +149,23 @@ class SearchTask:
         c = self.chunk
         res = search_forms(gamma0(self.level), c.search_lo, c.search_hi,
                      settings=search_settings(self.eps, self.n_coeffs, self.step),
-                     classes=[SymmetryClass.from_label(self.label)])
+                     classes=[SymmetryClass.from_label(self.label)], character=self.chi)
         return self.output_from(res)
 
     def output_from(self, res) -> "SearchOutput":
         """The forms and rejected candidates of this task's class in a search result that
-        belong to this chunk."""
+        belong to this chunk (with the derived forms of the conjugate character when asked)."""
         from maasscomp.hejhal.types import SymmetryClass
 
         c = self.chunk
         sym = SymmetryClass.from_label(self.label)
         kept = tuple(f for f in res.forms if f.symmetry == sym and c.keeps(f.R))
+        if self.derive_conjugate and kept:
+            from maasscomp.groups import gamma0
+            from maasscomp.spectrum.charforms import conjugate_form
+
+            G = gamma0(self.level)
+            kept = kept + tuple(conjugate_form(G, f) for f in kept)
         rejected = tuple((cand.R, cand.reason) for cand in res.candidates
                          if cand.symmetry == sym and not cand.accepted and c.keeps(cand.R))
         return SearchOutput(forms=kept, rejected=rejected, grid_step=float(res.grid_step))
@@ -293,7 +314,7 @@ def group_tasks(tasks) -> list[TaskGroup]:
     """Group tasks by level and chunk, keeping the order of first appearance."""
     groups: dict[tuple, list] = {}
     for t in tasks:
-        groups.setdefault((t.level, t.chunk), []).append(t)
+        groups.setdefault((t.level, t.chunk, getattr(t, "character", "")), []).append(t)
     return [TaskGroup(tuple(g)) for g in groups.values()]
 
 
@@ -312,7 +333,7 @@ def execute_group(group: TaskGroup) -> list[TaskOutcome]:
     tasks = group.tasks
     first = tasks[0]
     joint = (len(tasks) > 1 and all(isinstance(t, SearchTask) for t in tasks)
-             and len({(t.level, t.chunk, t.eps, t.n_coeffs, t.step) for t in tasks}) == 1)
+             and len({(t.level, t.chunk, t.eps, t.n_coeffs, t.step, t.character) for t in tasks}) == 1)
     if not joint:
         return [execute(t) for t in tasks]
     from maasscomp.groups import gamma0
@@ -325,7 +346,8 @@ def execute_group(group: TaskGroup) -> list[TaskOutcome]:
     c = first.chunk
     try:
         res = search_forms(gamma0(first.level), c.search_lo, c.search_hi,
-                     settings=search_settings(first.eps, first.n_coeffs, first.step), classes=syms)
+                     settings=search_settings(first.eps, first.n_coeffs, first.step), classes=syms,
+                     character=first.chi)
         outs = [t.output_from(res) for t in tasks]
     except Exception as exc:  # noqa: BLE001 - reported per task, the sweep goes on
         dt = (time.perf_counter() - t0) / len(tasks)
@@ -336,11 +358,15 @@ def execute_group(group: TaskGroup) -> list[TaskOutcome]:
 
 
 def parse_task_id(task_id: str) -> dict[str, Any] | None:
-    """Level, class label and chunk [lo, hi] of a search task id (None for other ids)."""
+    """Level, class label and chunk [lo, hi] of a search task id, with "character" for a task
+    of a nontrivial character (None for other ids)."""
     m = _ID_RE.match(task_id)
     if not m:
         return None
-    return {"level": int(m["N"]), "label": m["label"], "lo": float(m["a"]), "hi": float(m["b"])}
+    out = {"level": int(m["N"]), "label": m["label"], "lo": float(m["a"]), "hi": float(m["b"])}
+    if m["chi"]:
+        out["character"] = m["chi"]  # only for tasks of a nontrivial character
+    return out
 
 
 # ---------------------------------------------------------------- planning
@@ -521,6 +547,10 @@ class Plan:
     scan: bool = False
     size: JobSize | None = None
     cpu_hours: float = 0.0
+    #: (level, character label) -> parity classes searched with that nontrivial character
+    char_classes: dict[tuple[int, str], tuple[str, ...]] = field(default_factory=dict)
+    #: (level, character label) -> label of the character whose forms are derived from its
+    char_derived: dict[tuple[int, str], str] = field(default_factory=dict)
 
     def describe(self) -> str:
         nl = len(self.classes)
@@ -532,9 +562,19 @@ class Plan:
                          f"search: {_fmt_hours(self.cpu_hours)} (order of magnitude; scans "
                          "not included)")
         for N, labels in self.classes.items():
-            n = sum(t.level == N for t in self.tasks)
+            n = sum(t.level == N and not t.character for t in self.tasks)
             lines.append(f"  level {N:>4}: {len(labels)} classes ({', '.join(labels)}), {n} tasks, "
                          f"about {1024 * self.memory_gb[N]:.0f} MB per task")
+        source = {(N, d): c for (N, c), d in self.char_derived.items()}
+        for (N, chi), labels in self.char_classes.items():
+            if (N, chi) in source:
+                lines.append(f"  level {N:>4}, character {chi}: {len(labels)} classes ({', '.join(labels)}), "
+                             f"derived by conjugation from the forms of {source[(N, chi)]}")
+                continue
+            n = sum(t.level == N and t.character == chi for t in self.tasks)
+            conj = self.char_derived.get((N, chi))
+            lines.append(f"  level {N:>4}, character {chi}: {len(labels)} classes ({', '.join(labels)}), "
+                         f"{n} tasks" + (f"; forms of {conj} derived by conjugation" if conj else ""))
         return "\n".join(lines)
 
 
@@ -571,6 +611,8 @@ def build_plan(cfg: Config) -> Plan:
     problems: list[str] = []
     tasks: list[SearchTask] = []
     classes: dict[int, tuple[str, ...]] = {}
+    char_classes: dict[tuple[int, str], tuple[str, ...]] = {}
+    char_derived: dict[tuple[int, str], str] = {}
     mem: dict[int, float] = {}
     chunks = [c for (a, b) in s.windows for c in chunk_window(a, b, s.chunk_width)]
     limit = cfg.executor.memory_limit_gb
@@ -586,15 +628,36 @@ def build_plan(cfg: Config) -> Plan:
                 f"[executor] memory_limit_gb = {limit:.3g}; lower R_max or n_coeffs, or raise "
                 "memory_limit_gb")
             continue
-        labels = tuple(class_labels(N, s.parities, s.atkin_lehner))
-        if not labels:
-            problems.append(f"level {N}: no symmetry class left after parities={list(s.parities)} "
-                            f"and atkin_lehner={s.atkin_lehner!r}")
+        try:
+            chars = _characters_of(s.characters, N)
+        except InputError as exc:
+            problems.append(f"level {N}: {exc}")
             continue
-        classes[N] = labels
-        for lab in labels:
-            for c in chunks:
-                tasks.append(SearchTask(N, lab, c, s.eps, s.n_coeffs, s.step, general))
+        if any(chi.is_trivial for chi in chars):
+            labels = tuple(class_labels(N, s.parities, s.atkin_lehner))
+            if not labels:
+                problems.append(f"level {N}: no symmetry class left after parities={list(s.parities)} "
+                                f"and atkin_lehner={s.atkin_lehner!r}")
+                continue
+            classes[N] = labels
+            for lab in labels:
+                for c in chunks:
+                    tasks.append(SearchTask(N, lab, c, s.eps, s.n_coeffs, s.step, general))
+        for chi, conj in _character_pairs(chars):
+            if 8 * mem[N] > limit:
+                problems.append(f"level {N} with character {chi.label} up to R={s.R_max:g}: one task "
+                                f"needs about {8 * mem[N]:.1f} GB (complex system), more than "
+                                f"[executor] memory_limit_gb = {limit:.3g}")
+                continue
+            labels = tuple(dict.fromkeys(s.parities))
+            char_classes[(N, chi.label)] = labels
+            if conj is not None:
+                char_classes[(N, conj.label)] = labels
+                char_derived[(N, chi.label)] = conj.label
+            for lab in labels:
+                for c in chunks:
+                    tasks.append(SearchTask(N, lab, c, s.eps, s.n_coeffs, s.step, general, chi.label,
+                                            conj is not None))
         if size is not None:
             # two heights, an LU of the M x M matrix and its assembly per grid point, with
             # the truncation the scan uses at the lower height
@@ -607,7 +670,36 @@ def build_plan(cfg: Config) -> Plan:
             raise InputError(where + problems[0])
         raise InputError(where + f"{len(problems)} problems in the config:\n  - " + "\n  - ".join(problems))
     return Plan(tasks=tuple(tasks), classes=classes, memory_gb=mem, scan=cfg.scan.enabled,
-                size=size, cpu_hours=hours)
+                size=size, cpu_hours=hours, char_classes=char_classes, char_derived=char_derived)
+
+
+def _characters_of(spec, N: int):
+    """The characters modulo N named by ``[search] characters`` (raises InputError)."""
+    from maasscomp.groups.characters import characters_for_level
+
+    if isinstance(spec, tuple):
+        spec = list(spec)
+    return characters_for_level(spec, N)
+
+
+def _character_pairs(chars):
+    """(chi, conj) for every nontrivial character to search: conj is its complex conjugate
+    when that is also wanted (and different), whose forms are then derived by conjugation
+    (docs/theory.md §12.3); each pair is searched once, at the character with
+    the smaller exponent tuple."""
+    from maasscomp.groups.characters import conjugate
+
+    wanted = [c for c in chars if not c.is_trivial]
+    out = []
+    for chi in wanted:
+        cb = conjugate(chi)
+        if cb != chi and cb in wanted:
+            if cb.exponents < chi.exponents:
+                continue
+            out.append((chi, cb))
+        else:
+            out.append((chi, None))
+    return out
 
 
 def _level_points(cfg: Config, N: int) -> float:

@@ -53,6 +53,12 @@ class Form:
         Index of this form inside a multiplicity > 1 eigenspace basis.
     extra : dict
         Further labels (Atkin-Lehner signs found, Hecke eigenvalues, origin of an oldform...).
+    character : maasscomp.groups.characters.DirichletCharacter or None
+        The form's character chi modulo the level, f(gamma z) = chi(d) f(z); None means the
+        trivial character. A form with a nontrivial character is complex-valued: ``coeffs``
+        then holds c_j(nu) for the positive frequencies nu of kappa_j + Z at each cusp and
+        ``extra["coeffs_negative"]`` those of the negative ones
+        (:mod:`maasscomp.spectrum.charforms`, docs/theory.md §12).
     key : str or None
         The store key of a form read from a store (None for a form not read from one). It is
         not part of the stored data and does not take part in comparisons.
@@ -80,6 +86,7 @@ class Form:
     multiplicity: int = 1
     basis_index: int = 0
     extra: dict[str, Any] = field(default_factory=dict)
+    character: Any = None
     key: str | None = field(default=None, compare=False)
 
     def __post_init__(self) -> None:

@@ -111,7 +111,7 @@ def _subspace_pencil(A0, A1, radius, imag_max, block, rng) -> PencilRoots:
         for _ in range(60):
             Z = sla.lu_solve(lu, A1 @ X, check_finite=False)
             X, _r = np.linalg.qr(Z)
-            H = X.T @ sla.lu_solve(lu, A1 @ X, check_finite=False)
+            H = X.conj().T @ sla.lu_solve(lu, A1 @ X, check_finite=False)
             mu = np.linalg.eigvals(H)
             d = np.sort_complex(-1.0 / mu)
             inner = d[np.abs(d) <= 1.5 * radius]
@@ -125,7 +125,7 @@ def _subspace_pencil(A0, A1, radius, imag_max, block, rng) -> PencilRoots:
             break
         p = min(n, 2 * p)
     TX = sla.lu_solve(lu, A1 @ X, check_finite=False)
-    H = X.T @ TX
+    H = X.conj().T @ TX
     mu, W = np.linalg.eig(H)
     return _select(mu, X @ W, radius, imag_max)
 
@@ -165,12 +165,16 @@ def newton_root(matrices: Callable[[float], tuple[np.ndarray, np.ndarray]], R0: 
     max_move : float
         Give up when the iterate leaves [R0 - max_move, R0 + max_move].
     """
-    v0 = np.real(np.asarray(v0))
-    nv = float(v0 @ v0)
+    v0 = np.asarray(v0)
+    if not np.iscomplexobj(v0):
+        v0 = np.real(v0)
+    nv = float(np.vdot(v0, v0).real)
     if not nv > 0:
         v0 = np.ones_like(v0)
-        nv = float(v0 @ v0)
-    u = v0 / nv
+        nv = float(np.vdot(v0, v0).real)
+    # complex systems (a character): u^H v = 1; R stays real (the real part of the step;
+    # at a root of the complex system the step is real up to the truncation error)
+    u = np.conj(v0) / nv
     v = v0.copy()
     R = float(R0)
     steps, last = 0, math.inf
@@ -180,11 +184,11 @@ def newton_root(matrices: Callable[[float], tuple[np.ndarray, np.ndarray]], R0: 
         A, dA = matrices(R)
         lu = sla.lu_factor(A, check_finite=False)
         x = sla.lu_solve(lu, dA @ v, check_finite=False)
-        ux = float(u @ x)
+        ux = complex(u @ x) if np.iscomplexobj(x) else float(u @ x)
         if not (np.isfinite(ux) and ux != 0.0):
             break
-        step = 1.0 / ux
         v = x / ux
+        step = float(np.real(1.0 / ux))
         R -= step
         if abs(R - R0) > max_move:
             last = abs(step)
@@ -221,9 +225,10 @@ def null_basis(A: np.ndarray, lu, k: int, *, rng: np.random.Generator | None = N
     k = min(k, n)
     rng = rng or np.random.default_rng(7)
     X = rng.standard_normal((n, k))
-    Z = sla.lu_solve(lu, sla.lu_solve(lu, X, trans=1, check_finite=False), check_finite=False)
+    tr = 2 if np.iscomplexobj(A) else 1  # A^H for complex matrices
+    Z = sla.lu_solve(lu, sla.lu_solve(lu, X, trans=tr, check_finite=False), check_finite=False)
     Q = np.linalg.qr(Z)[0]
-    Z = sla.lu_solve(lu, sla.lu_solve(lu, Q, trans=1, check_finite=False), check_finite=False)
+    Z = sla.lu_solve(lu, sla.lu_solve(lu, Q, trans=tr, check_finite=False), check_finite=False)
     Q = np.linalg.qr(Z)[0]
     _, s, Vt = np.linalg.svd(A @ Q, full_matrices=False)
     order = np.argsort(s)
@@ -236,7 +241,7 @@ def _norm2(A: np.ndarray, rng: np.random.Generator) -> float:
     x = rng.standard_normal(A.shape[1])
     s = 1.0
     for _ in range(6):
-        y = A.T @ (A @ x)
+        y = A.conj().T @ (A @ x)
         s = float(np.linalg.norm(y))
         if s == 0:
             return 1.0
@@ -250,8 +255,9 @@ def root_condition(A: np.ndarray, dA: np.ndarray, lu, v: np.ndarray, *,
     kappa = |w| |v| / |w^T A' v| (w the left null vector), the classical eigenvalue
     condition number of the linearised problem."""
     rng = rng or np.random.default_rng(11)
-    w = sla.lu_solve(lu, rng.standard_normal(A.shape[0]), trans=1, check_finite=False)
-    den = abs(float(w @ (dA @ v)))
+    tr = 2 if np.iscomplexobj(A) else 1
+    w = sla.lu_solve(lu, rng.standard_normal(A.shape[0]), trans=tr, check_finite=False)
+    den = abs(np.vdot(w, dA @ v)) if np.iscomplexobj(A) else abs(float(w @ (dA @ v)))
     if den == 0:
         return math.inf
     return float(np.linalg.norm(w) * np.linalg.norm(v) / den)

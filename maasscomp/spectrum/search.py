@@ -178,13 +178,15 @@ class SearchResult:
         reason; roots of one height only are counted in ``stats`` (``spurious``) and not
         proposed.
     system : str
-        ``"atkin-lehner"`` or ``"multi-cusp"``.
+        ``"atkin-lehner"``, ``"multi-cusp"`` or ``"character"``.
     grid_step : float
         Largest distance between expansion points used.
     stats : dict
         Counts: expansion points, pencil eigenvalues, Newton steps (factorisations),
         relinearisations, starts that led nowhere, roots found at one height by testing the
-        other height's root, spurious roots (roots of one height only).
+        other height's root, spurious roots (roots of one height only). With a nontrivial
+        character also ``character`` (its label), ``singular_cusps`` (names of the cusps
+        with kappa_j = 0) and ``cusp_shifts`` (kappa_j per cusp name).
     """
 
     level: int
@@ -436,7 +438,7 @@ def _scan_point(system, ksrc: KSource, c: float, k: np.ndarray, dk: np.ndarray, 
             arrive(i, start)
             continue
         n_before = len(pool)
-        if not polish(start, np.real(v), max_move=2.0 * radius):
+        if not polish(start, _start_vector(system, v), max_move=2.0 * radius):
             retry.append(start)
         elif len(pool) > n_before and abs(d) > 1e-3 * width:
             kappa_lin = max(kappa_lin, abs(pool[-1].R - start) / abs(d) ** 2)
@@ -444,7 +446,7 @@ def _scan_point(system, ksrc: KSource, c: float, k: np.ndarray, dk: np.ndarray, 
     trouble = False
     for start in retry:
         counts.relinearised += 1
-        for s2, v2 in _local_pencil(mats, start, 0.5 * radius):
+        for s2, v2 in _local_pencil(mats, start, 0.5 * radius, system):
             if find(s2, 1e-9 * max(1.0, s2)) is not None:
                 continue
             n_before = len(pool)
@@ -464,7 +466,7 @@ def _scan_point(system, ksrc: KSource, c: float, k: np.ndarray, dk: np.ndarray, 
             r = pool[i]
             # the skipped neighbour lies within the reach of the starts that arrived here
             look = min(2.0 * reach.get(i, 0.0) + near_tol, radius)
-            for s2, v2 in _local_pencil(mats, r.R, look):
+            for s2, v2 in _local_pencil(mats, r.R, look, system):
                 if abs(s2 - r.R) <= 1e-9 * max(1.0, r.R) or find(s2, 1e-9 * max(1.0, s2)) is not None:
                     continue
                 polish(s2, v2, max_move=2.0 * look)
@@ -501,11 +503,17 @@ def _other_height(system, ksrc: KSource, r: Root, height: int, settings: SearchS
                 steps=nr.steps, start=r.R, patch=r.patch)
 
 
-def _local_pencil(mats, R: float, radius: float):
+def _local_pencil(mats, R: float, radius: float, system=None):
     """Starting points (and vectors) from the pencil linearised at R."""
     A0, A1 = mats(R)
     pr = pn.pencil_roots(A0, A1, radius)
-    return [(R + float(d.real), np.real(v)) for d, v in zip(pr.delta, pr.vectors.T)]
+    return [(R + float(d.real), _start_vector(system, v)) for d, v in zip(pr.delta, pr.vectors.T)]
+
+
+def _start_vector(system, v: np.ndarray) -> np.ndarray:
+    """Newton's starting vector: the pencil eigenvector (complex for a complex system, its
+    real part for a real one)."""
+    return np.asarray(v) if getattr(system, "is_complex", False) else np.real(v)
 
 
 # ----------------------------------------------------------------------------------------
@@ -523,6 +531,7 @@ def search_forms(
     classes: Sequence[SymmetryClass] | None = None,
     system: str | None = None,
     progress: Callable[[int, int], None] | None = None,
+    character=None,
 ) -> SearchResult:
     """Find every eigenvalue with R in [R_min, R_max] of the symmetry classes of Gamma0(N).
 
@@ -543,6 +552,10 @@ def search_forms(
         with parity classes).
     progress : callable(done, total), optional
         Called after each expansion point (both heights count).
+    character : maasscomp.groups.characters.DirichletCharacter, optional
+        Forms with f(gamma z) = chi(d) f(z) (even chi modulo the level). A nontrivial
+        character selects the complex character system (``system="character"``, parity
+        classes; docs/theory.md §12); the trivial one the usual systems.
 
     Returns
     -------
@@ -551,7 +564,12 @@ def search_forms(
     """
     settings = settings or SearchSettings()
     _check_window(R_min, R_max)
-    kind = system or default_kind(group)
+    chi = _check_character(group, character, system)
+    kind = system or ("character" if chi is not None and not chi.is_trivial else default_kind(group))
+    if kind == "character" and chi is None:
+        from maasscomp.groups.characters import DirichletCharacter
+
+        chi = DirichletCharacter.trivial(group.level)
     if classes is None:
         classes = symmetry_classes(group, tuple(parities), kind)
     classes = list(dict.fromkeys(classes))
@@ -585,7 +603,7 @@ def search_forms(
         first: dict = {}
         for h, frac in enumerate(fracs):
             params = choose_params(k_hi + 0.5, frac * Y0, settings.eps)
-            fams.append(build_family(group, classes, params, kind))
+            fams.append(build_family(group, classes, params, kind, chi))
             ksrcs.append(KSource(fams[h].k_points, k_lo, k_hi))
             for cls in classes:
                 first[(cls, h)] = len(roots[cls][h])
@@ -631,7 +649,7 @@ def search_forms(
                 lo, hi = lattice.edge(q0), lattice.edge(q1 + 1)
                 k_lo, k_hi = max(lo - 2.0 * lattice.width(q0), 0.5 * lo), hi + 2.0 * lattice.width(q1)
                 params = choose_params(k_hi + 0.5, 0.9 * fracs[1] * Y0, settings.eps)
-                fam = build_family(group, classes, params, kind)
+                fam = build_family(group, classes, params, kind, chi)
                 thirds[q] = (fam, KSource(fam.k_points, k_lo, k_hi))
             fam, ksrc = thirds[q]
             sy = fam.systems[cls]
@@ -659,7 +677,12 @@ def search_forms(
     for q, cls, a, b in proposed:
         for old in [k for k in thirds if k != q]:
             del thirds[old]
-        ok, reason, new = _accept(group, cls, kind, a, b, settings, third_for(cls, q))
+        if kind == "character":
+            from maasscomp.spectrum.charforms import accept_character
+
+            ok, reason, new = accept_character(group, chi, cls, a, b, settings, third_for(cls, q))
+        else:
+            ok, reason, new = _accept(group, cls, kind, a, b, settings, third_for(cls, q))
         candidates.append(Candidate(R=0.5 * (a.R + b.R), symmetry=cls, accepted=ok, reason=reason))
         forms.extend(new)
     thirds.clear()
@@ -671,9 +694,36 @@ def search_forms(
         "lost_starts": counts.lost, "recovered_at_other_height": counts.recovered,
         "spurious_roots": spurious,
     }
+    if kind == "character":
+        from maasscomp.groups.characters import cusp_shifts
+
+        kap = cusp_shifts(group, chi)
+        stats["character"] = chi.label
+        stats["singular_cusps"] = [c.name for c, k in zip(group.cusps, kap) if k == 0]
+        stats["cusp_shifts"] = {c.name: str(k) for c, k in zip(group.cusps, kap)}
     return SearchResult(level=group.level, classes=tuple(classes), R_min=float(R_min), R_max=float(R_max),
                         forms=tuple(forms), candidates=tuple(sorted(candidates, key=lambda c: c.R)),
                         system=kind, grid_step=float(grid_step), stats=stats)
+
+
+def _check_character(group, character, system):
+    """The character of a search (None for none given), checked against the level."""
+    if character is None:
+        return None
+    from maasscomp.groups.characters import DirichletCharacter
+
+    if not isinstance(character, DirichletCharacter):
+        raise InputError(f"character {character!r} is not allowed; give a DirichletCharacter")
+    if character.modulus != group.level:
+        raise InputError(f"character {character.label} has modulus {character.modulus}; the level is "
+                         f"{group.level} (induce it with maasscomp.groups.characters.induce)")
+    if not character.is_even:
+        raise InputError(f"character {character.label} is odd (chi(-1) = -1); at weight 0 only even "
+                         "characters have Maass forms")
+    if not character.is_trivial and system not in (None, "character"):
+        raise InputError(f"system {system!r} does not carry a character; a nontrivial character "
+                         f"({character.label}) is searched with system='character'")
+    return character
 
 
 def _dedupe(roots: list[Root], lattice: PointLattice) -> list[Root]:

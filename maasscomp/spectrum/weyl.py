@@ -691,6 +691,7 @@ def completeness(
     gap_fraction: float = 0.1,
     spacing_alpha: float = 0.01,
     spacing_min_gaps: int = 80,
+    character=None,
 ) -> CompletenessReport:
     """Test a list of eigenvalues for completeness against Weyl's law, window by window.
 
@@ -748,6 +749,11 @@ def completeness(
         changes inside the range are visible).
     oscillatory : bool, optional
         Use the oscillating terms of Weyl's law (default True).
+    character : maasscomp.groups.characters.DirichletCharacter, optional
+        Forms with this character: Weyl's law of
+        :func:`maasscomp.spectrum.weyl_character.character_weyl_count` (prime level,
+        primitive even character; InputError elsewhere). The count test is not applied
+        then; the Turing and spacing tests use the noise model of the level.
     drop_threshold : float, optional
         Threshold of the change-point statistic of the count test (default 0.4).
     complete_to : float, optional
@@ -779,6 +785,23 @@ def completeness(
 
     N = check_level(level)
     d = weyl_terms(N)
+    chi = None if character is None or character.is_trivial else character
+    if chi is None:
+        def wc(x):
+            return weyl_count(N, x, oscillatory=oscillatory)
+
+        def wd(x):
+            return weyl_density(N, x)
+    else:
+        from maasscomp.spectrum.weyl_character import character_weyl_count, character_weyl_density
+
+        def wc(x):
+            return character_weyl_count(N, chi, x, oscillatory=oscillatory)
+
+        def wd(x):
+            return character_weyl_density(N, chi, x)
+
+        wc(1.0)  # raises InputError where Weyl's law with this character is not available
     if not (math.isfinite(T_min) and math.isfinite(T_max)) or T_min < 0 or T_max <= T_min:
         raise InputError(f"need 0 <= T_min < T_max, got T_min={T_min!r}, T_max={T_max!r}")
     if complete_to is None:
@@ -794,7 +817,7 @@ def completeness(
     below = int(np.sum(Rall <= T_min))
     R = Rall[(Rall > T_min) & (Rall <= T_max)]
     R_ext = Rall[(Rall > T_min) & (Rall <= complete_to)]
-    W_min = float(weyl_count(N, T_min, oscillatory=oscillatory)) if T_min > 0 else 0.0
+    W_min = float(wc(T_min)) if T_min > 0 else 0.0
     if count_below is not None:
         base = float(count_below)
         known = True
@@ -809,7 +832,7 @@ def completeness(
 
     # window edges
     if window is None:
-        dens = float(weyl_density(N, max(T_max, 1.0)))
+        dens = float(wd(max(T_max, 1.0)))
         width = max(0.5, 4.0 / max(dens, 1e-9))
         n = max(1, int(math.ceil((T_max - T_min) / width)))
         edges = np.linspace(T_min, T_max, n + 1)
@@ -831,13 +854,13 @@ def completeness(
         ):
             raise InputError("window edges must increase strictly from T_min to T_max")
 
-    W_edges = np.asarray(weyl_count(N, edges, oscillatory=oscillatory), dtype=float)
+    W_edges = np.asarray(wc(edges), dtype=float)
     if T_min == 0:
         W_edges[0] = 0.0
 
     # midpoint remainder at each eigenvalue; equal values share the jump
     if R.size:
-        W_R = np.asarray(weyl_count(N, R, oscillatory=oscillatory), dtype=float)
+        W_R = np.asarray(wc(R), dtype=float)
         left = np.searchsorted(R, R, side="left")
         right = np.searchsorted(R, R, side="right")
         S = base + 0.5 * (left + right) - W_R
@@ -872,7 +895,9 @@ def completeness(
     # multiplicities up to sigma_0(N) in one parity class, so S jumps by 2-4 at once and the
     # change-point rule raises false alarms (level 4 below R = 12: S(12) = -1.5 for a list
     # checked complete by a second, finer search)
-    count_active = scale_model <= _COUNT_RULE_MAX_SCALE and d.squarefree
+    # with a character the eigenspaces of a real chi come in conjugate pairs (S jumps by 2),
+    # as oldforms do at non-squarefree levels: the change-point rule is not applied
+    count_active = scale_model <= _COUNT_RULE_MAX_SCALE and d.squarefree and chi is None
     flag_count = np.zeros(nwin, dtype=bool)
     research: list[list[tuple[float, float]]] = [[] for _ in range(nwin)]
     gaps: list[tuple[float, float]] = []
@@ -898,7 +923,7 @@ def completeness(
             top += 1.0
 
     # ---- 2. Turing-style integral test
-    W_fun = lambda x: weyl_count(N, x, oscillatory=oscillatory)  # noqa: E731
+    W_fun = wc
     tr = turing_test(N, R_ext, T_min, float(complete_to), W_fun,
                      count_below=base if known else None, z=turing_z, extra_points=edges)
     flag_turing = np.zeros(nwin, dtype=bool)
