@@ -24,10 +24,8 @@ import math
 from dataclasses import dataclass
 from fractions import Fraction
 
-from maasscomp.arith import euler_phi
+from maasscomp.arith import euler_phi, factorint, kronecker
 from maasscomp.errors import InputError
-
-from ._arith import factorint
 
 
 def _least_primitive_root(p: int, e: int) -> int:
@@ -345,23 +343,9 @@ def kronecker_character(D: int, N: int | None = None) -> DirichletCharacter:
     q = abs(int(D))
     for c in all_characters(q):
         if c.order <= 2 and c.conductor == q and all(
-                complex_value(c, n) == _kronecker(D, n) for n in range(1, 4 * q) if math.gcd(n, q) == 1):
+                complex_value(c, n) == kronecker(D, n) for n in range(1, 4 * q) if math.gcd(n, q) == 1):
             return induce(c, q if N is None else N)
     raise InputError(f"D={D!r} is not a fundamental discriminant")
-
-
-def _kronecker(D: int, n: int) -> int:
-    """Kronecker symbol (D/n) for n >= 1 (Cohen, A Course in Computational Algebraic
-    Number Theory, Def. 1.4.8)."""
-    out = 1
-    for p, e in factorint(n).items():
-        if p == 2:
-            v = 0 if D % 2 == 0 else (1 if D % 8 in (1, 7) else -1)
-        else:
-            r = D % p
-            v = 0 if r == 0 else (1 if pow(r, (p - 1) // 2, p) == 1 else -1)
-        out *= v ** e
-    return out
 
 
 def parse_character_spec(spec, N: int) -> DirichletCharacter | None:

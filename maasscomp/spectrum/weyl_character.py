@@ -39,6 +39,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from maasscomp.arith import is_prime
 from maasscomp.errors import InputError
 
 
@@ -59,10 +60,6 @@ class CharacterWeylTerms:
         return (f"Weyl's law for Gamma0({self.level}) with character {self.character}: mu = {self.mu}, "
                 f"{self.n_singular_cusps} singular cusps, elliptic {self.elliptic:.6g}, "
                 f"log A = {self.log_conductor:.12g}, C = {self.constant:.12g}")
-
-
-def _is_prime(n: int) -> bool:
-    return n >= 2 and all(n % p for p in range(2, int(n ** 0.5) + 1))
 
 
 def _elliptic_generators(q: int) -> list[tuple[int, int]]:
@@ -87,7 +84,7 @@ def character_weyl_terms(level: int, chi) -> CharacterWeylTerms:
     q = int(level)
     if chi.modulus != q:
         raise InputError(f"character {chi.label} has modulus {chi.modulus}, not the level {q}")
-    if not (_is_prime(q) and chi.conductor == q and chi.is_even):
+    if not (is_prime(q) and chi.conductor == q and chi.is_even):
         raise InputError(f"Weyl's law with a character is available for a primitive even character "
                          f"of prime level only; not for {chi.label} at level {q}")
     G = gamma0(q)
