@@ -578,7 +578,7 @@ def completeness_advice(level: int, R_min: float, R_max: float, flagged, step: f
                        f"again with a finer lattice, [search] step = {float(f'{finer:.2g}'):g}, in a config "
                        "with a new output store (a store keeps the step it was made with), or from Python "
                        f"with maasscomp.spectrum.complete_search(gamma0({level}), {w.T_lo:g}, {w.T_hi:g})")
-
+    return out
 
 
 def _character_weyl_windows(st, cfg: Config, plan: Plan, summary: JobSummary):
