@@ -23,7 +23,6 @@ from __future__ import annotations
 from collections import defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
-from types import SimpleNamespace
 from typing import Any, Sequence
 
 import numpy as np
@@ -135,17 +134,6 @@ def _weyl_figure(level: int, R: np.ndarray, T_lo: float, T_hi: float, path: Path
     fig.savefig(path, dpi=110)
 
 
-def _entries(rows: list[dict]) -> list[SimpleNamespace]:
-    """Form-like records (R, class, new/old, multiplicity) for the completeness tests."""
-    out = []
-    for r in rows:
-        lab = str(r["symmetry"])
-        sym = SimpleNamespace(label=lab, parity=lab.split(",")[0].split()[0])
-        out.append(SimpleNamespace(R=float(r["R"]), symmetry=sym, is_new=r.get("is_new"),
-                                   multiplicity=int(r.get("multiplicity") or 1)))
-    return out
-
-
 def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[str]]:
     """Completeness of every level whose searched range covers all its symmetry classes.
 
@@ -153,12 +141,15 @@ def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[
     bounds on missing forms it gives, and the small-gap test against the Poisson expectation
     (:func:`maasscomp.spectrum.weyl.completeness`; docs/theory.md §8.4-8.6).
     """
+    from maasscomp.groups import DirichletCharacter
+    from maasscomp.hejhal.types import SymmetryClass
+    from maasscomp.spectrum.complete import FormSummary
     from maasscomp.spectrum.weyl import LIMITATIONS, completeness
 
     rows: list[dict] = []
     text: list[str] = []
     table: list[str] = []
-    levels = sorted(set(cov) | {r["level"] for r in st.summary_rows(n_coeffs=0)})
+    levels = sorted(set(cov) | set(st.levels()))
     for N in levels:
         labels = all_class_labels(N)
         per_class = cov.get(N, {})
@@ -173,14 +164,16 @@ def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[
         if not full:
             text.append(f"- level {N}: skipped; no R range was searched in every symmetry class.")
             continue
-        forms_N = [r for r in st.summary_rows(n_coeffs=0)
-                   if r["level"] == N and str(r.get("character") or "X1") in ("X1", "1", "trivial")]
-        R_all = np.array(sorted(r["R"] for r in forms_N))
+        # Weyl's law of the trivial character: forms with a character are counted elsewhere
+        keys = st.select(level=N, character=DirichletCharacter.trivial(N).label)
+        forms_N = [FormSummary(r["R"], SymmetryClass.from_label(r["symmetry"]), r["is_new"],
+                               r["multiplicity"], r["basis_index"])
+                   for r in st.summary_rows(n_coeffs=0, keys=keys)]
         for T_lo, T_hi in full:
-            sel = [r for r in forms_N if T_lo <= r["R"] <= T_hi]
-            R = R_all[(R_all >= T_lo) & (R_all <= T_hi)]
+            sel = [f for f in forms_N if T_lo <= f.R <= T_hi]
+            R = np.array(sorted(f.R for f in sel))
             # no cusp form of these levels has R below 1 (as in the run summary)
-            c = completeness(N, _entries(sel), T_lo, T_hi, count_below=0 if T_lo <= 1.0 else None)
+            c = completeness(N, sel, T_lo, T_hi, count_below=0 if T_lo <= 1.0 else None)
             for w in c.windows:
                 rows.append({"level": N, **w.as_row()})
                 mm = "" if w.missing_max is None else f"{w.missing_max}"
