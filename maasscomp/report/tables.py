@@ -66,6 +66,13 @@ def plain(v: Any) -> Any:
 
 def csv_cell(v: Any) -> str:
     """Full-precision text of one CSV cell."""
+    t = type(v)  # the common exact types first: a 10^5-form export formats millions of cells
+    if t is str:
+        return v
+    if t is float and v - v == 0.0:
+        return repr(v)
+    if t is int:
+        return str(v)
     v = plain(v)
     if v is None:
         return ""

@@ -2,8 +2,9 @@
 temp file + rename). The document is described by ``docs/export-schema.json`` (JSON Schema,
 draft 2020-12); tables (CSV, plain text, LaTeX) are written by :mod:`maasscomp.report.export`.
 
-Floats are written with Python's ``repr``, the shortest decimal string that reads back
-to the same double, so exported numbers parse back bit-identical.  Strict JSON has no
+Floats are written as the shortest decimal string that reads back to the same double (as
+``repr`` does; exponents may read ``1e16`` rather than ``1e+16``), so exported numbers parse
+back bit-identical.  Strict JSON has no
 token for nan/inf; they are written as the strings ``"nan"``, ``"inf"``, ``"-inf"``
 (in CSV they appear as ``nan``, ``inf``, ``-inf``, which ``float()`` reads).  Complex
 coefficients are ``{"re": .., "im": ..}`` objects in JSON and Python literals such as
@@ -23,6 +24,7 @@ from pathlib import Path
 from typing import Any, Iterable
 
 import numpy as np
+import orjson
 
 from maasscomp import __version__
 from maasscomp.errors import StoreError
@@ -75,6 +77,16 @@ def _plain_array(a: np.ndarray) -> list:
     if np.isfinite(a).all():
         return a.tolist()
     return to_plain_json(a)
+
+
+def _dumps(rec: dict[str, Any]) -> str:
+    """Compact JSON text of one record. orjson writes the shortest round-trip floats, as
+    ``repr`` does, about ten times faster than ``json``; integers beyond 64 bits (which it
+    refuses) go through ``json``."""
+    try:
+        return orjson.dumps(rec).decode()
+    except TypeError:
+        return json.dumps(rec, allow_nan=False, separators=(",", ":"))
 
 
 def record_of(rec: FormRecord) -> dict[str, Any]:
@@ -184,8 +196,7 @@ def export_json(store_path: str | os.PathLike, out_path: str | os.PathLike,
                         except StoreError as exc:
                             bad[f"{fr.key} [attachment {name}]"] = str(exc)
                     rec["attachments"] = to_plain_json(atts)
-                fh.write(("\n  " if first else ",\n  ")
-                         + json.dumps(rec, allow_nan=False, separators=(",", ":")))
+                fh.write(("\n  " if first else ",\n  ") + _dumps(rec))
                 first = False
                 n += 1
             for k, why in st.damaged().items():

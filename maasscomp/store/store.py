@@ -150,6 +150,17 @@ def _character_dict(modulus: int, exponents: tuple[int, ...]) -> dict[str, Any]:
     return _character(modulus, exponents).as_dict()
 
 
+_RECORD_FIELDS = ("level", "R", "R_error", "hecke_residual", "solver_Y", "solver_eps", "solver_M0",
+                  "solver_Q", "multiplicity", "basis_index", "n_cusps", "M", "parity", "is_new",
+                  "coeffs_kind", "errors_kind", "seq")
+
+
+@functools.lru_cache(maxsize=8)
+def _record_positions(dtype: np.dtype) -> tuple[int, ...]:
+    """Positions of :data:`_RECORD_FIELDS` in an index row of ``dtype``."""
+    return tuple(dtype.names.index(f) for f in _RECORD_FIELDS)
+
+
 @dataclass(frozen=True)
 class FormRecord:
     """One stored form as plain values (what exports write), read without building a Form.
@@ -184,11 +195,10 @@ class FormRecord:
     @classmethod
     def from_parts(cls, key: str, sym: str, char: str, row: np.ndarray, doc: dict,
                    arrays: dict, cb: bytes, eb: bytes, text) -> "FormRecord":
-        (lev, R, Re, hr, Y, eps, M0, Q, mult, bi, nc, M, par, isn, ck, ek) = (
-            row[f].item() for f in ("level", "R", "R_error", "hecke_residual", "solver_Y",
-                                    "solver_eps", "solver_M0", "solver_Q", "multiplicity",
-                                    "basis_index", "n_cusps", "M", "parity", "is_new",
-                                    "coeffs_kind", "errors_kind"))
+        # one conversion of the whole index row (a field-by-field .item() costs 16 calls)
+        t = row.item()
+        (lev, R, Re, hr, Y, eps, M0, Q, mult, bi, nc, M, par, isn, ck, ek, seq) = (
+            t[j] for j in _record_positions(row.dtype))
 
         def arr(b: bytes, kind: int) -> np.ndarray:
             dt = np.dtype("<c16") if kind == L.KIND_COMPLEX else np.dtype("<f8")
@@ -210,7 +220,7 @@ class FormRecord:
             fields={k: _codec.decode_tree(v, arrays) for k, v in doc.get(S.M_FIELDS, {}).items()},
             provenance={"package_version": p["package_version"], "created_utc": p["created_utc"],
                         "config": text(p["config_id"]), "run_id": p["run_id"],
-                        "seq": int(row["seq"])},
+                        "seq": seq},
         )
 
     @classmethod
