@@ -198,6 +198,8 @@ def accept_character(group, chi, cls: SymmetryClass, a, b, settings, third):
         "singular_cusps": [c.name for c, k in zip(group.cusps, kap) if k == 0],
         "expansion": "F_j(z) = sum over nu in kappa_j + Z of c_j(nu) sqrt(y) K_iR(2 pi |nu| y) e(nu x)",
     }
+    is_new, newness = newness_of_eigenspace(Ca[:, 0, 0, :K], group.level, chi)
+    base_extra["newness"] = newness
     forms = []
     for idx, (coeffs, errs, eig) in enumerate(members):
         cinf = coeffs[0, 0]
@@ -213,13 +215,65 @@ def accept_character(group, chi, cls: SymmetryClass, a, b, settings, third):
         extra["coeff_errors_negative"] = np.ascontiguousarray(errs[:, 1])
         if m > 1:
             extra["basis"] = "hecke" if eig else "echelon"
-        is_new = True if chi.conductor == group.level else None
         forms.append(Form(level=group.level, R=float(R), symmetry=cls,
                           coeffs=np.ascontiguousarray(coeffs[:, 0]),
                           coeff_errors=np.ascontiguousarray(errs[:, 0]), R_error=float(R_error),
                           hecke_residual=float(hres), params=s1.params, is_new=is_new, multiplicity=m,
                           basis_index=idx, extra=extra, character=chi))
+    if settings.lfunction_check and is_new:
+        for f in forms:
+            if f.extra["hecke_eigenform"]:
+                f.extra["lfunction"] = character_lfunction_label(group, f)
     return True, f"confirmed, multiplicity {m}", forms
+
+
+def newness_of_eigenspace(B: np.ndarray, level: int, chi, tol: float = 1e-6) -> tuple[bool | None, str]:
+    """New or old, for every form of one eigenspace (fixed R, chi, parity), and why.
+
+    An oldform from level M (cond(chi) | M | N, M < N) brings the forms g(dz), d | N/M, into
+    the eigenspace: at least two of them (same R, character and parity), and g(pz), p a
+    prime dividing N/M, has c(n) = 0 for every n prime to p (docs/theory.md §12.4). So an
+    eigenspace of dimension 1 is new, and one of dimension m >= 2 is old exactly when it
+    holds a vector whose coefficients at infinity vanish at all n prime to some prime p
+    with cond(chi) | N/p. Numerically: the columns of ``B`` (K, m) (the coefficients
+    c_inf(1..K) of a basis, transposed) restricted to the rows n prime to p lose rank (smallest singular
+    value below ``tol`` times the largest).
+
+    Parameters
+    ----------
+    B : ndarray, shape (m, K)
+        c_inf(1..K) of each of the m basis members.
+    level : int
+    chi : character (its ``conductor`` is read)
+    tol : float
+
+    Returns
+    -------
+    (is_new, reason) : (bool or None, str)
+        None when K is too small for the rank test.
+    """
+    B = np.asarray(B).T  # (K, m)
+    K, m = B.shape
+    if m == 1:
+        return True, "eigenspace of dimension 1 (an oldform brings at least two forms)"
+    from maasscomp.arith import prime_factors
+
+    cond = int(chi.conductor)
+    n = np.arange(1, K + 1)
+    tested = []
+    for p in prime_factors(level):
+        if (level // p) % cond:
+            continue  # no level M with cond(chi) | M | N/p: nothing old through p
+        rows = B[n % p != 0]
+        if rows.shape[0] < 2 * m:
+            return None, f"too few coefficients ({K}) for the rank test at p = {p}"
+        sv = np.linalg.svd(rows / np.max(np.abs(rows)), compute_uv=False)
+        tested.append(f"{p}: {sv[-1]:.1e}")
+        if sv[-1] <= tol * sv[0]:
+            return False, (f"eigenspace of dimension {m} holds a form supported on multiples of "
+                           f"{p} (smallest singular value {sv[-1]:.1e}): old through p = {p}")
+    return True, (f"eigenspace of dimension {m} with no form supported on multiples of a prime "
+                  f"p with cond(chi) | N/p (smallest singular values {', '.join(tested) or 'none'})")
 
 
 def _eigen_residual(a: np.ndarray, chi, K: int) -> float:
@@ -327,22 +381,129 @@ def evaluate_character_form(group, form: Form, x, y) -> np.ndarray:
     C = two_sided(form)
     M = C.shape[2]
     kap = [Fraction(s) for s in form.extra["cusp_shifts"]]
-    x = np.atleast_1d(np.asarray(x, dtype=float))
-    y = np.atleast_1d(np.asarray(y, dtype=float))
+    x = np.atleast_1d(np.asarray(x, dtype=float)).ravel()
+    y = np.atleast_1d(np.asarray(y, dtype=float)).ravel()
     pb = group.pullback(x, y)
     cusp = np.asarray(pb.cusp).ravel()
     xs, ys = np.asarray(pb.x).ravel(), np.asarray(pb.y).ravel()
     d = np.asarray(pb.gamma).reshape(-1, 2, 2)[:, 1, 1]
     out = np.zeros(x.size, dtype=complex)
-    for i in range(x.size):
-        k = int(cusp[i])
+    # points grouped by cusp, in blocks: one K-Bessel table per block instead of per point
+    for k in np.unique(cusp).tolist():
+        at = np.flatnonzero(cusp == k)
         pos, neg = cusp_frequencies(kap[k], M)
-        nu = np.concatenate([pos, neg])
+        nu = np.concatenate([pos, neg]).astype(float)
         c = np.concatenate([C[k, 0], C[k, 1]])
-        kv = ktilde(form.R, 2 * np.pi * np.abs(nu) * ys[i])
-        F = np.sum(c * math.sqrt(ys[i]) * kv * np.exp(2j * np.pi * nu * xs[i]))
-        out[i] = np.conj(complex_value(chi, int(d[i]))) * F
-    return out
+        for i0 in range(0, at.size, 1024):
+            ii = at[i0:i0 + 1024]
+            kv = ktilde(form.R, 2 * np.pi * ys[ii][:, None] * np.abs(nu)[None, :])
+            ph = np.exp(2j * np.pi * xs[ii][:, None] * nu[None, :])
+            out[ii] = np.sqrt(ys[ii]) * ((kv * ph) @ c)
+    chis = {int(v): complex_value(chi, int(v)) for v in np.unique(d % chi.modulus).tolist()}
+    return out * np.conj(np.array([chis[int(v)] for v in (d % chi.modulus).tolist()], dtype=complex))
+
+
+def fricke_pseudo_eigenvalue(group, form: Form, n_points: int = 12, seed: int = 3) -> tuple[complex, float]:
+    """eta with f(-1/(Nz)) = eta f~(z), f~(z) = conj f(-conj z) (docs/theory.md §12.8).
+
+    Measured at ``n_points`` random points near the circle |z| = N^{-1/2} (least squares);
+    returns (eta, spread), spread = max |f(-1/(Nz)) - eta f~(z)| / max |f~(z)|, which is small
+    exactly when f|W_N is a multiple of f~ (a newform)."""
+    rng = np.random.default_rng(seed)
+    N = group.level
+    x = rng.uniform(-0.5, 0.5, n_points)
+    y = rng.uniform(0.6, 1.4, n_points) / math.sqrt(N)
+    z = x + 1j * y
+    w = -1.0 / (N * z)
+    fw = evaluate_character_form(group, form, w.real, w.imag)
+    ft = np.conj(evaluate_character_form(group, form, -x, y))
+    eta = complex(np.vdot(ft, fw) / np.vdot(ft, ft))
+    spread = float(np.max(np.abs(fw - eta * ft)) / np.max(np.abs(ft)))
+    return eta, spread
+
+
+def extend_character_coefficients(group, form: Form, n_max: int, *, eps: float = 1e-14,
+                                  heights: tuple[float, ...] = (0.95, 0.82, 0.7)) -> tuple[np.ndarray, np.ndarray]:
+    """c_inf(1..n_max) of a form with a character, with error estimates.
+
+    Hejhal's inversion on a horocycle of height Y (docs/theory.md §1.2 item 3, complex form):
+    c(n) sqrt(Y) Kt(2 pi n Y) = (1/Q) sum_m f(x_m + iY) e(-n x_m), x_m = (m - 1/2)/Q, with the
+    values from :func:`evaluate_character_form` (pulled-back points, where the stored
+    expansions suffice) and Q >= n_max + the truncation at Y, so no frequency aliases. For
+    each n the best of three heights Y = c R/(2 pi n_max) is kept; the second best gives the
+    error estimate.
+    """
+    from maasscomp.hejhal.params import truncation_M0
+    from maasscomp.special import ktilde
+
+    if group.level != form.level:
+        raise InputError(f"coefficient extension needs the group of the form (level {form.level}), got level {group.level}")
+    if not (isinstance(n_max, int) and 10 <= n_max <= 200000):
+        raise InputError(f"n_max={n_max!r} is not allowed; it must be an integer in [10, 200000]")
+    R = form.R
+    Y0 = group.fundamental_domain_height
+    n = np.arange(1, n_max + 1)
+    vals, kmag = [], []
+    for c in heights:
+        Y = min(0.9 * Y0, c * max(R, 1.0) / (2 * math.pi * n_max))
+        Q = n_max + truncation_M0(R, Y, eps) + 8
+        xm = (np.arange(1, Q + 1) - 0.5) / Q
+        f = evaluate_character_form(group, form, xm, np.full(Q, Y))
+        b = np.exp(-1j * np.pi * n / Q) * np.fft.fft(f)[1:n_max + 1] / Q
+        k = math.sqrt(Y) * ktilde(R, 2 * math.pi * n * Y)
+        vals.append(b / k)
+        kmag.append(np.abs(k))
+    vals, kmag = np.array(vals), np.array(kmag)
+    order = np.argsort(-kmag, axis=0)
+    best = np.take_along_axis(vals, order[:1], 0)[0]
+    second = np.take_along_axis(vals, order[1:2], 0)[0]
+    err = np.maximum(np.abs(best - second), 1e-16 * np.abs(best))
+    return best, err
+
+
+#: The character L-function check is skipped beyond this many coefficients.
+CHARACTER_LFUNCTION_MAX_COEFFS = 20000
+
+
+def character_lfunction_label(group, form: Form) -> dict:
+    """Functional-equation check of a newform with a character (``Form.extra["lfunction"]``).
+
+    The root number is fitted (:func:`maasscomp.spectrum.lfunction.functional_equation_check_character`)
+    and compared with (-1)^delta eta, eta the Fricke pseudo-eigenvalue measured from the form's
+    values (:func:`fricke_pseudo_eigenvalue`); coefficients beyond the stored ones come from
+    :func:`extend_character_coefficients`. Returns the root number found and predicted, the
+    residual, |eps| - 1, eta and its spread, the coefficients used and ``passed``; or
+    ``{"skipped": reason}``.
+    """
+    from maasscomp.spectrum.lfunction import TooFewCoefficients, functional_equation_check_character
+
+    if form.is_new is not True:
+        return {"skipped": "not a newform"}
+    eta, spread = fricke_pseudo_eigenvalue(group, form)
+    a = np.asarray(form.coeffs[0], dtype=complex)
+    try:
+        chk = functional_equation_check_character(form.R, a, form.parity, group.level,
+                                                  fricke_pseudo_eigenvalue=eta)
+        used = a.size
+    except TooFewCoefficients as exc:
+        n_need = exc.needed + 8
+        if n_need > CHARACTER_LFUNCTION_MAX_COEFFS:
+            return {"skipped": f"needs {n_need} coefficients (limit {CHARACTER_LFUNCTION_MAX_COEFFS})"}
+        a2, _ = extend_character_coefficients(group, form, n_need)
+        chk = functional_equation_check_character(form.R, a2, form.parity, group.level,
+                                                  fricke_pseudo_eigenvalue=eta)
+        used = n_need
+    return {
+        "root_number": [chk.root_number.real, chk.root_number.imag],
+        "predicted_root_number": [chk.predicted.real, chk.predicted.imag],
+        "fricke_pseudo_eigenvalue": [eta.real, eta.imag],
+        "fricke_spread": spread,
+        "residual": chk.residual,
+        "unit_defect": chk.unit_defect,
+        "prediction_gap": chk.prediction_gap,
+        "passed": bool(chk.passed and spread <= 1e-6),
+        "n_coeffs_used": int(used),
+    }
 
 
 def evaluate_at_infinity(form: Form, x, y) -> np.ndarray:

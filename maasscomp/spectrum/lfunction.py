@@ -670,3 +670,152 @@ def functional_equation_check(
         cutoff=int(needed),
         A=(float(A[0]), float(A[1])),
     )
+
+
+# ------------------------------------------------------- standard L with a character
+
+
+@dataclass(frozen=True)
+class CharacterFunctionalEquationCheck:
+    """Result of :func:`functional_equation_check_character`.
+
+    Attributes
+    ----------
+    root_number : complex
+        eps fitted by least squares over the s points (Lambda(s, f) = eps Lambda(1-s, f~)).
+    residual : float
+        max over s of |L_{A1}(s) - L_{A2}(s)| / max(1, |L_{A1}(s)|) with that eps.
+    residuals : tuple of float
+    unit_defect : float
+        | |eps| - 1 |: a root number has absolute value 1.
+    predicted : complex or None
+        (-1)^delta eta from the Fricke pseudo-eigenvalue, when given.
+    prediction_gap : float or None
+        |eps - predicted|.
+    values : tuple of complex
+        L(s, f) at the s points (first smoothing).
+    s_points : tuple of complex
+    cutoff : int
+    A : tuple of float
+    """
+
+    root_number: complex
+    residual: float
+    residuals: tuple[float, ...]
+    unit_defect: float
+    predicted: complex | None
+    prediction_gap: float | None
+    values: tuple[complex, ...]
+    s_points: tuple[complex, ...]
+    cutoff: int
+    A: tuple[float, float]
+
+    @property
+    def passed(self) -> bool:
+        """Residual below 1e-8, |eps| = 1 to 1e-6 and eps equal to the prediction (if any)
+        to 1e-6."""
+        ok = self.residual <= 1e-8 and self.unit_defect <= 1e-6
+        return ok and (self.prediction_gap is None or self.prediction_gap <= 1e-6)
+
+
+def functional_equation_check_character(
+    R: float,
+    coeffs: Sequence[complex] | np.ndarray,
+    parity: str,
+    level: int,
+    s_points: Sequence[complex] | None = None,
+    *,
+    A: tuple[float, float] = (6.0, 16.0),
+    tol: float = 1e-12,
+    fricke_pseudo_eigenvalue: complex | None = None,
+) -> CharacterFunctionalEquationCheck:
+    """Check Lambda(s, f) = eps Lambda(1 - s, f~) for a newform with a character.
+
+    For a newform f of level N and character chi with Hecke eigenvalues a(n) (complex),
+    f~(z) = conj f(-conj z) has the coefficients conj a(n) and the character conj chi, and
+
+        Lambda(s, f) = N^{s/2} Gamma_R(s + delta + iR) Gamma_R(s + delta - iR) L(s, f)
+
+    satisfies Lambda(s, f) = eps Lambda(1 - s, f~) with eps = (-1)^delta eta, where
+    f(-1/(Nz)) = eta f~(z) defines the Fricke pseudo-eigenvalue eta (docs/theory.md §12.8;
+    for a real character and real a(n) this is the check of :func:`functional_equation_check`).
+    The smoothed approximate functional equation (module docstring) gives, for each s and
+    each smoothing A, L_A(s) = S_A(s) + eps T_A(s) with S over a(n) and T over conj a(n).
+    eps is not known in advance, so it is fitted: the least-squares solution of
+    S_{A1}(s) - S_{A2}(s) + eps (T_{A1}(s) - T_{A2}(s)) = 0 over all s points. The residual
+    at the fitted eps, |eps| = 1 and agreement with the prediction from eta are three
+    independent tests (six points, one unknown).
+
+    Parameters
+    ----------
+    R : float
+    coeffs : array of complex
+        a(1..M), a(1) = 1.
+    parity : {"even", "odd"}
+    level : int
+        Level N (the conductor of a newform).
+    s_points : sequence of complex, optional
+        Default :func:`default_s_points`.
+    A : pair of float
+    tol : float
+        Truncation target used to choose the number of terms.
+    fricke_pseudo_eigenvalue : complex, optional
+        eta, measured from the form's values (``charforms.fricke_pseudo_eigenvalue``).
+
+    Returns
+    -------
+    CharacterFunctionalEquationCheck
+
+    Raises
+    ------
+    TooFewCoefficients
+        M below the cutoff needed for ``tol`` (``needed`` says how many).
+    """
+    R = _check_R(R)
+    if parity not in ("even", "odd"):
+        raise InputError(f"parity {parity!r} is not allowed; use 'even' or 'odd'")
+    _level_primes(level)
+    a = np.asarray(coeffs, dtype=complex).ravel()
+    if a.size < 1 or not np.all(np.isfinite(a)):
+        raise InputError("coeffs must be a non-empty array of finite numbers")
+    pts = tuple(complex(s) for s in (default_s_points(R) if s_points is None else s_points))
+    if len(pts) < 2:
+        raise InputError("s_points must contain at least two points (eps is fitted)")
+    if len(A) != 2 or not all(x > 0 for x in A) or A[0] == A[1]:
+        raise InputError(f"A = {A!r} is not allowed; give two different positive numbers")
+    delta = 0 if parity == "even" else 1
+    lg = _log_gamma_factor((delta + 1j * R, delta - 1j * R), math.log(level))
+    kernels = []
+    needed = 2
+    for s in pts:
+        lg_ref = complex(lg(np.array([s]))[0])
+        row = []
+        for a_ in A:
+            k1 = _kernel(lg, s, a_, lg_ref, -delta)
+            k0 = _kernel(lg, 1 - s, a_, lg_ref, -delta)
+            needed = max(needed, _tail_cutoff(k1, tol, 0.2), _tail_cutoff(k0, tol, 0.2))
+            row.append((k1, k0))
+        kernels.append(row)
+    if a.size < needed:
+        raise TooFewCoefficients(
+            f"the functional-equation check at R = {R:g} needs a(n) for n <= {needed} "
+            f"(truncation {tol:g}), but only a(1..{a.size}) were given", needed)
+    c = a[:needed]
+    cb = np.conj(c)
+    logn = np.log(np.arange(1, needed + 1, dtype=float))
+    S = np.array([[complex(c @ k1.weights(logn)) for k1, _ in row] for row in kernels])
+    T = np.array([[complex(cb @ k0.weights(logn)) for _, k0 in row] for row in kernels])
+    D, E = S[:, 0] - S[:, 1], T[:, 0] - T[:, 1]
+    eps = complex(-np.vdot(E, D) / np.vdot(E, E))
+    L1 = S[:, 0] + eps * T[:, 0]
+    res = np.abs(D + eps * E) / np.maximum(1.0, np.abs(L1))
+    pred = None
+    gap = None
+    if fricke_pseudo_eigenvalue is not None:
+        pred = complex((1 if delta == 0 else -1) * complex(fricke_pseudo_eigenvalue))
+        gap = float(abs(eps - pred))
+    return CharacterFunctionalEquationCheck(
+        root_number=eps, residual=float(np.max(res)), residuals=tuple(float(x) for x in res),
+        unit_defect=float(abs(abs(eps) - 1.0)), predicted=pred, prediction_gap=gap,
+        values=tuple(complex(v) for v in L1), s_points=pts, cutoff=int(needed),
+        A=(float(A[0]), float(A[1])))

@@ -106,8 +106,10 @@ class SearchSettings:
     hecke_nmax : int
         Range of the Hecke check stored with each form.
     lfunction_check : bool
-        Check the functional equation of the standard L-function of every newform of
-        squarefree level and store the outcome in ``Form.extra["lfunction"]``.
+        Check the functional equation of the standard L-function of every newform (Hecke
+        eigenform) of squarefree level, and of every newform with a character (root number
+        fitted and compared with the Fricke pseudo-eigenvalue), and store the outcome in
+        ``Form.extra["lfunction"]``.
     """
 
     eps: float = 1e-14

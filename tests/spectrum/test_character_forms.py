@@ -22,6 +22,7 @@ import csv
 import math
 from pathlib import Path
 
+import mpmath
 import numpy as np
 import pytest
 
@@ -30,6 +31,11 @@ from maasscomp.groups import DirichletCharacter, gamma0
 from maasscomp.groups import characters as C
 from maasscomp.spectrum import charforms as CF
 from maasscomp.spectrum.search import search_forms
+
+def _ri(z: complex) -> tuple[float, float]:
+    z = complex(z)
+    return z.real, z.imag
+
 
 REF = Path(__file__).resolve().parents[2] / "data" / "reference" / "dihedral_forms.csv"
 
@@ -242,4 +248,15 @@ def test_twist_of_level_one_form(q, k):
         assert cand, (psi.label, parity, [(g.symmetry.label, g.R) for g in near])
         assert min(abs(g.R - f.R) for g in cand) < 1e-10
         assert min(np.max(np.abs(g.coeffs[0, :30] - tw)) for g in cand) < 1e-8, psi.label
+        # root number of the twist: eps_f psi(-1) tau(psi)^2 / q (docs/theory.md §12.8, derived
+        # there; the Gauss sum computed here with mpmath), eps_f = -1 for the odd form f
+        g = min(cand, key=lambda g: np.max(np.abs(g.coeffs[0, :30] - tw)))
+        assert g.is_new is True, g.extra["newness"]
+        tau = complex(mpmath.fsum(mpmath.mpc(*_ri(C.complex_value(psi, u))) * mpmath.expjpi(2 * mpmath.mpf(u) / q)
+                                  for u in range(1, q)))
+        want = -1 * (1 if psi.is_even else -1) * tau * tau / q
+        lf = g.extra["lfunction"]
+        assert lf["passed"], lf
+        eps = complex(*lf["root_number"])
+        assert abs(eps - want) < 1e-8, (psi.label, eps, want)
     assert sorted(parities) == (["even", "even"] if q == 5 else ["even", "odd"])
