@@ -504,14 +504,14 @@ def _weyl_summary(st, cfg: Config, plan: Plan, summary: JobSummary) -> list[str]
     for N, _, (a, b), rep in _weyl_windows(st, cfg, plan, summary):
         state = ("no window flagged" if not rep.flagged else "still flagged: " + ", ".join(
             f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in rep.flagged))
-        lines.append(f"level {N}, R in [{a:g}, {b:g}]: {rep.total_found} forms, "
+        lines.append(f"level {N}, R in [{a:.10g}, {b:.10g}]: {rep.total_found} forms, "
                      f"{rep.total_expected:.2f} expected by Weyl's law; {state}")
         lines += _window_test_lines(rep)
         lines += ["  " + t for t in completeness_advice(N, a, b, rep.flagged, cfg.search.step)]
     for N, chi, (a, b), rep in _character_weyl_windows(st, cfg, plan, summary):
         state = ("no window flagged" if not rep.flagged else "flagged: " + ", ".join(
             f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in rep.flagged) + " (not searched again)")
-        lines.append(f"level {N}, character {chi}, R in [{a:g}, {b:g}]: {rep.total_found} forms, "
+        lines.append(f"level {N}, character {chi}, R in [{a:.10g}, {b:.10g}]: {rep.total_found} forms, "
                      f"{rep.total_expected:.2f} expected by Weyl's law with the character; {state}")
     return lines
 
@@ -574,7 +574,7 @@ def completeness_advice(level: int, R_min: float, R_max: float, flagged, step: f
                        "finished tasks are kept")
         else:
             finer = min(0.5 / density, (step if step else 0.1) / 2)
-            out.append(f"{where}: a form is probably missing there; search R in [{w.T_lo:g}, {w.T_hi:g}] "
+            out.append(f"{where}: a form is probably missing there; search R in [{w.T_lo:.10g}, {w.T_hi:.10g}] "
                        f"again with a finer lattice, [search] step = {float(f'{finer:.2g}'):g}, in a config "
                        "with a new output store (a store keeps the step it was made with), or from Python "
                        f"with maasscomp.spectrum.complete_search(gamma0({level}), {w.T_lo:g}, {w.T_hi:g})")

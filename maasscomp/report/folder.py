@@ -188,7 +188,7 @@ def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[
                     + ", ".join(f"({w.T_lo:.3f}, {w.T_hi:.3f}]" for w in c.flagged)
                     + "; search again: " + ", ".join(f"[{a:.4f}, {b:.4f}]" for a, b in c.research_intervals())
                     if c.flagged else "no window flagged")
-            text.append(f"- level {N}, R in [{T_lo:g}, {T_hi:g}]: {c.total_found} forms found, "
+            text.append(f"- level {N}, R in [{T_lo:.10g}, {T_hi:.10g}]: {c.total_found} forms found, "
                         f"{c.total_expected:.2f} expected; remainder mean {c.mean_remainder:+.3f}, "
                         f"rms {c.rms_remainder:.3f}; {flag}. Figure: [{name}]({name})")
     if table:
