@@ -181,7 +181,7 @@ def _weyl_section(st, folder: Path, rep: Report, cov) -> tuple[list[dict], list[
                              f"{w.turing_integral:+.3f} | {w.turing_bound:.3f} | {w.missing_min} | {mm or '–'} | "
                              f"{w.small_gaps} | {w.small_gaps_expected:.2f} | {w.spacing_p:.3g} | "
                              f"{'yes: ' + ', '.join(w.reasons) if w.flagged else 'no'} |")
-            name = f"weyl_N{N}.png" if len(full) == 1 else f"weyl_N{N}_{T_lo:g}-{T_hi:g}.png"
+            name = f"weyl_N{N}.png" if len(full) == 1 else f"weyl_N{N}_{T_lo:.10g}-{T_hi:.10g}.png"
             _weyl_figure(N, R, T_lo, T_hi, folder / name)
             rep.files.append(name)
             flag = ("windows flagged as probably incomplete: "
